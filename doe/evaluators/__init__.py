@@ -1,0 +1,77 @@
+"""Evaluators: who turns a planned run into numbers.
+
+========== ============================================================
+kind       what it does
+========== ============================================================
+builtin    the low-order aerodynamic model of :mod:`doe.aero`
+command    the user's own program, once per run, in its own case folder
+recorded   looks runs up in a CSV of results from CFD, tunnel or track
+========== ============================================================
+
+All follow :class:`~doe.evaluators.base.Evaluator`. Use :func:`make_evaluator`.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+from ..errors import EvaluatorError
+from .base import Evaluator, Outcome, failed
+
+__all__ = ["Evaluator", "Outcome", "failed", "make_evaluator", "check_settings"]
+
+
+def make_evaluator(study, workspace: str | Path | None = None) -> Evaluator:
+    """Build the evaluator a study asks for.
+
+    Parameters
+    ----------
+    study : Study
+    workspace : str or Path, optional
+        Folder for per-run case folders (the ``command`` kind); defaults to
+        ``<study output>/cases``.
+
+    Raises
+    ------
+    StudyError, EvaluatorError
+        When the ``[evaluator]`` options are wrong.
+    """
+    kind = study.evaluator.kind
+    workspace = Path(workspace) if workspace is not None else study.default_output / "cases"
+    if kind == "command":
+        from .command import CommandEvaluator
+
+        return CommandEvaluator.from_study(study, workspace)
+    if kind == "recorded":
+        from .recorded import RecordedEvaluator
+
+        return RecordedEvaluator.from_study(study)
+    if kind == "builtin":
+        try:
+            from .builtin import BuiltinEvaluator
+        except ImportError as exc:  # pragma: no cover - only while the model is being built
+            raise EvaluatorError("the built-in aerodynamic model is not available in this installation") from exc
+        return BuiltinEvaluator.from_study(study)
+    raise EvaluatorError(f"unknown evaluator kind '{kind}'")
+
+
+def check_settings(study) -> None:
+    """Validate the ``[evaluator]`` options without running anything.
+
+    Options are read the same way :func:`make_evaluator` reads them, so a
+    misspelt key is caught when the study is loaded.
+    """
+    kind = study.evaluator.kind
+    if kind == "command":
+        from .command import CommandSettings
+
+        CommandSettings.read(study)
+    elif kind == "recorded":
+        from .recorded import RecordedSettings
+
+        RecordedSettings.read(study)
+    elif kind == "builtin":
+        try:
+            from .builtin import check_builtin_settings
+        except ImportError:  # pragma: no cover - only while the model is being built
+            return
+        check_builtin_settings(study)
