@@ -17,11 +17,7 @@ from tqdm import tqdm
 from .errors import DoeError, ResultsError
 from .results import ResultsStore
 
-__all__ = ["EvaluationSummary", "Interrupted", "evaluate_plan", "BATCH_SIZE"]
-
-#: Runs handed to an evaluator at once in serial mode (lets the built-in model vectorise).
-BATCH_SIZE = 32
-
+__all__ = ["EvaluationSummary", "Interrupted", "evaluate_plan"]
 
 class Interrupted(DoeError):
     """Evaluation stopped by the user (Ctrl-C); finished runs are on disk."""
@@ -122,8 +118,9 @@ def evaluate_plan(plan, evaluator, store_path, parameters, jobs: int = 1, retry_
 
         try:
             if jobs == 1:
-                for s in range(0, len(ids), BATCH_SIZE):
-                    chunk_ids, chunk_pts = ids[s:s + BATCH_SIZE], points[s:s + BATCH_SIZE]
+                step = max(1, int(getattr(evaluator, "batch_size", 1)))
+                for s in range(0, len(ids), step):
+                    chunk_ids, chunk_pts = ids[s:s + step], points[s:s + step]
                     for rid, pt, out in zip(chunk_ids, chunk_pts, evaluator.evaluate_many(chunk_ids, chunk_pts)):
                         keep(rid, pt, out)
             else:
