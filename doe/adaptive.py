@@ -43,11 +43,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 from scipy.stats import norm
+from threadpoolctl import threadpool_limits
 
 from .errors import PlanError, SurrogateError
 from .plans import _candidates, _next_ids
 
-__all__ = ["propose_runs", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
+__all__ = ["propose_runs", "run_adaptive", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
 
 AIMS = ("map", "optimum")
 #: Criteria allowed per aim; the first is the default.
@@ -240,7 +241,8 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
     avoid : array_like, shape (a, d), optional
         Other points not to repeat (e.g. failed runs), study units.
     taken_ids : iterable of str
-        Run ids already used; new ids continue their numbering.
+        Run ids already used besides those the surrogates were fitted on
+        (failed and pending runs); new ids continue the numbering.
     seed : int
     n_candidates : int
         Candidate points scored per pick.
@@ -255,6 +257,11 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
         Unknown aim or criterion, a response without goal, or no feasible
         candidate left.
     """
+    with threadpool_limits(limits=1, user_api="blas"):  # small matrices: threads only contend
+        return _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates)
+
+
+def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates) -> Proposal:
     if aim not in AIMS:
         raise SurrogateError(f"aim {aim!r} is not one of {', '.join(AIMS)}")
     criterion = criterion or CRITERIA[aim][0]
@@ -279,7 +286,7 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
     if len(P):
         notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean")
     chosen, picks = [], []
-    ids = _next_ids(list(taken_ids), k)
+    ids = _next_ids(list(sset.run_ids) + list(taken_ids), k)
     for j in range(k):
         if len(C) == 0:
             raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; ask for fewer runs")
@@ -299,3 +306,56 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
     frame = pd.DataFrame(np.clip(space.from_unit(np.array(chosen)), space.lower, space.upper), columns=space.names)
     frame.insert(0, "run_id", ids)
     return Proposal(frame, picks, aim, criterion, response, met, notes)
+
+
+def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int = 2, seed=0,
+                 aim: str = "map", criterion: str | None = None, goal: str = "none", **fit_options):
+    """Sequential design with a cheap evaluator: fit, propose a batch, evaluate, repeat.
+
+    Parameters
+    ----------
+    func : callable
+        ``func(U) -> y`` on points of the unit cube, shape ``(n, d) -> (n,)``.
+    space : Space
+    U0 : ndarray, shape (n0, d)
+        First runs, unit cube.
+    n_add : int
+        Runs to add.
+    batch : int
+        Runs proposed per round.
+    refit_every : int
+        Hyperparameters are estimated again every this many rounds; in
+        between, the surrogate is conditioned on the new runs with its
+        hyperparameters kept (a common economy, no source).
+    seed : int
+    aim, criterion : str
+        As in :func:`propose_runs`.
+    goal : {"none", "minimize", "maximize"}
+        Goal of the response (``aim = "optimum"`` needs one).
+    **fit_options
+        Options of :class:`~doe.surrogate.ResponseSurrogate`.
+
+    Returns
+    -------
+    U : ndarray, shape (n0 + n_add, d)
+    y : ndarray
+    model : ResponseSurrogate
+        Fitted (hyperparameters estimated) on all runs.
+    """
+    from .surrogate import ResponseSurrogate, SurrogateSet
+
+    U = np.asarray(U0, dtype=float)
+    y = np.asarray(func(U), dtype=float)
+    model, rounds = None, 0
+    while len(U) < len(U0) + n_add:
+        if model is None or rounds % refit_every == 0:
+            model = ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)
+        sset = SurrogateSet(space, {"y": model}, {"y": "-"}, {"y": goal}, [], 0.9)
+        k = min(batch, len(U0) + n_add - len(U))
+        new = space.to_unit(propose_runs(sset, k, aim=aim, criterion=criterion, seed=seed + rounds)
+                            .frame[space.names].to_numpy(dtype=float))
+        y_new = np.asarray(func(new), dtype=float)
+        model = model.conditioned(new, y_new)
+        U, y = np.vstack([U, new]), np.concatenate([y, y_new])
+        rounds += 1
+    return U, y, ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)

@@ -71,7 +71,7 @@ from . import gppaths
 from .errors import NotFittedError, SurrogateError
 from .fitreport import hyperparameter_statements, response_report
 
-__all__ = ["ResponseSurrogate", "SurrogateSet", "LooResult", "fit_surrogates", "load_surrogates",
+__all__ = ["ResponseSurrogate", "SurrogateSet", "LooResult", "fit_surrogates", "load_surrogates", "prediction_frame",
            "FAMILIES", "TRENDS", "NOISE_MODES", "SELECTIONS", "LENGTH_SCALE_BOUNDS", "NOISE_BOUNDS",
            "DEFAULT_NUGGET", "FORMAT"]
 
@@ -826,3 +826,28 @@ def _settings(study, options) -> dict:
         raise SurrogateError(f"unknown surrogate option(s) {sorted(unknown)}; known: {', '.join(base)}")
     base.update(options)
     return base
+
+
+def prediction_frame(sset: SurrogateSet, points):
+    """Predictions as a table: ``run_id`` (if given), the parameters, ``<response>_mean``, ``<response>_std``.
+
+    Parameters
+    ----------
+    sset : SurrogateSet
+    points : DataFrame
+        Parameter columns in study units, ``run_id`` optional.
+
+    Returns
+    -------
+    DataFrame
+        Means and standard deviations in each response's unit; the standard
+        deviation is the surrogate's own uncertainty (no observation noise).
+    """
+    import pandas as pd
+
+    names = sset.space.names
+    out = pd.DataFrame(points[[c for c in ["run_id", *names] if c in points.columns]]).reset_index(drop=True)
+    for name, (mean, std) in sset.predict(points[names].to_numpy(dtype=float)).items():
+        out[f"{name}_mean"] = mean
+        out[f"{name}_std"] = std
+    return out
