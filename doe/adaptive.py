@@ -309,7 +309,8 @@ def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed,
 
 
 def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int = 2, seed=0,
-                 aim: str = "map", criterion: str | None = None, goal: str = "none", **fit_options):
+                 aim: str = "map", criterion: str | None = None, goal: str = "none", on_round=None,
+                 **fit_options):
     """Sequential design with a cheap evaluator: fit, propose a batch, evaluate, repeat.
 
     Parameters
@@ -332,6 +333,10 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
         As in :func:`propose_runs`.
     goal : {"none", "minimize", "maximize"}
         Goal of the response (``aim = "optimum"`` needs one).
+    on_round : callable, optional
+        ``on_round(model, U, y) -> bool`` is called with the surrogate used
+        for each round's proposal and finally with the refitted last one; a
+        true return value stops the loop early.
     **fit_options
         Options of :class:`~doe.surrogate.ResponseSurrogate`.
 
@@ -350,6 +355,8 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
     while len(U) < len(U0) + n_add:
         if model is None or rounds % refit_every == 0:
             model = ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)
+        if on_round is not None and on_round(model, U, y):
+            return U, y, model
         sset = SurrogateSet(space, {"y": model}, {"y": "-"}, {"y": goal}, [], 0.9)
         k = min(batch, len(U0) + n_add - len(U))
         new = space.to_unit(propose_runs(sset, k, aim=aim, criterion=criterion, seed=seed + rounds)
@@ -358,4 +365,7 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
         model = model.conditioned(new, y_new)
         U, y = np.vstack([U, new]), np.concatenate([y, y_new])
         rounds += 1
-    return U, y, ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)
+    model = ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)
+    if on_round is not None:
+        on_round(model, U, y)
+    return U, y, model
