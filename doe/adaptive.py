@@ -52,11 +52,17 @@ __all__ = ["propose_runs", "run_adaptive", "Proposal", "Pick", "accuracy_status"
 
 AIMS = ("map", "optimum")
 #: Criteria allowed per aim; the first is the default.
-CRITERIA = {"map": ("ivr", "variance"), "optimum": ("ei",)}
+CRITERIA = {"map": ("ivr", "variance", "eigf"), "optimum": ("ei",)}
 #: No proposal is closer than this to an existing, pending or picked run (Euclidean, unit cube).
 MIN_DISTANCE = 0.01
 #: Candidate points scored per pick.
 N_CANDIDATES = 2048
+#: For aim "map", candidates are scored with length scales capped at this fraction of each range, so
+#: that a parameter the first runs make look irrelevant is still explored (None: no cap).
+MAP_LENGTH_SCALE_CAP = 1.0
+#: Expected improvement below this fraction of the spread of the runs counts as none: the pick
+#: then falls back to the largest predictive variance (common practice, no source).
+EI_NEGLIGIBLE = 1e-6
 #: Points over which the integrated variance is averaged.
 N_REFERENCE = 512
 _SOURCES = {
@@ -114,7 +120,7 @@ class Proposal:
 
 def accuracy_status(sset) -> tuple:
     """The stopping rule: (met, sentence). Met when ``q2_loo >= target_q2`` for every response."""
-    q2 = {name: m.loo_.q2 for name, m in sset.models.items()}
+    q2 = {name: m.loo_.q2 for name, m in sset.models.items() if not m.constant_}
     short = [f"{n} ({v:.3f})" for n, v in q2.items() if not v >= sset.target_q2]
     if not short:
         shown = ", ".join(f"{n} {v:.3f}" for n, v in q2.items())
@@ -145,7 +151,7 @@ def _variance(models, sset, C, R, response):
         top = max(scaled, key=lambda n: scaled[n][i])
         mean, std = parts[top][0][i], parts[top][1][i]
         return (f"largest predictive uncertainty left: {top} = {mean:.4g} +/- {std:.3g} {sset.units[top]} here "
-                f"({std / models[top].y_std_:.0%} of the spread of the runs)")
+                f"({std / models[top].y_std_:.1%} of the spread of the runs)")
 
     return score, why
 
@@ -191,7 +197,27 @@ def _ei(models, sset, C, R, response):
     return ei, why
 
 
-_CRITERIA = {"ivr": _ivr, "variance": _variance, "ei": _ei}
+def _eigf(models, sset, C, R, response):
+    score = np.zeros(len(C))
+    parts = {}
+    for n, m in models.items():
+        mean, std = m.predict(C, return_std=True)
+        d2 = ((C[:, None, :] - m.X_unit_[None, :, :]) ** 2).sum(-1)
+        near = m.y_[np.argmin(d2, axis=1)]
+        # expected improvement for global fit: (mu(x) - y(nearest run))^2 + var(x)  (Lam 2008)
+        score += ((mean - near) ** 2 + std**2) / m.y_std_**2
+        parts[n] = (mean, std, near)
+
+    def why(i):
+        bits = [f"{n} = {mu[i]:.4g} +/- {sd[i]:.3g} {sset.units[n]} (nearest run: {ne[i]:.4g})"
+                for n, (mu, sd, ne) in parts.items()]
+        return ("largest expected improvement for global fit: the response is predicted to change most from the "
+                "nearest run, or is least certain, here: " + "; ".join(bits))
+
+    return score, why
+
+
+_CRITERIA = {"ivr": _ivr, "variance": _variance, "ei": _ei, "eigf": _eigf}
 
 
 def _local_candidates(sset, response, rng, n_each=128, spread=0.05):
@@ -290,10 +316,19 @@ def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed,
     for j in range(k):
         if len(C) == 0:
             raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; ask for fewer runs")
-        score, why = _CRITERIA[criterion](models, sset, C, R, response)
+        if aim == "map" and MAP_LENGTH_SCALE_CAP is not None:
+            score, _ = _CRITERIA[criterion]({n: m.capped(MAP_LENGTH_SCALE_CAP) for n, m in models.items()},
+                                            sset, C, R, response)
+            why = _CRITERIA[criterion](models, sset, C, R, response)[1]
+        else:
+            score, why = _CRITERIA[criterion](models, sset, C, R, response)
+        prefix = ""
+        if criterion == "ei" and score.max() <= EI_NEGLIGIBLE * models[response].y_std_:
+            score, why = _variance({response: models[response]}, sset, C, R, response)
+            prefix = "expected improvement is negligible everywhere; instead: "
         i = int(np.argmax(score))
         x = C[i]
-        reason = why(i)
+        reason = prefix + why(i)
         if j:
             reason += f" (assuming the {j} run(s) picked before return the surrogate's mean)"
         pred = {n: m.predict(x[None], return_std=True) for n, m in models.items()}
