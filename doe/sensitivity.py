@@ -254,7 +254,8 @@ def _estimate(problem: dict, y: np.ndarray, second_order: bool, n_resamples: int
                      s2, s2_var, float(np.mean(y)), float(np.std(y)))
 
 
-def _names_of(value, responses):
+def output_names(value, responses=None) -> list:
+    """Names of a model's outputs: ``responses``, a dict's keys, else ``y`` or ``y0, y1, ...``."""
     if responses is not None:
         return list(responses)
     if isinstance(value, dict):
@@ -287,7 +288,8 @@ def _as_dict(value, responses: list, n: int) -> dict:
     return out
 
 
-def _evaluate(model, X: np.ndarray, responses: list) -> dict:
+def evaluate_model(model, X: np.ndarray, responses: list) -> dict:
+    """``{response: (n,) array}`` of ``model`` at ``X``, in chunks of 16384 points, checked finite."""
     parts = [_as_dict(model(X[s:s + _CHUNK]), responses, len(X[s:s + _CHUNK])) for s in range(0, len(X), _CHUNK)]
     return {r: np.concatenate([p[r] for p in parts]) for r in responses}
 
@@ -360,7 +362,7 @@ def _mean_route(model, inputs, responses, cfg: _Settings, n_start: int, fixed_n:
     step = cfg.step(len(inputs.varying))
     while True:
         X = cfg.sample(inputs, n_base, cfg.sample_seed)
-        new = _evaluate(model, X[done:], responses)  # earlier rows are unchanged: reuse them
+        new = evaluate_model(model, X[done:], responses)  # earlier rows are unchanged: reuse them
         Y = new if Y is None else {r: np.concatenate([Y[r], new[r]]) for r in responses}
         done = len(X)
         estimates = {r: cfg.estimate(inputs, Y[r]) for r in responses}
@@ -396,7 +398,7 @@ def _pair_diffs(a: np.ndarray) -> np.ndarray:
 
 def _path_route(model, paths, inputs, responses, cfg: _Settings, n_base: int, n_paths: int) -> dict:
     X = cfg.sample(inputs, n_base, cfg.path_sample_seed)
-    mean = _evaluate(model, X, responses)
+    mean = evaluate_model(model, X, responses)
     draws = _as_paths(paths(X, n_paths, cfg.path_seed), responses, n_paths, len(X))
     out = {}
     for r in responses:
@@ -554,7 +556,7 @@ def sobol_indices(model, inputs: InputDistribution, *, paths=None, responses=Non
     n_start = _power_of_two(base_samples, "base_samples") if fixed_n else min(
         1024 if paths is not None else 256, max_base)
     if responses is None:
-        responses = _names_of(model(cfg.sample(inputs, 8, cfg.sample_seed)[:1]), None)
+        responses = output_names(model(cfg.sample(inputs, 8, cfg.sample_seed)[:1]), None)
     responses = list(responses)
 
     spreads, n_p = {}, None
