@@ -111,10 +111,98 @@ def _cmd_evaluate(args):
     print(f"wrote {out}")
 
 
+def _add_results_options(p):
+    """Options shared by the verbs that fit surrogates to a results CSV."""
+    p.add_argument("study", type=Path, help="study file (TOML)")
+    p.add_argument("--results", type=Path, required=True, help="results CSV")
+    p.add_argument("--seed", type=int, help="seed (default: the study's [plan] seed)")
+    p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
+
+
+def _add_fit(sub):
+    p = sub.add_parser("fit", help="fit a Gaussian-process surrogate per response, with leave-one-out checks",
+                       description="Fit one Gaussian-process surrogate per response to the ok runs of a results CSV. "
+                                   "Writes the surrogate folder (model.json, data.npz: no code, no pickle) and "
+                                   "fit.json with q2_loo, rmse_loo and a verdict per response.")
+    _add_results_options(p)
+    p.add_argument("--out", type=Path, help="surrogate folder (default: reports/<study name>/surrogate/)")
+    p.add_argument("--predict", type=Path, metavar="POINTS_CSV",
+                   help="also predict at these points (parameter columns, run_id optional)")
+    p.add_argument("--predict-out", type=Path, metavar="CSV",
+                   help="predictions CSV (default: <surrogate folder>/predictions.csv)")
+    p.set_defaults(func=_cmd_fit)
+
+
+def _cmd_fit(args):
+    from .results import read_points, read_results, write_plan
+    from .study import load_study
+    from .surrogate import fit_surrogates, prediction_frame
+
+    study = load_study(args.study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    out = args.out or study.default_output / "surrogate"
+    sset.save(out)
+    for name, rep in sset.fit_report().items():
+        _say(f"{name}: q2_loo {rep['q2_loo'] if rep['q2_loo'] is None else round(rep['q2_loo'], 3)}, "
+             f"rmse_loo {rep['rmse_loo']:.3g} {rep['unit']}, {rep['kernel']}, noise {rep['noise']}: "
+             f"{rep['verdict']} ({rep['verdict_reason']})")
+        for note in rep["statements"]:
+            _say(f"  note: {note}")
+    print(f"wrote {out}/fit.json")
+    if args.predict is not None:
+        target = args.predict_out or out / "predictions.csv"
+        write_plan(prediction_frame(sset, read_points(args.predict, study)), target)
+        print(f"wrote {target}")
+
+
+def _add_next(sub):
+    p = sub.add_parser("next", help="propose the next runs from the surrogates",
+                       description="Fit the surrogates and propose K new runs inside the bounds and constraints. "
+                                   "aim 'map': integrated variance reduction (or --criterion variance); aim "
+                                   "'optimum': expected improvement of a response with a goal. Writes a plan CSV "
+                                   "and, beside it, <name>.why.json saying why each run was picked.")
+    _add_results_options(p)
+    p.add_argument("--runs", type=int, required=True, help="number of runs to propose")
+    p.add_argument("--aim", choices=("map", "optimum"), default="map", help="map the space, or seek an optimum")
+    p.add_argument("--criterion", choices=("ivr", "variance", "ei"), help="criterion (default: ivr for map, ei for optimum)")
+    p.add_argument("--response", help="response to optimise with --aim optimum (default: the first with a goal)")
+    p.add_argument("--pending", type=Path, metavar="PLAN_CSV", help="runs planned but not evaluated yet")
+    p.add_argument("--out", type=Path, help="plan CSV (default: reports/<study name>/next.csv)")
+    p.set_defaults(func=_cmd_next)
+
+
+def _cmd_next(args):
+    from .adaptive import propose_runs
+    from .results import read_plan, read_results, write_plan
+    from .study import load_study
+    from .surrogate import fit_surrogates
+
+    study = load_study(args.study)
+    seed = args.seed if args.seed is not None else study.plan.seed
+    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    pending = read_plan(args.pending, study) if args.pending is not None else None
+    sset = fit_surrogates(study, results, seed=seed)
+    taken = list(results.frame["run_id"]) + (list(pending["run_id"]) if pending is not None else [])
+    proposal = propose_runs(sset, args.runs, aim=args.aim, criterion=args.criterion, response=args.response,
+                            pending=None if pending is None else pending[study.space.names].to_numpy(float),
+                            avoid=results.failed[study.space.names].to_numpy(float), taken_ids=taken, seed=seed)
+    out = args.out or study.default_output / "next.csv"
+    write_plan(proposal.frame, out)
+    _write_json(proposal.record(), out.with_suffix(".why.json"))
+    for note in proposal.notes:
+        _say(f"note: {note}")
+    for pick in proposal.picks:
+        _say(f"{pick.run_id}: {pick.reason}")
+    print(f"wrote {out}")
+
+
 #: Every verb: (name, function adding its parser). Extend here.
 VERBS = [
     ("plan", _add_plan),
     ("evaluate", _add_evaluate),
+    ("fit", _add_fit),
+    ("next", _add_next),
 ]
 
 

@@ -32,7 +32,7 @@ from .errors import ResultsError, StoreLockedError, where
 from .evaluators.base import Outcome
 from .evaluators.command import safe_run_id
 
-__all__ = ["read_plan", "read_results", "write_plan", "ResultsTable", "ResultsStore",
+__all__ = ["read_plan", "read_points", "read_results", "write_plan", "ResultsTable", "ResultsStore",
            "STATUS_VALUES", "META_COLUMNS"]
 
 STATUS_VALUES = ("ok", "failed")
@@ -188,6 +188,23 @@ def read_plan(path, study) -> pd.DataFrame:
     _check_bounds(study.space, X, rows, accept_outside=False)
     frame = pd.DataFrame(X, columns=study.space.names)
     frame.insert(0, "run_id", ids)
+    return frame
+
+
+def read_points(path, study) -> pd.DataFrame:
+    """Read points to predict at: the parameter columns, ``run_id`` optional.
+
+    Points outside the bounds are kept with a warning (the surrogate then
+    extrapolates). Returns a DataFrame with ``run_id`` (when given) and one
+    float column per parameter, study units.
+    """
+    rows = _read_rows(Path(path))
+    _require_columns(rows, study.space.names, "parameter")
+    X = _matrix(rows, study.space.names, allow_empty=False)
+    _check_bounds(study.space, X, rows, accept_outside=True)
+    frame = pd.DataFrame(X, columns=study.space.names)
+    if "run_id" in rows.header:
+        frame.insert(0, "run_id", _run_ids(rows))
     return frame
 
 

@@ -41,7 +41,7 @@ from .errors import StudyError, where
 from .space import LinearConstraint, Parameter, Space
 from .tables import NAME_PATTERN, Source, Table
 
-__all__ = ["Response", "PlanSettings", "EvaluatorSettings", "Study", "load_study", "read_study_text",
+__all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "Study", "load_study", "read_study_text",
            "RESERVED_COLUMNS", "GOALS", "PLAN_METHODS", "SensitivitySettings"]
 
 #: Column names a parameter or response may not take.
@@ -97,6 +97,43 @@ class PlanSettings:
     runs: int | None = None
     seed: int = 0
     method: str = "lhs"
+
+
+@dataclass(frozen=True)
+class FitSettings:
+    """``[fit]``: how surrogates are fitted (see :mod:`doe.surrogate`).
+
+    Attributes
+    ----------
+    kernel : {"auto", "sqexp", "matern52", "matern32"}
+        Kernel family; ``auto`` picks one per response.
+    trend : {"auto", "constant", "linear"}
+    noise : {"auto", "learn", "fixed"}
+        ``auto``: learned when any run comes from outside ``exact_sources`` or
+        replicated points disagree; otherwise a small fixed nugget.
+    restarts : int
+        Extra optimiser starts per kernel.
+    nugget : float
+        Fixed diagonal term of a deterministic evaluator, relative to the
+        response's variance.
+    selection : {"loo", "likelihood"}
+        Kernel choice by leave-one-out error or marginal likelihood.
+    target_q2 : float
+        Accuracy wanted: ``q2_loo`` of every response at least this (the
+        stopping rule of ``doe next``).
+    exact_sources : tuple of str
+        Values of the results' ``source`` column that come from a
+        deterministic evaluator.
+    """
+
+    kernel: str = "auto"
+    trend: str = "auto"
+    noise: str = "auto"
+    restarts: int = 3
+    nugget: float = 1e-6
+    selection: str = "loo"
+    target_q2: float = 0.9
+    exact_sources: tuple = ("builtin", "command")
 
 
 @dataclass(frozen=True)
@@ -163,6 +200,7 @@ class Study:
     evaluator: EvaluatorSettings
     plan: PlanSettings = PlanSettings()
     description: str = ""
+    fit: FitSettings = FitSettings()
     sensitivity: SensitivitySettings = SensitivitySettings()
 
     @property
@@ -234,7 +272,7 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
         raise StudyError(f"{where(path)}: not valid TOML ({exc})") from exc
     source = Source(path, text)
     top = Table(data, source, "")
-    known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "sensitivity")
+    known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "fit", "sensitivity")
     unknown = [k for k in data if k not in known]
     if unknown:
         line = source.line_of(unknown[0]) or source.line_of(None, unknown[0])
@@ -261,9 +299,10 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     evaluator = _read_evaluator(_one_table(top, "evaluator", required=True))
     plan = _read_plan(_one_table(top, "plan"), len(parameters))
     space = Space(parameters, constraints)
+    fit = _read_fit(_one_table(top, "fit"))
     sensitivity = _read_sensitivity(_one_table(top, "sensitivity"), parameters)
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
-                  plan=plan, description=description, sensitivity=sensitivity)
+                  plan=plan, description=description, fit=fit, sensitivity=sensitivity)
     from .evaluators import check_settings  # late import: evaluators build on studies
 
     check_settings(study)
@@ -387,6 +426,20 @@ def _read_plan(t: Table, dim: int) -> PlanSettings:
     method = t.take("method", str, default="lhs", choices=PLAN_METHODS)
     t.finish()
     return PlanSettings(runs=runs, seed=seed, method=method)
+
+
+def _read_fit(t: Table) -> FitSettings:
+    kernel = t.take("kernel", str, default="auto", choices=("auto", "sqexp", "matern52", "matern32"))
+    trend = t.take("trend", str, default="auto", choices=("auto", "constant", "linear"))
+    noise = t.take("noise", str, default="auto", choices=("auto", "learn", "fixed"))
+    restarts = t.take("restarts", int, default=3, check=lambda v: 0 <= v <= 50, why="must be between 0 and 50")
+    nugget = t.take("nugget", float, default=1e-6, check=lambda v: 0 < v < 1, why="must be in (0, 1)")
+    selection = t.take("selection", str, default="loo", choices=("loo", "likelihood"))
+    target = t.take("target_q2", float, default=0.9, check=lambda v: 0 < v < 1, why="must be in (0, 1)")
+    exact = t.take("exact_sources", list, default=["builtin", "command"],
+                   check=lambda v: all(isinstance(x, str) for x in v), why="must be a list of strings")
+    t.finish()
+    return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact))
 
 
 def _read_sensitivity(t: Table, parameters) -> SensitivitySettings:
