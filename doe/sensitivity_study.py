@@ -28,12 +28,38 @@ from .screening import ScreeningResult, morris_screening
 from .sensitivity import SobolResult, sobol_indices
 from .sensitivity_report import to_json
 
-__all__ = ["nominal_point", "study_inputs", "surrogate_callables", "evaluator_model", "study_sensitivity",
+__all__ = ["parse_around", "nominal_point", "study_inputs", "surrogate_callables", "evaluator_model", "study_sensitivity",
            "study_sensitivity_json", "study_screening", "DIRECT_MAX_EVALUATIONS"]
 
 #: Default bound on evaluator calls of the direct route.
 DIRECT_MAX_EVALUATIONS = 50_000
 _LABEL_CHARS = 40  # a description this short reads as a name in a sentence
+
+
+def parse_around(tokens, study):
+    """``--around`` words as :func:`study_inputs` takes them: None, ``"nominal"`` or ``{name: value}``.
+
+    Parameters
+    ----------
+    tokens : list of str or None
+        ``["nominal"]`` or ``["flap_angle=12", "wing_aoa=8"]`` (study units).
+    study : Study
+    """
+    if not tokens:
+        return None
+    if tokens == ["nominal"]:
+        return "nominal"
+    point = {}
+    for token in tokens:
+        name, sep, value = token.partition("=")
+        if not sep or name not in study.space.names:
+            raise SensitivityError(f"--around: {token!r} is not NAME=VALUE with a parameter name "
+                                   f"({', '.join(study.space.names)}), nor 'nominal'")
+        try:
+            point[name] = float(value)
+        except ValueError:
+            raise SensitivityError(f"--around: {value!r} in {token!r} is not a number") from None
+    return point
 
 
 def nominal_point(study) -> dict:
