@@ -87,6 +87,9 @@ def _add_evaluate(sub):
     p.add_argument("--plan", type=Path, required=True, help="plan CSV (run_id and one column per parameter)")
     p.add_argument("--out", type=Path, help="results CSV (default: reports/<study name>/results.csv)")
     p.add_argument("--jobs", type=int, default=1, help="runs at once on local processes (default 1)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run on a Dask cluster: its scheduler address (tcp://host:8786), or 'local' for a "
+                        "cluster of --jobs local processes (needs pip install 'doe[cluster]')")
     p.add_argument("--retry-failed", action="store_true", help="run again the runs stored as failed")
     p.add_argument("--no-progress", action="store_true", help="no progress bar")
     p.set_defaults(func=_cmd_evaluate)
@@ -103,7 +106,8 @@ def _cmd_evaluate(args):
     out = args.out or study.default_output / "results.csv"
     evaluator = make_evaluator(study, workspace=out.parent / "cases")
     summary = evaluate_plan(plan, evaluator, out, study.space.names, jobs=args.jobs,
-                            retry_failed=args.retry_failed, progress=not args.no_progress)
+                            retry_failed=args.retry_failed, progress=not args.no_progress,
+                            scheduler=args.scheduler)
     _say(summary.line(out))
     if summary.failed:
         _say(f"note: {summary.failed} run(s) failed; their reasons are in the 'message' column; "

@@ -62,17 +62,15 @@ def _read_rows(path: Path) -> _Rows:
     if size > MAX_FILE_BYTES:
         raise ResultsError(f"{path}: the file is {size / 2**20:.0f} MiB; the limit is {MAX_FILE_BYTES / 2**20:.0f} MiB")
     raw = path.read_bytes()
-    if b"\x00" in raw:
-        raise ResultsError(f"{path}: holds NUL bytes; is it a text CSV file?")
-    for encoding in ("utf-8-sig", "utf-16") if raw[:2] in (b"\xff\xfe", b"\xfe\xff") else ("utf-8-sig",):
-        try:
-            text = raw.decode(encoding)
-            break
-        except UnicodeDecodeError as exc:
-            bad = exc
-    else:
-        line = raw[: bad.start].count(b"\n") + 1
-        raise ResultsError(f"{where(path, line)}: not UTF-8 text (save the file as UTF-8 CSV)")
+    encoding = "utf-16" if raw[:2] in (b"\xff\xfe", b"\xfe\xff") else "utf-8-sig"
+    try:
+        text = raw.decode(encoding)
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise ResultsError(f"{where(path, line)}: not UTF-8 text (save the file as UTF-8 CSV)") from None
+    if "\x00" in text:
+        raise ResultsError(f"{where(path, text[: text.index(chr(0))].count(chr(10)) + 1)}: holds NUL bytes; "
+                           "is it a text CSV file?")
     lines = text.splitlines()
     if not lines or not lines[0].strip():
         raise ResultsError(f"{path}: empty file, or the first line (the header) is blank")
