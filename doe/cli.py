@@ -202,7 +202,7 @@ def _cmd_next(args):
 
 
 def _add_sensitivity(sub):
-    p = sub.add_parser("sensitivity", help="which knobs matter: Sobol indices with 95 % intervals",
+    p = sub.add_parser("sensitivity", help="which knobs matter: Sobol indices with 95 %% intervals",
                        description="First-order and total Sobol indices per response and parameter, on surrogates "
                                    "fitted to the results (intervals from the estimator and the surrogate), or "
                                    "straight from a cheap evaluator with --direct. --screen runs Morris screening "

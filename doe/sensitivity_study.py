@@ -146,10 +146,10 @@ def evaluator_model(evaluator, names, responses):
 
 def _study_model(study, evaluator, what: str):
     """The study's evaluator (built unless given) as a model callable."""
-    if study.evaluator.kind == "recorded":
-        raise SensitivityError(f"{study.name}: {what} needs an evaluator that can run new points; "
-                               "a 'recorded' evaluator cannot (use the surrogate route)")
     if evaluator is None:
+        if study.evaluator.kind == "recorded":
+            raise SensitivityError(f"{study.name}: {what} needs an evaluator that can run new points; "
+                                   "a 'recorded' evaluator cannot (use the surrogate route)")
         from .evaluators import make_evaluator
 
         evaluator = make_evaluator(study)
