@@ -137,6 +137,8 @@ def describe(res: ResponseIndices, what: str | None = None, labels: dict | None 
         text += f" The data do not settle the order of {_join(pairs, sep='; ')}{more}."
     if unit:
         text += f" Its standard deviation over the inputs is {res.std:.3g} {unit}."
+    if res.notes:
+        text += " Caution: " + "; ".join(res.notes) + "."
     return text
 
 
