@@ -215,6 +215,8 @@ def _add_sensitivity(sub):
                    help="scatter (tolerances) around 'nominal' or a setting NAME=VALUE ... instead of the bounds")
     p.add_argument("--second-order", action="store_true", help="also estimate second-order indices")
     p.add_argument("--base-samples", type=int, metavar="N", help="Saltelli base sample, a power of two (default: chosen)")
+    p.add_argument("--max-evaluations", type=int, metavar="K",
+                   help="--direct: at most K evaluator calls while the base sample grows (default 20000)")
     p.add_argument("--screen", action="store_true", help="Morris screening with the evaluator (many parameters)")
     p.add_argument("--trajectories", type=int, default=20, help="Morris trajectories with --screen (default 20)")
     p.add_argument("--out", type=Path, help="JSON to write (default: reports/<study name>/sensitivity.json "
@@ -243,7 +245,7 @@ def _cmd_sensitivity(args):
     results = read_results(args.results, study, accept_outside=args.accept_outside) if args.results else None
     result = ss.study_sensitivity(study, results, direct=args.direct, around=ss.parse_around(args.around, study),
                                   second_order=args.second_order or None, base_samples=args.base_samples,
-                                  seed=args.seed, surrogates=surrogates)
+                                  seed=args.seed, surrogates=surrogates, max_evaluations=args.max_evaluations)
     data = ss.study_sensitivity_json(study, result)
     out = args.out or study.default_output / "sensitivity.json"
     _write_json(data, out)

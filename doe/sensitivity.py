@@ -567,6 +567,11 @@ def sobol_indices(model, inputs: InputDistribution, *, paths=None, responses=Non
     fixed_n = base_samples is not None
     n_start = _power_of_two(base_samples, "base_samples") if fixed_n else min(
         1024 if paths is not None else 256, max_base)
+    if max_evaluations is not None:
+        step = cfg.step(len(inputs.varying))
+        _check_int(max_evaluations, 8 * step, "max_evaluations")
+        if not fixed_n:
+            n_start = min(n_start, 2 ** int(math.log2(max_evaluations // step)))
     if responses is None:
         responses = output_names(model(cfg.sample(inputs, 8, cfg.sample_seed)[:1]), None)
     responses = list(responses)

@@ -266,3 +266,9 @@ def test_bad_input_raises_our_errors():
         InputDistribution.around(space, {"x1": 0.5})
     with pytest.raises(SensitivityError, match="no parameter has a spread"):
         InputDistribution.around(space, [0.5, 0.5], scale=[0, 0])
+
+
+def test_evaluation_budget_is_kept():
+    f = tf.get("ishigami")
+    result = sobol_indices(f, InputDistribution.uniform(f.space()), max_evaluations=3000, seed=0)
+    assert result.evaluations <= 3000 and result.base_samples == 512 and not result.reached

@@ -157,7 +157,7 @@ def test_cli_writes_documented_json(study, tmp_path, capsys):
     pairs = {tuple(e["parameters"]): e["S2"] for e in meta["responses"]["y"]["second_order"]}
     assert pairs[("x2", "x3")] == pytest.approx(exact_indices()[1][1], abs=0.05)  # S2_23 = ST_2 here
     printed = capsys.readouterr().out
-    assert "wing angle about 43 %" in printed and "mostly through interaction with x" in printed and "m^2" in printed
+    assert "x1 about 43 %" in printed and "mostly through interaction with x" in printed and "m^2" in printed
 
 
 def test_cli_bad_around_is_one_line(study, tmp_path, capsys):
