@@ -203,6 +203,8 @@ class SobolResult:
     seed : int
     path_base_samples, n_paths : int or None
         Size of the posterior-path sample (surrogate route).
+    dropped_rows : int
+        Base rows left out because the model failed at one of their points.
     """
 
     responses: dict
@@ -216,6 +218,7 @@ class SobolResult:
     seed: int
     path_base_samples: int | None = None
     n_paths: int | None = None
+    dropped_rows: int = 0
 
     def __getitem__(self, response: str) -> ResponseIndices:
         try:
@@ -271,8 +274,8 @@ def output_names(value, responses=None) -> list:
     return ["y"] if arr.ndim == 1 else [f"y{i}" for i in range(arr.shape[1])]
 
 
-def _as_dict(value, responses: list, n: int) -> dict:
-    """Model output as ``{response: (n,) array}``, checked."""
+def _as_dict(value, responses: list, n: int, allow_nan: bool = False) -> dict:
+    """Model output as ``{response: (n,) array}``, checked (NaN marks a failed point when allowed)."""
     if isinstance(value, dict):
         missing = [r for r in responses if r not in value]
         if missing:
@@ -288,16 +291,20 @@ def _as_dict(value, responses: list, n: int) -> dict:
     for r, y in out.items():
         if y.shape != (n,):
             raise SensitivityError(f"the model returned {y.size} values of '{r}' for {n} points")
-        bad = ~np.isfinite(y)
+        bad = np.isinf(y) if allow_nan else ~np.isfinite(y)
         if bad.any():
             raise SensitivityError(f"the model returned {int(bad.sum())} non-finite value(s) of '{r}' out of {n}; "
                                    "Sobol estimation needs every point of its sample (failed runs cannot be dropped)")
     return out
 
 
-def evaluate_model(model, X: np.ndarray, responses: list) -> dict:
-    """``{response: (n,) array}`` of ``model`` at ``X``, in chunks of 16384 points, checked finite."""
-    parts = [_as_dict(model(X[s:s + _CHUNK]), responses, len(X[s:s + _CHUNK])) for s in range(0, len(X), _CHUNK)]
+def evaluate_model(model, X: np.ndarray, responses: list, allow_nan: bool = False) -> dict:
+    """``{response: (n,) array}`` of ``model`` at ``X``, in chunks of 16384 points, checked finite.
+
+    With ``allow_nan``, NaN is accepted as the mark of a failed point (infinity never is).
+    """
+    parts = [_as_dict(model(X[s:s + _CHUNK]), responses, len(X[s:s + _CHUNK]), allow_nan)
+             for s in range(0, len(X), _CHUNK)]
     return {r: np.concatenate([p[r] for p in parts]) for r in responses}
 
 
@@ -358,28 +365,43 @@ def _worst_ratio(estimates: dict, targets: dict) -> float:
     return worst
 
 
+def _complete_rows(Y: dict, step: int, max_failed: float) -> np.ndarray:
+    """Base rows whose every point has a value; raise when more than ``max_failed`` of them lack one."""
+    rows = np.all([np.all(np.isfinite(y.reshape(-1, step)), axis=1) for y in Y.values()], axis=0)
+    dropped = int((~rows).sum())
+    if dropped > max_failed * len(rows):
+        raise SensitivityError(f"the model failed (NaN) at points of {dropped} of {len(rows)} Saltelli base rows; "
+                               f"at most {max_failed:.1%} may be dropped, since Sobol estimation needs complete "
+                               "rows of its sample")
+    return rows
+
+
 def _mean_route(model, inputs, responses, cfg: _Settings, n_start: int, fixed_n: bool, targets: dict,
-                max_base: int, max_evals: int | None):
+                max_base: int, max_evals: int | None, max_failed: float):
     """Indices of ``model``; the base sample grows until every estimator half-width meets its target.
 
     The half-width falls as ``1 / sqrt(N)``, so the next ``N`` is the power of
-    two that this predicts to be enough (at least twice the current one).
+    two that this predicts to be enough (at least twice the current one). A
+    base row with a failed point is dropped whole (its ``d + 2`` points), which
+    keeps the row structure SALib relies on.
     """
     n_base, Y, done = n_start, None, 0
     step = cfg.step(len(inputs.varying))
     while True:
         X = cfg.sample(inputs, n_base, cfg.sample_seed)
-        new = evaluate_model(model, X[done:], responses)  # earlier rows are unchanged: reuse them
+        new = evaluate_model(model, X[done:], responses, max_failed > 0)  # earlier rows are unchanged: reuse them
         Y = new if Y is None else {r: np.concatenate([Y[r], new[r]]) for r in responses}
         done = len(X)
-        estimates = {r: cfg.estimate(inputs, Y[r]) for r in responses}
+        rows = _complete_rows(Y, step, max_failed)
+        estimates = {r: cfg.estimate(inputs, Y[r].reshape(-1, step)[rows].ravel()) for r in responses}
+        dropped = int((~rows).sum())
         ratio = _worst_ratio(estimates, targets)
         if fixed_n or ratio <= 1.0:
-            return estimates, n_base, done, ratio <= 1.0
+            return estimates, n_base, done, ratio <= 1.0, dropped
         wanted = max(2 * n_base, 2 ** math.ceil(math.log2(n_base * ratio**2)))
         limit = max_base if max_evals is None else min(max_base, 2 ** int(math.log2(max(max_evals // step, 1))))
         if n_base >= limit:
-            return estimates, n_base, done, False
+            return estimates, n_base, done, False, dropped
         n_base = min(wanted, limit)
 
 
@@ -489,7 +511,8 @@ def _notes(res: ResponseIndices, est: _Estimate, surrogate: bool) -> list:
 def sobol_indices(model, inputs: InputDistribution, *, paths=None, responses=None, base_samples: int | None = None,
                   target_conf: float = 0.01, max_base_samples: int = 2**15, max_evaluations: int | None = None,
                   second_order: bool = False, n_paths: int = 64, path_base_samples: int | None = None,
-                  max_path_points: int = 1500, n_resamples: int = 100, seed=0) -> SobolResult:
+                  max_path_points: int = 1500, n_resamples: int = 100, max_failed_share: float = 0.0,
+                  seed=0) -> SobolResult:
     """First-order and total Sobol indices with 95 % intervals from the estimator and the surrogate.
 
     Parameters
@@ -531,6 +554,11 @@ def sobol_indices(model, inputs: InputDistribution, *, paths=None, responses=Non
         Cholesky factor of that size takes well under a second).
     n_resamples : int
         Bootstrap resamples.
+    max_failed_share : float
+        Share of Saltelli base rows that may be dropped because the model
+        returned NaN (a failed run) at one of their points; 0 by default (any
+        failure is an error). A dropped row takes its ``d + 2`` points with it,
+        so the indices are those of the inputs where the model runs.
     seed : int or numpy.random.Generator
         Seed of the samples, the bootstrap and the paths; same seed, same numbers.
 
@@ -584,12 +612,19 @@ def sobol_indices(model, inputs: InputDistribution, *, paths=None, responses=Non
             16, 2 ** int(math.floor(math.log2(max(max_path_points // step, 1)))))
         spreads = _path_route(model, paths, inputs, responses, cfg, n_p, n_paths)
     targets = {r: _targets(target_conf, spreads.get(r), len(inputs.varying)) for r in responses}
-    estimates, n_base, n_evals, reached = _mean_route(model, inputs, responses, cfg, n_start, fixed_n, targets,
-                                                      max_base, max_evaluations)
+    if not (isinstance(max_failed_share, (int, float)) and 0 <= max_failed_share < 0.5):
+        raise SensitivityError(f"max_failed_share must be in [0, 0.5), got {max_failed_share!r}")
+    estimates, n_base, n_evals, reached, dropped = _mean_route(model, inputs, responses, cfg, n_start, fixed_n,
+                                                               targets, max_base, max_evaluations,
+                                                               float(max_failed_share))
     out = {r: _combine(r, inputs, estimates[r], spreads.get(r), cfg.second_order) for r in responses}
+    if dropped:
+        for res in out.values():
+            res.notes.append(f"{dropped} of {n_base} base rows were left out because the model failed at one of "
+                             "their points: the indices describe the inputs where the model runs")
     return SobolResult(out, inputs, "surrogate" if paths is not None else "direct", n_base, n_evals,
                        float(target_conf), reached, cfg.second_order, _seed_value(seed),
-                       n_p, n_paths if paths is not None else None)
+                       n_p, n_paths if paths is not None else None, dropped)
 
 
 def _targets(target_conf: float, spread, k: int) -> tuple:

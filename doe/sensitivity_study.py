@@ -14,7 +14,8 @@ direct (``direct=True``)
     The study's evaluator is called at every point of the Saltelli sample:
     only for a cheap evaluator (the built-in model). Its indices carry only
     the estimator's uncertainty and serve as a cross-check of the surrogate
-    route.
+    route. Where the model fails (a wing that would touch the body), the base
+    row of that point is left out; more than 1 % of rows failing is an error.
 """
 from __future__ import annotations
 
@@ -33,6 +34,8 @@ __all__ = ["parse_around", "nominal_point", "study_inputs", "surrogate_callables
 
 #: Default bound on evaluator calls of the direct route.
 DIRECT_MAX_EVALUATIONS = 20_000
+#: Share of base rows the direct route may drop for failed runs (common practice, no source).
+DIRECT_FAILED_SHARE = 0.01
 
 
 def parse_around(tokens, study):
@@ -122,10 +125,9 @@ def surrogate_callables(surrogates):
 def evaluator_model(evaluator, names, responses):
     """A model callable that runs an evaluator at each point (serially).
 
-    Raises
-    ------
-    SensitivityError
-        When any run fails: Sobol estimation needs every point of its sample.
+    A failed run gives NaN for every response (so that
+    :func:`~doe.sensitivity.sobol_indices` can drop its base row); the
+    callable's ``failures`` list keeps ``(run_id, message)`` of each.
     """
     counter = [0]
 
@@ -133,14 +135,19 @@ def evaluator_model(evaluator, names, responses):
         ids = [f"sens{counter[0] + i:07d}" for i in range(len(X))]
         counter[0] += len(X)
         outcomes = evaluator.evaluate_many(ids, [dict(zip(names, map(float, x))) for x in X])
-        bad = [(rid, o) for rid, o in zip(ids, outcomes) if o.status != "ok"]
-        if bad:
-            rid, o = bad[0]
-            raise SensitivityError(f"direct sensitivity: {len(bad)} of {len(X)} evaluations failed (first {rid}: "
-                                   f"{o.message or 'no message'}); every point of the sample is needed")
-        return {r: np.array([o.values[r] for o in outcomes], dtype=float) for r in responses}
+        model.failures.extend((rid, o.message or "no message") for rid, o in zip(ids, outcomes) if o.status != "ok")
+        return {r: np.array([o.values.get(r, np.nan) if o.status == "ok" else np.nan for o in outcomes], dtype=float)
+                for r in responses}
 
+    model.failures = []
     return model
+
+
+def _first_failure(model) -> str:
+    if not model.failures:
+        return ""
+    rid, message = model.failures[0]
+    return f" (first failure, {rid}: {message})"
 
 
 def _study_model(study, evaluator, what: str):
@@ -208,7 +215,15 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
                    responses=study.response_names, seed=seed)
     if direct:
         model = _study_model(study, evaluator, "the direct route")
-        return sobol_indices(model, inputs, max_evaluations=max_evaluations or DIRECT_MAX_EVALUATIONS, **options)
+        try:
+            result = sobol_indices(model, inputs, max_evaluations=max_evaluations or DIRECT_MAX_EVALUATIONS,
+                                   max_failed_share=DIRECT_FAILED_SHARE, **options)
+        except SensitivityError as exc:
+            raise SensitivityError(f"direct sensitivity: {exc}{_first_failure(model)}") from exc
+        if model.failures:
+            for res in result.responses.values():
+                res.notes.append(f"{len(model.failures)} evaluations failed{_first_failure(model)}")
+        return result
     if surrogates is None:
         if results is None:
             raise SensitivityError(f"{study.name}: the surrogate route needs results (or use the direct route)")
