@@ -201,3 +201,42 @@ def test_study_screening_through_the_evaluator(study):
 def test_evaluator_model_reports_shape():
     m = evaluator_model(FunctionEvaluator(["y"]), ["x1", "x2", "x3"], ["y"])
     np.testing.assert_allclose(m(np.array([[1.0, 2.0, 3.0]]))["y"], [7.0])
+
+
+@pytest.mark.filterwarnings("ignore:.*Sobol indices need independent inputs")
+def test_direct_and_surrogate_agree_on_the_builtin_model():
+    # the built-in model (doe.aero, when installed) through both routes: each index pair must agree within the
+    # sum of the two stated half-widths (the cross-check); one response and small samples keep it short
+    import dataclasses
+    from pathlib import Path
+
+    pytest.importorskip("doe.evaluators.builtin")
+    demo = Path(__file__).resolve().parents[1] / "studies" / "demo_hatch.toml"
+    if not demo.exists():
+        pytest.skip("the demo study is not in this tree")
+    from doe.evaluators import make_evaluator
+    from doe.plans import maximin_lhs
+    from doe.results import ResultsTable
+    from doe.study import load_study
+
+    full = load_study(demo)
+    study = dataclasses.replace(full, responses=tuple(r for r in full.responses if r.name == "cla_total"),
+                                fit=dataclasses.replace(full.fit, kernel="sqexp", restarts=1))
+    evaluator = make_evaluator(study)
+    X = study.space.from_unit(maximin_lhs(40, study.space.dim, seed=3))
+    names = study.space.names
+    outcomes = evaluator.evaluate_many([f"r{i}" for i in range(len(X))], [dict(zip(names, x)) for x in X])
+    frame = pd.DataFrame(X, columns=names)
+    frame.insert(0, "run_id", [f"r{i}" for i in range(len(X))])
+    for r in study.response_names:
+        frame[r] = [o.values[r] if o.status == "ok" else np.nan for o in outcomes]
+    frame["status"] = ["ok" if o.status == "ok" else "failed" for o in outcomes]
+    frame["source"] = "builtin"
+    results = ResultsTable(frame, names, study.response_names)
+    direct = study_sensitivity(study, direct=True, evaluator=evaluator, base_samples=128)
+    surrogate = study_sensitivity(study, results, base_samples=1024)
+    for r in study.response_names:
+        d, s = direct[r], surrogate[r]
+        assert np.all(np.abs(d.S1 - s.S1) <= d.S1_conf + s.S1_conf), r
+        assert np.all(np.abs(d.ST - s.ST) <= d.ST_conf + s.ST_conf), r
+        assert d.ranking()[0] == s.ranking()[0] == "wing_aoa", r
