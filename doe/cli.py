@@ -115,10 +115,10 @@ def _cmd_evaluate(args):
     print(f"wrote {out}")
 
 
-def _add_results_options(p):
+def _add_results_options(p, results_required: bool = True):
     """Options shared by the verbs that fit surrogates to a results CSV."""
     p.add_argument("study", type=Path, help="study file (TOML)")
-    p.add_argument("--results", type=Path, required=True, help="results CSV")
+    p.add_argument("--results", type=Path, required=results_required, help="results CSV")
     p.add_argument("--seed", type=int, help="seed (default: the study's [plan] seed)")
     p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
 
@@ -201,12 +201,66 @@ def _cmd_next(args):
     print(f"wrote {out}")
 
 
+def _add_sensitivity(sub):
+    p = sub.add_parser("sensitivity", help="which knobs matter: Sobol indices with 95 %% intervals",
+                       description="First-order and total Sobol indices per response and parameter, on surrogates "
+                                   "fitted to the results (intervals from the estimator and the surrogate), or "
+                                   "straight from a cheap evaluator with --direct. --screen runs Morris screening "
+                                   "with the evaluator instead. Writes the sensitivity (or screening) JSON and "
+                                   "prints a ranked statement per response.")
+    _add_results_options(p, results_required=False)
+    p.add_argument("--surrogate", type=Path, metavar="FOLDER", help="use surrogates saved by 'doe fit' instead of fitting")
+    p.add_argument("--direct", action="store_true", help="call the study's evaluator (cheap ones only), no surrogate")
+    p.add_argument("--around", nargs="+", metavar="SETTING",
+                   help="scatter (tolerances) around 'nominal' or a setting NAME=VALUE ... instead of the bounds")
+    p.add_argument("--second-order", action="store_true", help="also estimate second-order indices")
+    p.add_argument("--base-samples", type=int, metavar="N", help="Saltelli base sample, a power of two (default: chosen)")
+    p.add_argument("--max-evaluations", type=int, metavar="K",
+                   help="--direct: at most K evaluator calls while the base sample grows (default 20000)")
+    p.add_argument("--screen", action="store_true", help="Morris screening with the evaluator (many parameters)")
+    p.add_argument("--trajectories", type=int, default=20, help="Morris trajectories with --screen (default 20)")
+    p.add_argument("--out", type=Path, help="JSON to write (default: reports/<study name>/sensitivity.json "
+                                            "or screening.json)")
+    p.set_defaults(func=_cmd_sensitivity)
+
+
+def _cmd_sensitivity(args):
+    from . import sensitivity_study as ss
+    from .results import read_results
+    from .study import load_study
+
+    study = load_study(args.study)
+    if args.screen:
+        screening = ss.study_screening(study, trajectories=args.trajectories, seed=args.seed)
+        out = args.out or study.default_output / "screening.json"
+        _write_json(screening.to_json(), out)
+        print(f"inert for every response: {', '.join(screening.inert) or 'none'}")
+        print(f"wrote {out}")
+        return
+    surrogates = None
+    if args.surrogate is not None:
+        from .surrogate import load_surrogates
+
+        surrogates = load_surrogates(args.surrogate, study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside) if args.results else None
+    result = ss.study_sensitivity(study, results, direct=args.direct, around=ss.parse_around(args.around, study),
+                                  second_order=args.second_order or None, base_samples=args.base_samples,
+                                  seed=args.seed, surrogates=surrogates, max_evaluations=args.max_evaluations)
+    data = ss.study_sensitivity_json(study, result)
+    out = args.out or study.default_output / "sensitivity.json"
+    _write_json(data, out)
+    for name, info in data["_meta"]["responses"].items():
+        print(f"{name}: {info['statement']}")
+    print(f"wrote {out}")
+
+
 #: Every verb: (name, function adding its parser). Extend here.
 VERBS = [
     ("plan", _add_plan),
     ("evaluate", _add_evaluate),
     ("fit", _add_fit),
     ("next", _add_next),
+    ("sensitivity", _add_sensitivity),
 ]
 
 

@@ -18,6 +18,7 @@ __all__ = [
     "SurrogateError",
     "NotFittedError",
     "StoreLockedError",
+    "SensitivityError",
     "where",
 ]
 
@@ -52,6 +53,10 @@ class NotFittedError(SurrogateError):
 
 class StoreLockedError(DoeError):
     """Another process is writing to the same results store."""
+
+
+class SensitivityError(DoeError):
+    """A sensitivity analysis cannot be run as asked (bad distribution, failed runs, ...)."""
 
 
 def where(path, line=None, key=None, column=None) -> str:
