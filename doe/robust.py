@@ -90,9 +90,11 @@ from scipy.stats import qmc
 
 from .errors import DoeError
 from .space import Space
+from .vehicle import Aero, VehicleFigures, compare_figures, vehicle_figures
 
 __all__ = ["scatter_draws", "propagate", "Spread", "Fragility", "fragility", "PointResult", "RobustResult",
-           "find_settings", "nondominated", "tradeoff_set", "write_tradeoff", "DEFAULT_MAXITER"]
+           "find_settings", "nondominated", "tradeoff_set", "write_tradeoff", "study_robust", "study_tradeoff",
+           "study_vehicle_figures", "DEFAULT_MAXITER"]
 
 #: Generations of the differential-evolution search.
 DEFAULT_MAXITER = 150
@@ -399,7 +401,7 @@ class PointResult:
     flag_reason : str
     confirm_runs : list of dict
     fragility : list of Fragility
-    vehicle : dict or None
+    vehicle : doe.vehicle.VehicleFigures or None
     """
 
     point: dict
@@ -415,12 +417,13 @@ class PointResult:
     flag_reason: str
     confirm_runs: list
     fragility: list
-    vehicle: dict | None = None
+    vehicle: VehicleFigures | None = None
 
     def to_dict(self) -> dict:
         """The JSON record."""
-        out = {k: v for k, v in self.__dict__.items() if k != "fragility"}
+        out = {k: v for k, v in self.__dict__.items() if k not in ("fragility", "vehicle")}
         out["fragility"] = {fr.parameter: fr.to_dict() for fr in self.fragility}
+        out["vehicle"] = self.vehicle.to_dict() if self.vehicle is not None else None
         return out
 
 
@@ -557,7 +560,7 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     units : dict of str to str, optional
         Units of the responses, for the JSON.
     vehicle_block : callable, optional
-        ``vehicle_block(x) -> dict`` of vehicle figures at setting ``x``.
+        ``vehicle_block(x) -> VehicleFigures`` at setting ``x`` (study units).
     maxiter : int
         Generations of the search.
 
@@ -589,8 +592,7 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     units = units or {}
     change = None
     if nominal.vehicle is not None and robust.vehicle is not None:
-        change = {k_: _difference(nominal.vehicle[k_], robust.vehicle[k_]) for k_ in nominal.vehicle
-                  if k_ not in ("speeds_kph", "radii_m")}
+        change = compare_figures(nominal.vehicle, robust.vehicle)
     method = {"propagation": "Monte Carlo on the surrogate mean: antithetic normal draws of setup scatter "
                              "(tolerance = one standard deviation), the same draws for every candidate",
               "samples": len(problem.draws), "seed": seed if isinstance(seed, int) else None,
@@ -602,12 +604,56 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     return RobustResult(objective, units.get(objective, ""), goal, float(k), nominal, robust, lims, method, change)
 
 
-def _difference(a, b):
-    if a is None or b is None:
+# ---------------------------------------------------------------------------
+# a study's settings
+def study_vehicle_figures(study, predict, x) -> VehicleFigures | None:
+    """Vehicle figures at setting ``x`` (study units) from the surrogate means of the ``[vehicle]`` responses.
+
+    Returns None when the study has no ``[vehicle]`` table. The lap time needs ``[track]``.
+    """
+    v = study.vehicle
+    if v is None:
         return None
-    if isinstance(a, list):
-        return [_difference(p, q) for p, q in zip(a, b)]
-    return b - a
+    names = [v.cla_response, v.cda_response] + ([v.front_share_response] if v.front_share_response else [])
+    pred = _predict_checked(predict, study.space._check_shape(x), names)
+    share = float(pred[v.front_share_response][0][0]) if v.front_share_response else v.aero_front_share
+    if not 0.0 <= share <= 1.0:
+        raise DoeError(f"vehicle: response '{v.front_share_response}' is {share:.3g} at this setting; "
+                       "it must be the front share of the aero load, between 0 and 1")
+    aero = Aero(float(pred[v.cla_response][0][0]), max(float(pred[v.cda_response][0][0]), 0.0), share)
+    return vehicle_figures(v.car, aero, study.track, v.speeds_kph, v.radii_m)
+
+
+def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) -> RobustResult:
+    """:func:`find_settings` with a study's ``[robust]`` goals, units and ``[vehicle]`` figures.
+
+    Parameters
+    ----------
+    study : doe.study.Study
+    predict : callable
+        E.g. the ``predict`` of a fitted surrogate set.
+    runs_X : array_like, optional
+        Settings already run (study units).
+    maxiter : int
+    """
+    r = study.robust
+    if r is None:
+        raise DoeError("robust: the study has no [robust] settings")
+    units = {resp.name: resp.unit for resp in study.responses}
+    block = (lambda x: study_vehicle_figures(study, predict, x[None, :])) if study.vehicle is not None else None
+    return find_settings(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
+                         probability=r.probability, samples=r.samples, seed=r.seed, runs_X=runs_X, units=units,
+                         vehicle_block=block, maxiter=maxiter)
+
+
+def study_tradeoff(study, predict, samples: int = 4096) -> pd.DataFrame:
+    """:func:`tradeoff_set` of a study's ``[robust] tradeoff`` responses (goals from ``[[responses]]``)."""
+    r = study.robust
+    if r is None or len(r.tradeoff) < 2:
+        raise DoeError("trade-off: give at least two responses in [robust] tradeoff "
+                       "(by default the responses with a goal)")
+    goals = {resp.name: resp.goal for resp in study.responses}
+    return tradeoff_set(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed)
 
 
 # ---------------------------------------------------------------------------
