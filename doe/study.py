@@ -42,7 +42,7 @@ from .space import LinearConstraint, Parameter, Space
 from .tables import NAME_PATTERN, REQUIRED, Source, Table
 from .vehicle import DRIVES, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle
 
-__all__ = ["Response", "PlanSettings", "EvaluatorSettings", "ResponseLimit", "RobustSettings",
+__all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "ResponseLimit", "RobustSettings",
            "VehicleSettings", "Study", "load_study", "read_study_text",
            "RESERVED_COLUMNS", "GOALS", "PLAN_METHODS"]
 
@@ -99,6 +99,43 @@ class PlanSettings:
     runs: int | None = None
     seed: int = 0
     method: str = "lhs"
+
+
+@dataclass(frozen=True)
+class FitSettings:
+    """``[fit]``: how surrogates are fitted (see :mod:`doe.surrogate`).
+
+    Attributes
+    ----------
+    kernel : {"auto", "sqexp", "matern52", "matern32"}
+        Kernel family; ``auto`` picks one per response.
+    trend : {"auto", "constant", "linear"}
+    noise : {"auto", "learn", "fixed"}
+        ``auto``: learned when any run comes from outside ``exact_sources`` or
+        replicated points disagree; otherwise a small fixed nugget.
+    restarts : int
+        Extra optimiser starts per kernel.
+    nugget : float
+        Fixed diagonal term of a deterministic evaluator, relative to the
+        response's variance.
+    selection : {"loo", "likelihood"}
+        Kernel choice by leave-one-out error or marginal likelihood.
+    target_q2 : float
+        Accuracy wanted: ``q2_loo`` of every response at least this (the
+        stopping rule of ``doe next``).
+    exact_sources : tuple of str
+        Values of the results' ``source`` column that come from a
+        deterministic evaluator.
+    """
+
+    kernel: str = "auto"
+    trend: str = "auto"
+    noise: str = "auto"
+    restarts: int = 3
+    nugget: float = 1e-6
+    selection: str = "loo"
+    target_q2: float = 0.9
+    exact_sources: tuple = ("builtin", "command")
 
 
 @dataclass(frozen=True)
@@ -225,6 +262,7 @@ class Study:
     evaluator: EvaluatorSettings
     plan: PlanSettings = PlanSettings()
     description: str = ""
+    fit: FitSettings = FitSettings()
     robust: "RobustSettings | None" = None
     vehicle: "VehicleSettings | None" = None
     track: Track | None = None
@@ -298,7 +336,7 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
         raise StudyError(f"{where(path)}: not valid TOML ({exc})") from exc
     source = Source(path, text)
     top = Table(data, source, "")
-    known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "robust", "vehicle",
+    known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "fit", "robust", "vehicle",
              "track")
     unknown = [k for k in data if k not in known]
     if unknown:
@@ -326,11 +364,12 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     evaluator = _read_evaluator(_one_table(top, "evaluator", required=True))
     plan = _read_plan(_one_table(top, "plan"), len(parameters))
     space = Space(parameters, constraints)
+    fit = _read_fit(_one_table(top, "fit"))
     robust = _read_robust(_one_table(top, "robust"), responses, plan.seed)
     vehicle = _read_vehicle(_one_table(top, "vehicle"), responses) if "vehicle" in data else None
     track = _read_track(_one_table(top, "track")) if "track" in data else None
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
-                  plan=plan, description=description, robust=robust, vehicle=vehicle, track=track)
+                  plan=plan, description=description, fit=fit, robust=robust, vehicle=vehicle, track=track)
     from .evaluators import check_settings  # late import: evaluators build on studies
 
     check_settings(study)
@@ -557,3 +596,17 @@ def _read_track(t: Table) -> Track:
     if not any(s.kind == "corner" for s in segments):
         raise t.error("segments", "a lap needs at least one corner")
     return Track(tuple(segments), name)
+
+
+def _read_fit(t: Table) -> FitSettings:
+    kernel = t.take("kernel", str, default="auto", choices=("auto", "sqexp", "matern52", "matern32"))
+    trend = t.take("trend", str, default="auto", choices=("auto", "constant", "linear"))
+    noise = t.take("noise", str, default="auto", choices=("auto", "learn", "fixed"))
+    restarts = t.take("restarts", int, default=3, check=lambda v: 0 <= v <= 50, why="must be between 0 and 50")
+    nugget = t.take("nugget", float, default=1e-6, check=lambda v: 0 < v < 1, why="must be in (0, 1)")
+    selection = t.take("selection", str, default="loo", choices=("loo", "likelihood"))
+    target = t.take("target_q2", float, default=0.9, check=lambda v: 0 < v < 1, why="must be in (0, 1)")
+    exact = t.take("exact_sources", list, default=["builtin", "command"],
+                   check=lambda v: all(isinstance(x, str) for x in v), why="must be a list of strings")
+    t.finish()
+    return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact))

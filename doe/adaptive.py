@@ -1,0 +1,301 @@
+"""Choosing the next runs from fitted surrogates (``doe next``).
+
+Every criterion scores a dense set of feasible candidate points (scrambled
+Sobol' points inside the bounds and constraints) and takes the best one; a
+batch of ``K`` runs is built one run at a time, each time conditioning the
+surrogates on the runs already picked as if they had returned the
+surrogate's mean there (the *kriging believer* heuristic, Ginsbourger, Le
+Riche & Carraro 2010), with the hyperparameters kept. Runs already made,
+failed runs and pending runs are never proposed again: a candidate closer
+than :data:`MIN_DISTANCE` (in the unit cube) to any of them, or to a run
+already picked, is dropped.
+
+========== ========= ===================================================================
+aim        criterion what it maximises
+========== ========= ===================================================================
+``map``    ``ivr``   integrated variance reduction: the drop of the predictive variance
+                     averaged over the design space (Cohn 1996; the IMSE criterion of
+                     Sacks, Welch, Mitchell & Wynn 1989), summed over responses, each
+                     scaled by the variance of its runs. Default for ``map``.
+``map``    variance  the predictive variance itself (MacKay 1992), same scaling
+``optimum`` ``ei``   expected improvement of one response with a goal (Jones, Schonlau
+                     & Welch 1998)
+========== ========= ===================================================================
+
+References
+----------
+.. [1] Jones, D. R., Schonlau, M. and Welch, W. J. (1998). Efficient global
+   optimization of expensive black-box functions. J. Global Optim. 13, 455-492.
+.. [2] Ginsbourger, D., Le Riche, R. and Carraro, L. (2010). Kriging is well-suited
+   to parallelize optimization. In Computational Intelligence in Expensive
+   Optimization Problems, Springer, 131-162.
+.. [3] Cohn, D. A. (1996). Neural network exploration using optimal experiment
+   design. Neural Networks 9(6), 1071-1083.
+.. [4] Sacks, J., Welch, W. J., Mitchell, T. J. and Wynn, H. P. (1989). Design and
+   analysis of computer experiments. Statistical Science 4(4), 409-423.
+.. [5] MacKay, D. J. C. (1992). Information-based objective functions for active
+   data selection. Neural Computation 4(4), 590-604.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.stats import norm
+
+from .errors import PlanError, SurrogateError
+from .plans import _candidates, _next_ids
+
+__all__ = ["propose_runs", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
+
+AIMS = ("map", "optimum")
+#: Criteria allowed per aim; the first is the default.
+CRITERIA = {"map": ("ivr", "variance"), "optimum": ("ei",)}
+#: No proposal is closer than this to an existing, pending or picked run (Euclidean, unit cube).
+MIN_DISTANCE = 0.01
+#: Candidate points scored per pick.
+N_CANDIDATES = 2048
+#: Points over which the integrated variance is averaged.
+N_REFERENCE = 512
+_SOURCES = {
+    "ivr": "integrated variance reduction (Cohn 1996; Sacks, Welch, Mitchell & Wynn 1989)",
+    "variance": "maximum predictive variance (MacKay 1992)",
+    "ei": "expected improvement (Jones, Schonlau & Welch 1998)",
+}
+
+
+@dataclass
+class Pick:
+    """One proposed run and why it was picked."""
+
+    run_id: str
+    point: dict
+    score: float
+    reason: str
+    predicted: dict
+
+
+@dataclass
+class Proposal:
+    """The runs proposed by :func:`propose_runs`.
+
+    Attributes
+    ----------
+    frame : DataFrame
+        ``run_id`` then one column per parameter (study units): a plan.
+    picks : list of Pick
+    aim, criterion : str
+    response : str or None
+        The response optimised (``aim = "optimum"``).
+    accuracy_met : bool
+        Whether the stopping rule (``q2_loo >= target_q2`` for every response) already holds.
+    notes : list of str
+    """
+
+    frame: pd.DataFrame
+    picks: list
+    aim: str
+    criterion: str
+    response: str | None
+    accuracy_met: bool
+    notes: list = field(default_factory=list)
+
+    def record(self) -> dict:
+        """The ``<plan>.why.json`` sidecar: the criterion and, per run, its score and reason."""
+        return {"aim": self.aim, "criterion": self.criterion, "criterion_source": _SOURCES[self.criterion],
+                "batch": "kriging believer: each pick assumes the earlier picks and pending runs return the "
+                         "surrogate's mean (Ginsbourger, Le Riche & Carraro 2010)",
+                "response": self.response, "accuracy_met": self.accuracy_met, "notes": list(self.notes),
+                "runs": [{"run_id": p.run_id, "point": p.point, "score": p.score, "reason": p.reason,
+                          "predicted": p.predicted} for p in self.picks]}
+
+
+def accuracy_status(sset) -> tuple:
+    """The stopping rule: (met, sentence). Met when ``q2_loo >= target_q2`` for every response."""
+    q2 = {name: m.loo_.q2 for name, m in sset.models.items()}
+    short = [f"{n} ({v:.3f})" for n, v in q2.items() if not v >= sset.target_q2]
+    if not short:
+        shown = ", ".join(f"{n} {v:.3f}" for n, v in q2.items())
+        return True, (f"the accuracy wanted is already met: q2_loo >= {sset.target_q2:g} for every response "
+                      f"({shown}); more runs are optional")
+    return False, f"accuracy wanted (q2_loo >= {sset.target_q2:g}) not met yet for: {', '.join(short)}"
+
+
+def _far_from(C: np.ndarray, P: np.ndarray) -> np.ndarray:
+    """Boolean mask of candidates farther than MIN_DISTANCE from every point of P."""
+    if len(P) == 0:
+        return np.ones(len(C), dtype=bool)
+    keep = np.ones(len(C), dtype=bool)
+    for s in range(0, len(P), 256):
+        d2 = ((C[:, None, :] - P[None, s:s + 256, :]) ** 2).sum(-1)
+        keep &= d2.min(axis=1) > MIN_DISTANCE**2
+    return keep
+
+
+# ---------------------------------------------------------------------------
+# criteria: each returns (scores over candidates, a function index -> reason text)
+def _variance(models, sset, C, R, response):
+    parts = {n: m.predict(C, return_std=True) for n, m in models.items()}
+    scaled = {n: (s / m.y_std_) ** 2 for (n, (_, s)), m in zip(parts.items(), models.values())}
+    score = sum(scaled.values())
+
+    def why(i):
+        top = max(scaled, key=lambda n: scaled[n][i])
+        mean, std = parts[top][0][i], parts[top][1][i]
+        return (f"largest predictive uncertainty left: {top} = {mean:.4g} +/- {std:.3g} {sset.units[top]} here "
+                f"({std / models[top].y_std_:.0%} of the spread of the runs)")
+
+    return score, why
+
+
+def _ivr(models, sset, C, R, response):
+    score = np.zeros(len(C))
+    avg_var = 0.0
+    for m in models.values():
+        _, sC = m.predict(C, return_std=True)
+        _, sR = m.predict(R, return_std=True)
+        cov = m.predict_cov(R, C)                                   # (R, C), unit^2
+        # variance drop at u after observing x: cov(u, x)^2 / (var(x) + noise)  (Cohn 1996)
+        score += np.mean(cov**2, axis=0) / (sC**2 + m.noise_std_**2) / m.y_std_**2
+        avg_var += float(np.mean(sR**2)) / m.y_std_**2
+
+    def why(i):
+        share = score[i] / avg_var if avg_var > 0 else 0.0
+        bits = []
+        for n, m in models.items():
+            mu, sd = m.predict(C[i:i + 1], return_std=True)
+            bits.append(f"{n} = {mu[0]:.4g} +/- {sd[0]:.3g} {sset.units[n]}")
+        return (f"largest integrated variance reduction: expected to cut the predictive variance averaged over "
+                f"the design space by {share:.0%} (responses scaled by the spread of their runs); here "
+                + "; ".join(bits))
+
+    return score, why
+
+
+def _ei(models, sset, C, R, response):
+    m = models[response]
+    sign = 1.0 if sset.goals[response] == "minimize" else -1.0
+    mean, std = m.predict(C, return_std=True)
+    g = sign * mean
+    best = float(np.min(sign * m.predict(m.X_unit_)))          # best posterior mean at the runs so far
+    z = np.where(std > 0, (best - g) / np.where(std > 0, std, 1.0), 0.0)
+    ei = np.where(std > 0, (best - g) * norm.cdf(z) + std * norm.pdf(z), np.maximum(best - g, 0.0))  # [1] eq. (15)
+
+    def why(i):
+        return (f"largest expected improvement of {response} ({sset.goals[response]}): {ei[i]:.3g} "
+                f"{sset.units[response]} beyond the best so far ({sign * best:.4g} {sset.units[response]}); "
+                f"predicted {mean[i]:.4g} +/- {std[i]:.3g} {sset.units[response]}")
+
+    return ei, why
+
+
+_CRITERIA = {"ivr": _ivr, "variance": _variance, "ei": _ei}
+
+
+def _local_candidates(sset, response, rng, n_each=128, spread=0.05):
+    """Points around the best runs so far, for the expected improvement."""
+    m = sset.models[response]
+    sign = 1.0 if sset.goals[response] == "minimize" else -1.0
+    order = np.argsort(sign * m.y_)[:5]
+    pts = [np.clip(m.X_unit_[i] + spread * rng.standard_normal((n_each, m.X_unit_.shape[1])), 0, 1) for i in order]
+    P = np.vstack(pts)
+    return P[sset.space.feasible_unit(P)]
+
+
+def _pick_response(sset, response):
+    if response is None:
+        goals = [n for n in sset.responses if sset.goals[n] in ("minimize", "maximize")]
+        if not goals:
+            raise SurrogateError("aim 'optimum' needs a response with goal = \"minimize\" or \"maximize\" in the study")
+        return goals[0]
+    if response not in sset.models:
+        raise SurrogateError(f"no response '{response}'; the study has {', '.join(sset.responses)}")
+    if sset.goals[response] not in ("minimize", "maximize"):
+        raise SurrogateError(f"response '{response}' has goal 'none'; give it minimize or maximize to seek its optimum")
+    return response
+
+
+def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, response: str | None = None,
+                 pending=None, avoid=None, taken_ids=(), seed=0, n_candidates: int = N_CANDIDATES) -> Proposal:
+    """Propose ``k`` new runs.
+
+    Parameters
+    ----------
+    sset : SurrogateSet
+        Fitted surrogates of the study.
+    k : int
+        Runs to propose.
+    aim : {"map", "optimum"}
+        Map the whole space (accurate surrogates everywhere) or seek the
+        optimum of one response.
+    criterion : str, optional
+        One of :data:`CRITERIA` ``[aim]``; default the first.
+    response : str, optional
+        With ``aim = "optimum"``: the response to optimise (default: the first
+        with a goal).
+    pending : array_like, shape (p, d), optional
+        Runs planned but not evaluated yet, study units; fantasised at the
+        surrogate's mean and never duplicated.
+    avoid : array_like, shape (a, d), optional
+        Other points not to repeat (e.g. failed runs), study units.
+    taken_ids : iterable of str
+        Run ids already used; new ids continue their numbering.
+    seed : int
+    n_candidates : int
+        Candidate points scored per pick.
+
+    Returns
+    -------
+    Proposal
+
+    Raises
+    ------
+    SurrogateError, PlanError
+        Unknown aim or criterion, a response without goal, or no feasible
+        candidate left.
+    """
+    if aim not in AIMS:
+        raise SurrogateError(f"aim {aim!r} is not one of {', '.join(AIMS)}")
+    criterion = criterion or CRITERIA[aim][0]
+    if criterion not in CRITERIA[aim]:
+        raise SurrogateError(f"criterion {criterion!r} does not serve aim {aim!r}; use {', '.join(CRITERIA[aim])}")
+    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+        raise SurrogateError(f"the number of runs to propose must be a whole number >= 1, got {k!r}")
+    response = _pick_response(sset, response) if aim == "optimum" else None
+    rng = np.random.default_rng(seed)
+    space = sset.space
+    first = next(iter(sset.models.values()))
+    P = sset._unit_points(pending) if pending is not None and len(pending) else np.zeros((0, space.dim))
+    A = sset._unit_points(avoid) if avoid is not None and len(avoid) else np.zeros((0, space.dim))
+    models = {n: (m.conditioned(P) if len(P) else m) for n, m in sset.models.items()}
+    C = _candidates(space, n_candidates, rng)
+    if aim == "optimum":
+        C = np.vstack([C, _local_candidates(sset, response, rng)])
+    C = C[_far_from(C, np.vstack([first.X_unit_, P, A]))]
+    R = _candidates(space, N_REFERENCE, rng) if criterion == "ivr" else None
+    met, status = accuracy_status(sset)
+    notes = [status]
+    if len(P):
+        notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean")
+    chosen, picks = [], []
+    ids = _next_ids(list(taken_ids), k)
+    for j in range(k):
+        if len(C) == 0:
+            raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; ask for fewer runs")
+        score, why = _CRITERIA[criterion](models, sset, C, R, response)
+        i = int(np.argmax(score))
+        x = C[i]
+        reason = why(i)
+        if j:
+            reason += f" (assuming the {j} run(s) picked before return the surrogate's mean)"
+        pred = {n: m.predict(x[None], return_std=True) for n, m in models.items()}
+        point = dict(zip(space.names, (float(v) for v in space.from_unit(x[None])[0])))
+        picks.append(Pick(ids[j], point, float(score[i]), reason,
+                          {n: {"mean": float(mu[0]), "std": float(sd[0])} for n, (mu, sd) in pred.items()}))
+        chosen.append(x)
+        models = {n: m.conditioned(x[None]) for n, m in models.items()}
+        C = C[_far_from(C, x[None])]
+    frame = pd.DataFrame(np.clip(space.from_unit(np.array(chosen)), space.lower, space.upper), columns=space.names)
+    frame.insert(0, "run_id", ids)
+    return Proposal(frame, picks, aim, criterion, response, met, notes)

@@ -1,0 +1,184 @@
+"""Plain statements and verdicts about a fitted surrogate, and the content of ``fit.json``.
+
+``fit.json`` holds one object per response::
+
+    {"<response>": {"q2_loo": ..., "rmse_loo": ..., "verdict": ..., ...}, ...}
+
+Keys of each response (units in brackets):
+
+=============================  ===============================================================
+``unit``                       the response's unit
+``q2_loo``                     leave-one-out predictivity coefficient [-]; 1 is perfect, 0 is no
+                               better than the mean of the runs
+``rmse_loo``                   root mean square leave-one-out error [response unit]
+``verdict``                    ``"ready"``, ``"add runs"`` or ``"check the data"`` (rules below)
+``verdict_reason``             one sentence saying why
+``target_q2``, ``meets_target``  the accuracy wanted (``[fit] target_q2``) and whether it is met
+``runs``, ``points``           runs fitted, and distinct points among them
+``kernel``, ``family``, ``trend``  the kernel kept (``family``: sqexp, matern52, matern32;
+                               ``trend``: constant, linear)
+``noise``                      ``"learned"`` or ``"fixed"``; ``noise_reason`` says why
+``noise_std``                  standard deviation of the noise (or of the nugget) [response unit]
+``noise_share``                learned noise variance over the variance of the runs [-]
+``length_scales``              per parameter [parameter unit]; large means a smooth, weak effect
+``relative_length_scales``     per parameter, in fractions of its range [-]
+``standardised_residuals``     per run id: leave-one-out residual / its predictive std [-]
+``max_abs_standardised_residual``  the largest of those in magnitude [-]
+``loo``                        per distinct point: ``run_ids``, ``observed``, ``predicted``, ``std``
+                               [response unit]
+``statements``                 plain-language diagnostics (bounds reached, optimiser, few data)
+``candidates``                 every kernel tried: ``kernel``, ``rmse_loo``, ``log_marginal_likelihood``,
+                               ``chosen``
+``log_marginal_likelihood``    of the kept kernel, normalised data [-]
+``fit_seconds``                wall time of the fit [s]
+=============================  ===============================================================
+
+Verdict rules, in this order:
+
+1. ``"check the data"`` when a learned noise explains more than half of the
+   variance of the runs (:data:`NOISE_SHARE_MAX`), or when one run's
+   standardised residual exceeds :data:`OUTLIER_Z` in magnitude while the
+   median magnitude stays below 1.5 (a single run that disagrees with all
+   the others: a failed case recorded as ok, a typo, a unit slip).
+   Under a correct Gaussian model a residual beyond 5 standard deviations
+   has a probability below 6e-7 per run (normal tail; common practice, no source).
+2. ``"ready"`` when ``q2_loo >= target_q2``.
+3. ``"add runs"`` otherwise.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["hyperparameter_statements", "verdict", "response_report", "OUTLIER_Z", "NOISE_SHARE_MAX",
+           "FEW_RUNS_PER_PARAMETER"]
+
+#: Magnitude of a standardised leave-one-out residual that marks a suspicious run.
+OUTLIER_Z = 5.0
+#: Largest share of the variance a learned noise may explain before the data are questioned.
+NOISE_SHARE_MAX = 0.5
+#: Fewer runs per parameter than this: hyperparameters are poorly determined.
+FEW_RUNS_PER_PARAMETER = 5
+_AT_BOUND = np.log(1.05)  # within 5 % of a bound counts as "at the bound"
+
+
+def _names(model) -> list:
+    d = model.X_unit_.shape[1]
+    return list(model.names) if model.names is not None else [f"x{i + 1}" for i in range(d)]
+
+
+def hyperparameter_statements(model) -> list:
+    """Plain statements about hyperparameters at their bounds and about too few data.
+
+    Parameters
+    ----------
+    model : ResponseSurrogate
+        Fitted.
+
+    Returns
+    -------
+    list of str
+    """
+    from .surrogate import AMPLITUDE_BOUNDS, LENGTH_SCALE_BOUNDS, NOISE_BOUNDS
+
+    out = []
+    lo, hi = np.log(LENGTH_SCALE_BOUNDS)
+    for name, ls in zip(_names(model), np.log(model.length_scales_)):
+        if ls >= hi - _AT_BOUND:
+            out.append(f"{name}: length scale at its upper bound ({LENGTH_SCALE_BOUNDS[1]:g} x its range): "
+                       f"the response barely changes with {name} beyond a straight-line trend; "
+                       "it may not depend on it")
+        elif ls <= lo + _AT_BOUND:
+            out.append(f"{name}: length scale at its lower bound ({LENGTH_SCALE_BOUNDS[0]:g} x its range): "
+                       f"the response seems to change faster with {name} than the runs can resolve; "
+                       "add runs, or check the data for noise")
+    parts = model._parts()
+    if np.log(parts["amplitude"]) >= np.log(AMPLITUDE_BOUNDS[1]) - _AT_BOUND:
+        out.append("signal variance at its upper bound: the response may grow without limit inside the range; "
+                   "a linear trend or more runs may help")
+    if model.learn_noise_:
+        if np.log(max(parts["noise"], 1e-300)) >= np.log(NOISE_BOUNDS[1]) - _AT_BOUND:
+            out.append("noise level at its upper bound: the runs look like noise around a constant")
+        elif np.log(max(parts["noise"], 1e-300)) <= np.log(NOISE_BOUNDS[0]) + _AT_BOUND:
+            out.append("noise level at its lower bound: the data look free of noise")
+    n, d = model.X_unit_.shape
+    if n < FEW_RUNS_PER_PARAMETER * d:
+        out.append(f"only {n} distinct points for {d} parameters: the kernel's settings are poorly determined "
+                   "(about 10 runs per parameter is the usual first plan, Loeppky, Sacks & Welch 2009)")
+    return out
+
+
+def verdict(q2: float, z: np.ndarray, noise_share: float, target_q2: float) -> tuple:
+    """The verdict on one response and its reason (rules in the module docstring).
+
+    Parameters
+    ----------
+    q2 : float
+        Leave-one-out predictivity coefficient.
+    z : ndarray
+        Standardised leave-one-out residuals.
+    noise_share : float
+        Learned noise variance over the variance of the runs (0 when fixed).
+    target_q2 : float
+
+    Returns
+    -------
+    verdict : {"ready", "add runs", "check the data"}
+    reason : str
+    """
+    az = np.abs(np.asarray(z, dtype=float))
+    if noise_share > NOISE_SHARE_MAX:
+        return "check the data", (f"the learned noise explains {noise_share:.0%} of the variance of the runs: "
+                                  "the parameters hardly explain the response; check the data and the setup")
+    if len(az) and az.max() > OUTLIER_Z and np.median(az) < 1.5:
+        return "check the data", (f"one run is {az.max():.1f} standard deviations from what the other runs "
+                                  "predict there: check that run (failed case, typo, unit)")
+    if np.isfinite(q2) and q2 >= target_q2:
+        return "ready", f"q2_loo = {q2:.3f} meets the target {target_q2:g}"
+    why = f"q2_loo = {q2:.3f} is below the target {target_q2:g}"
+    if noise_share > 0 and 1 - noise_share < target_q2:
+        why += (f"; noise explains {noise_share:.0%} of the variance, so q2 cannot exceed about "
+                f"{1 - noise_share:.2f}: replicate runs or lower the target")
+    return "add runs", why
+
+
+def response_report(model, sset, name: str) -> dict:
+    """The ``fit.json`` entry of one response (keys in the module docstring)."""
+    loo = model.loo_
+    names = _names(model)
+    spans = sset.space.upper - sset.space.lower
+    ids = list(sset.run_ids)
+    var_y = float(np.var(model.y_)) if len(model.y_) else 0.0
+    noise_share = float(model._parts()["noise"] * model.y_std_**2 / var_y) if model.learn_noise_ and var_y > 0 else 0.0
+    z = loo.standardised
+    label, reason = verdict(loo.q2, z, noise_share, sset.target_q2)
+    from .surrogate import _label
+
+    points = [{"run_ids": [ids[i] for i in g], "observed": float(o), "predicted": float(p), "std": float(s)}
+              for g, o, p, s in zip(model.groups_, loo.observed, loo.predicted, loo.std)]
+    return {
+        "unit": sset.units[name],
+        "q2_loo": _num(loo.q2), "rmse_loo": _num(loo.rmse),
+        "verdict": label, "verdict_reason": reason,
+        "target_q2": sset.target_q2, "meets_target": bool(np.isfinite(loo.q2) and loo.q2 >= sset.target_q2),
+        "runs": int(sum(len(g) for g in model.groups_)), "points": int(len(model.groups_)),
+        "kernel": _label(model.family_, model.trend_), "family": model.family_, "trend": model.trend_,
+        "noise": "learned" if model.learn_noise_ else "fixed",
+        "noise_reason": sset.noise_reason.get(name, "") or ("" if model.learn_noise_ else
+                                                            "deterministic evaluator: a small fixed nugget"),
+        "noise_std": _num(model.noise_std_), "noise_share": noise_share,
+        "length_scales": {n: float(ls * s) for n, ls, s in zip(names, model.length_scales_, spans)},
+        "relative_length_scales": {n: float(ls) for n, ls in zip(names, model.length_scales_)},
+        "standardised_residuals": {ids[i]: float(zz) for g, zz in zip(model.groups_, z) for i in g},
+        "max_abs_standardised_residual": float(np.max(np.abs(z))) if len(z) else 0.0,
+        "loo": points,
+        "statements": list(model.statements_),
+        "candidates": model.candidates_,
+        "log_marginal_likelihood": _num(model.log_marginal_likelihood_),
+        "fit_seconds": float(model.fit_seconds_),
+    }
+
+
+def _num(x):
+    """A float for JSON, or None for NaN/inf."""
+    x = float(x)
+    return x if np.isfinite(x) else None

@@ -1,0 +1,374 @@
+"""Test functions with published definitions, for checking surrogates, plans and sensitivity.
+
+Each function takes points as an array of shape ``(n, d)`` in its own domain
+(not the unit cube) and returns an array of shape ``(n,)``. A
+:class:`TestFunction` bundles a function with its domain, input names, known
+optimum and source, and can build a :class:`~doe.space.Space` for it so that
+the rest of the package (plans, surrogates, sensitivity) can be run on it.
+
+========================  ====  ===========================================
+name                      d     use
+========================  ====  ===========================================
+``branin``                2     surrogate accuracy, optimisation
+``hartmann3``             3     surrogate accuracy, optimisation
+``hartmann6``             6     surrogate accuracy, optimisation
+``borehole``              8     surrogate accuracy (a smooth physical model)
+``ishigami``              3     Sobol indices (analytic: :func:`ishigami_indices`)
+``g_function``            any   Sobol indices (analytic: :func:`g_function_indices`)
+========================  ====  ===========================================
+
+Definitions and domains follow Surjanovic & Bingham's Virtual Library of
+Simulation Experiments, which restates the original papers cited in each
+docstring.
+
+References
+----------
+.. [VLSE] Surjanovic, S. and Bingham, D. Virtual Library of Simulation
+   Experiments: Test Functions and Datasets. Simon Fraser University.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import DoeError
+from .space import Parameter, Space
+
+__all__ = ["TestFunction", "branin", "hartmann3", "hartmann6", "borehole", "ishigami", "g_function",
+           "ishigami_indices", "g_function_indices", "TEST_FUNCTIONS", "get"]
+
+
+def _points(X, d: int, name: str) -> np.ndarray:
+    X = np.asarray(X, dtype=float)
+    if X.ndim == 1:
+        X = X.reshape(1, -1)
+    if X.ndim != 2 or X.shape[1] != d:
+        raise DoeError(f"{name}: points must have shape (n, {d}); got {X.shape}")
+    return X
+
+
+# ---------------------------------------------------------------------------
+def branin(X) -> np.ndarray:
+    """Branin (Branin-Hoo) function on ``[-5, 10] x [0, 15]``.
+
+    ``f = a (x2 - b x1^2 + c x1 - r)^2 + s (1 - t) cos(x1) + s`` with
+    ``a = 1, b = 5.1 / (4 pi^2), c = 5 / pi, r = 6, s = 10, t = 1 / (8 pi)``.
+    Global minimum ``5 / (4 pi) = 0.397887`` at ``(-pi, 12.275)``,
+    ``(pi, 2.275)`` and ``(9.42478, 2.475)``.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 2)
+        Points, each coordinate dimensionless.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Branin, F. H. and Hoo, S. K. (1972). A method for finding multiple extrema
+    of a function of n variables. Numerical Methods for Non-linear Optimization.
+    Dixon, L. C. W. and Szego, G. P. (1978). The global optimization problem:
+    an introduction. Towards Global Optimization 2, 1-15.
+    """
+    X = _points(X, 2, "branin")
+    x1, x2 = X[:, 0], X[:, 1]
+    a, b, c, r, s, t = 1.0, 5.1 / (4 * math.pi**2), 5 / math.pi, 6.0, 10.0, 1 / (8 * math.pi)
+    return a * (x2 - b * x1**2 + c * x1 - r) ** 2 + s * (1 - t) * np.cos(x1) + s
+
+
+_H3_A = np.array([[3.0, 10, 30], [0.1, 10, 35], [3.0, 10, 30], [0.1, 10, 35]])
+_H3_P = 1e-4 * np.array([[3689, 1170, 2673], [4699, 4387, 7470], [1091, 8732, 5547], [381, 5743, 8828]])
+_H6_A = np.array([[10, 3, 17, 3.5, 1.7, 8], [0.05, 10, 17, 0.1, 8, 14],
+                  [3, 3.5, 1.7, 10, 17, 8], [17, 8, 0.05, 10, 0.1, 14]])
+_H6_P = 1e-4 * np.array([[1312, 1696, 5569, 124, 8283, 5886], [2329, 4135, 8307, 3736, 1004, 9991],
+                         [2348, 1451, 3522, 2883, 3047, 6650], [4047, 8828, 8732, 5743, 1091, 381]])
+_H_ALPHA = np.array([1.0, 1.2, 3.0, 3.2])
+
+
+def _hartmann(X, A, P) -> np.ndarray:
+    # f = -sum_i alpha_i exp(-sum_j A_ij (x_j - P_ij)^2)
+    diff = X[:, None, :] - P[None, :, :]
+    return -np.exp(-np.sum(A[None] * diff**2, axis=2)) @ _H_ALPHA
+
+
+def hartmann3(X) -> np.ndarray:
+    """Hartmann 3-D function on ``[0, 1]^3``.
+
+    Global minimum ``-3.86278`` at ``(0.114614, 0.555649, 0.852547)``.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 3)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Dixon, L. C. W. and Szego, G. P. (1978). The global optimization problem:
+    an introduction. Towards Global Optimization 2, 1-15.
+    """
+    return _hartmann(_points(X, 3, "hartmann3"), _H3_A, _H3_P)
+
+
+def hartmann6(X) -> np.ndarray:
+    """Hartmann 6-D function on ``[0, 1]^6``.
+
+    Global minimum ``-3.32237`` at
+    ``(0.20169, 0.150011, 0.476874, 0.275332, 0.311652, 0.6573)``.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 6)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Dixon, L. C. W. and Szego, G. P. (1978). The global optimization problem:
+    an introduction. Towards Global Optimization 2, 1-15.
+    """
+    return _hartmann(_points(X, 6, "hartmann6"), _H6_A, _H6_P)
+
+
+def borehole(X) -> np.ndarray:
+    """Borehole function: water flow through a borehole, in m^3/yr.
+
+    ``f = 2 pi T_u (H_u - H_l) / (ln(r / r_w) [1 + 2 L T_u / (ln(r / r_w) r_w^2 K_w) + T_u / T_l])``
+
+    Inputs, in column order, with their domains: ``r_w`` in [0.05, 0.15] m,
+    ``r`` in [100, 50000] m, ``T_u`` in [63070, 115600] m^2/yr, ``H_u`` in
+    [990, 1110] m, ``T_l`` in [63.1, 116] m^2/yr, ``H_l`` in [700, 820] m,
+    ``L`` in [1120, 1680] m, ``K_w`` in [9855, 12045] m/yr.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 8)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Flow rate, m^3/yr.
+
+    References
+    ----------
+    Harper, W. V. and Gupta, S. K. (1983). Sensitivity/uncertainty analysis of
+    a borehole scenario comparing Latin hypercube sampling and deterministic
+    sensitivity approaches. Office of Nuclear Waste Isolation, BMI/ONWI-516.
+    Morris, M. D., Mitchell, T. J. and Ylvisaker, D. (1993). Bayesian design
+    and analysis of computer experiments: use of derivatives in surface
+    prediction. Technometrics 35(3), 243-255.
+    """
+    X = _points(X, 8, "borehole")
+    rw, r, tu, hu, tl, hl, length, kw = X.T
+    log_ratio = np.log(r / rw)
+    return 2 * math.pi * tu * (hu - hl) / (log_ratio * (1 + 2 * length * tu / (log_ratio * rw**2 * kw) + tu / tl))
+
+
+def ishigami(X, a: float = 7.0, b: float = 0.1) -> np.ndarray:
+    """Ishigami function on ``[-pi, pi]^3``: ``sin x1 + a sin^2 x2 + b x3^4 sin x1``.
+
+    With uniform inputs its mean is ``a / 2`` and its variance
+    ``1/2 + a^2/8 + b pi^4/5 + b^2 pi^8/18`` (13.8446 for a = 7, b = 0.1);
+    :func:`ishigami_indices` gives the Sobol indices.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 3)
+        Angles, rad.
+    a, b : float
+        Shape constants (7 and 0.1 in the usual benchmark).
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Ishigami, T. and Homma, T. (1990). An importance quantification technique
+    in uncertainty analysis for computer models. Proc. ISUMA '90, 398-403.
+    Sobol', I. M. and Levitan, Yu. L. (1999). On the use of variance reducing
+    multipliers in Monte Carlo computations of a global sensitivity index.
+    Comput. Phys. Commun. 117, 52-61.
+    """
+    X = _points(X, 3, "ishigami")
+    return np.sin(X[:, 0]) + a * np.sin(X[:, 1]) ** 2 + b * X[:, 2] ** 4 * np.sin(X[:, 0])
+
+
+def ishigami_indices(a: float = 7.0, b: float = 0.1) -> dict:
+    """Analytic Sobol indices of :func:`ishigami` with uniform inputs on ``[-pi, pi]^3``.
+
+    ``V1 = (1 + b pi^4 / 5)^2 / 2``, ``V2 = a^2 / 8``, ``V3 = 0``,
+    ``V13 = 8 b^2 pi^8 / 225``; ``V = V1 + V2 + V13``.
+
+    Returns
+    -------
+    dict
+        ``{"mean", "variance", "S1": (3,), "ST": (3,)}``.
+
+    References
+    ----------
+    Sobol', I. M. and Levitan, Yu. L. (1999). Comput. Phys. Commun. 117, 52-61.
+    """
+    pi = math.pi
+    v1 = 0.5 * (1 + b * pi**4 / 5) ** 2
+    v2 = a**2 / 8
+    v13 = 8 * b**2 * pi**8 / 225
+    v = v1 + v2 + v13
+    return {"mean": a / 2, "variance": v,
+            "S1": np.array([v1, v2, 0.0]) / v,
+            "ST": np.array([v1 + v13, v2, v13]) / v}
+
+
+#: The a-weights of the eight-input G-function in Saltelli & Sobol' (1995).
+G_WEIGHTS = (0.0, 1.0, 4.5, 9.0, 99.0, 99.0, 99.0, 99.0)
+
+
+def g_function(X, a=G_WEIGHTS) -> np.ndarray:
+    """Sobol' G-function on ``[0, 1]^d``: ``prod_i (|4 x_i - 2| + a_i) / (1 + a_i)``.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, d)
+        Points; ``d = len(a)``.
+    a : sequence of float
+        Non-negative weights; a small ``a_i`` makes input ``i`` important.
+        Default: ``(0, 1, 4.5, 9, 99, 99, 99, 99)``.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Mean 1 under uniform inputs.
+
+    References
+    ----------
+    Saltelli, A. and Sobol', I. M. (1995). About the use of rank transformation
+    in sensitivity analysis of model output. Reliab. Eng. Syst. Saf. 50, 225-239.
+    """
+    a = np.asarray(a, dtype=float)
+    if a.ndim != 1 or np.any(a < 0):
+        raise DoeError("g_function: the weights a must be a 1-D sequence of numbers >= 0")
+    X = _points(X, len(a), "g_function")
+    return np.prod((np.abs(4 * X - 2) + a) / (1 + a), axis=1)
+
+
+def g_function_indices(a=G_WEIGHTS) -> dict:
+    """Analytic Sobol indices of :func:`g_function` with uniform inputs.
+
+    ``V_i = 1 / (3 (1 + a_i)^2)``, ``V = prod(1 + V_i) - 1``, ``S_i = V_i / V``,
+    ``ST_i = V_i prod_{j != i} (1 + V_j) / V``.
+
+    Returns
+    -------
+    dict
+        ``{"mean": 1.0, "variance", "S1": (d,), "ST": (d,)}``.
+
+    References
+    ----------
+    Saltelli, A. and Sobol', I. M. (1995). Reliab. Eng. Syst. Saf. 50, 225-239.
+    """
+    a = np.asarray(a, dtype=float)
+    vi = 1.0 / (3.0 * (1.0 + a) ** 2)
+    v = float(np.prod(1.0 + vi) - 1.0)
+    st = np.array([vi[i] * np.prod(np.delete(1.0 + vi, i)) for i in range(len(a))]) / v
+    return {"mean": 1.0, "variance": v, "S1": vi / v, "ST": st}
+
+
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class TestFunction:
+    """A test function with its domain, input names and known optimum.
+
+    Attributes
+    ----------
+    name : str
+    func : callable
+        ``func(X) -> y`` with ``X`` of shape ``(n, d)`` in the domain below.
+    names : tuple of str
+        Input names, in column order.
+    lower, upper : tuple of float
+        Domain bounds per input.
+    units : tuple of str
+        Input units (``"-"`` for dimensionless).
+    minimum : float or None
+        Known global minimum value.
+    argmin : tuple or None
+        One point where the minimum is reached.
+    reference : str
+        Where the definition comes from.
+    """
+
+    __test__ = False  # not a pytest test class despite its name
+
+    name: str
+    func: object
+    names: tuple
+    lower: tuple
+    upper: tuple
+    units: tuple = field(default=())
+    minimum: float | None = None
+    argmin: tuple | None = None
+    reference: str = ""
+
+    @property
+    def dim(self) -> int:
+        """Number of inputs."""
+        return len(self.names)
+
+    def __call__(self, X) -> np.ndarray:
+        return self.func(X)
+
+    def space(self) -> Space:
+        """The function's domain as a :class:`~doe.space.Space`."""
+        units = self.units or ("-",) * self.dim
+        return Space(tuple(Parameter(n, u, lo, hi) for n, u, lo, hi in
+                           zip(self.names, units, self.lower, self.upper)))
+
+    def from_unit(self, U) -> np.ndarray:
+        """Map points of ``[0, 1]^d`` to the domain."""
+        U = _points(U, self.dim, self.name)
+        lo, hi = np.asarray(self.lower), np.asarray(self.upper)
+        return lo + U * (hi - lo)
+
+    def on_unit(self, U) -> np.ndarray:
+        """Evaluate at points given in the unit cube ``[0, 1]^d``."""
+        return self.func(self.from_unit(U))
+
+
+_VLSE = "Surjanovic & Bingham, Virtual Library of Simulation Experiments"
+TEST_FUNCTIONS = {
+    "branin": TestFunction("branin", branin, ("x1", "x2"), (-5.0, 0.0), (10.0, 15.0),
+                           minimum=5 / (4 * math.pi), argmin=(math.pi, 2.275),
+                           reference="Branin & Hoo 1972; Dixon & Szego 1978; " + _VLSE),
+    "hartmann3": TestFunction("hartmann3", hartmann3, ("x1", "x2", "x3"), (0.0,) * 3, (1.0,) * 3,
+                              minimum=-3.86278, argmin=(0.114614, 0.555649, 0.852547),
+                              reference="Dixon & Szego 1978; " + _VLSE),
+    "hartmann6": TestFunction("hartmann6", hartmann6, tuple(f"x{i}" for i in range(1, 7)), (0.0,) * 6, (1.0,) * 6,
+                              minimum=-3.32237, argmin=(0.20169, 0.150011, 0.476874, 0.275332, 0.311652, 0.6573),
+                              reference="Dixon & Szego 1978; " + _VLSE),
+    "borehole": TestFunction("borehole", borehole, ("r_w", "r", "T_u", "H_u", "T_l", "H_l", "L", "K_w"),
+                             (0.05, 100.0, 63070.0, 990.0, 63.1, 700.0, 1120.0, 9855.0),
+                             (0.15, 50000.0, 115600.0, 1110.0, 116.0, 820.0, 1680.0, 12045.0),
+                             units=("m", "m", "m^2/yr", "m", "m^2/yr", "m", "m", "m/yr"),
+                             reference="Harper & Gupta 1983; Morris, Mitchell & Ylvisaker 1993; " + _VLSE),
+    "ishigami": TestFunction("ishigami", ishigami, ("x1", "x2", "x3"), (-math.pi,) * 3, (math.pi,) * 3,
+                             units=("rad",) * 3,
+                             reference="Ishigami & Homma 1990; Sobol' & Levitan 1999; " + _VLSE),
+    "g_function": TestFunction("g_function", g_function, tuple(f"x{i}" for i in range(1, 9)), (0.0,) * 8, (1.0,) * 8,
+                               minimum=0.0, reference="Saltelli & Sobol' 1995; " + _VLSE),
+}
+
+
+def get(name: str) -> TestFunction:
+    """The test function called ``name`` (see :data:`TEST_FUNCTIONS`)."""
+    try:
+        return TEST_FUNCTIONS[name]
+    except KeyError:
+        raise DoeError(f"no test function '{name}'; choose one of {', '.join(TEST_FUNCTIONS)}") from None
