@@ -111,10 +111,51 @@ def _cmd_evaluate(args):
     print(f"wrote {out}")
 
 
+def _add_robust(sub):
+    p = sub.add_parser("robust", help="settings that stay good under setup scatter; downforce-drag trade-off",
+                       description="Fit the surrogates to the results, then find the nominal optimum of the study's "
+                                   "[robust] objective and the robust optimum under setup scatter (each parameter's "
+                                   "tolerance as one standard deviation), with limit probabilities, a fragility map "
+                                   "and, with [vehicle], what each point is worth on track. Writes the robust JSON "
+                                   "and a trade-off CSV of the non-dominated settings.")
+    p.add_argument("study", type=Path, help="study file (TOML)")
+    p.add_argument("--results", type=Path, required=True, help="results CSV")
+    p.add_argument("--out", type=Path, help="robust JSON (default: reports/<study name>/robust.json)")
+    p.add_argument("--tradeoff-out", type=Path, metavar="CSV",
+                   help="trade-off CSV (default: tradeoff.csv beside the robust JSON)")
+    p.add_argument("--seed", type=int, help="seed of the surrogate fit (default: the study's [plan] seed)")
+    p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
+    p.set_defaults(func=_cmd_robust)
+
+
+def _cmd_robust(args):
+    from .results import read_results
+    from .robust import study_robust, study_tradeoff, write_tradeoff
+    from .study import load_study
+    from .surrogate import fit_surrogates
+
+    study = load_study(args.study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    result = study_robust(study, sset.predict, runs_X=results.X())
+    out = args.out or study.default_output / "robust.json"
+    _write_json(result.to_dict(), out)
+    for label, point in (("nominal", result.nominal), ("robust", result.robust)):
+        _say(point.summary(label, result.objective, result.unit))
+    print(f"wrote {out}")
+    if len(study.robust.tradeoff) >= 2:
+        target = args.tradeoff_out or out.with_name("tradeoff.csv")
+        table = study_tradeoff(study, sset.predict)
+        write_tradeoff(table, target)
+        _say(f"trade-off: {len(table)} non-dominated settings of {', '.join(study.robust.tradeoff)}")
+        print(f"wrote {target}")
+
+
 #: Every verb: (name, function adding its parser). Extend here.
 VERBS = [
     ("plan", _add_plan),
     ("evaluate", _add_evaluate),
+    ("robust", _add_robust),
 ]
 
 

@@ -214,7 +214,7 @@ class Fragility:
     Attributes
     ----------
     parameter, unit : str
-        The parameter and its unit.
+        The parameter and its unit (in JSON also ``per_unit``, e.g. ``"m^2/deg"``).
     step : float
         Error tried on each side: the tolerance, or 1 % of the range when the
         tolerance is 0 (parameter unit).
@@ -240,9 +240,9 @@ class Fragility:
     drop_per_unit: float
     rank: int = 0
 
-    def to_dict(self) -> dict:
-        """Plain dict without the parameter name."""
-        return {"unit": self.unit, "step": self.step, "slope": self.slope, "curvature": self.curvature,
+    def to_dict(self, objective_unit: str = "") -> dict:
+        """Plain dict without the parameter name; ``per_unit`` spells the unit of ``drop_per_unit``."""
+        return {"unit": self.unit, "per_unit": f"{objective_unit or '-'}/{self.unit}", "step": self.step, "slope": self.slope, "curvature": self.curvature,
                 "drop": self.drop, "drop_per_unit": self.drop_per_unit, "rank": self.rank}
 
 
@@ -419,12 +419,22 @@ class PointResult:
     fragility: list
     vehicle: VehicleFigures | None = None
 
-    def to_dict(self) -> dict:
-        """The JSON record."""
+    def to_dict(self, objective_unit: str = "") -> dict:
+        """The JSON record (``objective_unit`` labels the fragility units)."""
         out = {k: v for k, v in self.__dict__.items() if k not in ("fragility", "vehicle")}
-        out["fragility"] = {fr.parameter: fr.to_dict() for fr in self.fragility}
+        out["fragility"] = {fr.parameter: fr.to_dict(objective_unit) for fr in self.fragility}
         out["vehicle"] = self.vehicle.to_dict() if self.vehicle is not None else None
         return out
+
+    def summary(self, label: str, objective: str, unit: str) -> str:
+        """One line for the terminal: the setting, mean +- std of the objective, flags."""
+        where = ", ".join(f"{k} {v:.4g}" for k, v in self.point.items())
+        line = f"{label}: {where}: {objective} {self.mean:.4g} +- {self.std:.2g} {unit} under scatter"
+        if self.vehicle is not None and self.vehicle.lap_time_s is not None:
+            line += f", lap {self.vehicle.lap_time_s:.2f} s"
+        if self.flag:
+            line += f" [check: {self.flag_reason}; {len(self.confirm_runs)} confirming runs in the JSON]"
+        return line
 
 
 def _nearest_run(space: Space, x: np.ndarray, runs_X) -> tuple:
@@ -521,7 +531,7 @@ class RobustResult:
         """The robust JSON."""
         return {"objective": {"response": self.objective, "unit": self.unit, "goal": self.goal, "k": self.k},
                 "method": self.method, "limits": self.limits,
-                "nominal": self.nominal.to_dict(), "robust": self.robust.to_dict(),
+                "nominal": self.nominal.to_dict(self.unit), "robust": self.robust.to_dict(self.unit),
                 "vehicle_change": self.vehicle_change}
 
 
