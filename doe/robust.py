@@ -94,10 +94,15 @@ from .vehicle import Aero, VehicleFigures, compare_figures, vehicle_figures
 
 __all__ = ["scatter_draws", "propagate", "Spread", "Fragility", "fragility", "PointResult", "RobustResult",
            "find_settings", "nondominated", "tradeoff_set", "write_tradeoff", "study_robust", "study_tradeoff",
-           "study_vehicle_figures", "DEFAULT_MAXITER"]
+           "study_vehicle_figures", "DEFAULT_MAXITER", "DEFAULT_RESTARTS"]
 
-#: Generations of the differential-evolution search.
-DEFAULT_MAXITER = 150
+#: Generations of each differential-evolution run.
+DEFAULT_MAXITER = 100
+#: Independent differential-evolution runs per search (the best is kept).
+DEFAULT_RESTARTS = 3
+#: Sobol' pilot points before the nominal and the robust search.
+NOMINAL_PILOT, ROBUST_PILOT = 4096, 256
+SIZE_PER_DIM = 10
 #: Penalty per unit of violation, in multiples of the objective's range over the space.
 _PENALTY = 1e3
 #: A point whose surrogate std exceeds this share of the objective's range is flagged.
@@ -360,28 +365,51 @@ class _Problem:
         return Space(exact, self.space.constraints)
 
 
-def _search(problem: _Problem, robust: bool, seed: int, maxiter: int) -> np.ndarray:
-    """Differential evolution from a population half made of the best points of a Sobol' pilot."""
+def _search(problem: _Problem, robust: bool, seed: int, maxiter: int, restarts: int, pilot_size: int,
+            extra=None) -> tuple:
+    """Best of ``restarts`` differential-evolution runs started from parts of one Sobol' pilot.
+
+    The first run's population holds the pilot's best tenth and the ``extra``
+    unit-cube points, and mutates around the best member (``best1bin``: it
+    keeps narrow peaks the pilot or an earlier search has found); the others
+    start from random pilot points only and mutate around random members
+    (``rand1bin``: slower, but they escape the pilot's local optima). A last
+    ``best1bin`` run starts from the best members of all runs. Returns the best
+    setting (study units) and the pilot's best tenth (unit cube), for seeding a
+    later search.
+    """
     from scipy.optimize import differential_evolution
 
     d = problem.space.dim
     rng = np.random.default_rng(seed)
-    size = max(20, 10 * d)
-    pilot = qmc.Sobol(d, scramble=True, seed=rng).random_base2(int(math.ceil(math.log2(max(256, 8 * size)))))
+    size = max(20, SIZE_PER_DIM * d)
+    pilot = qmc.Sobol(d, scramble=True, seed=rng).random_base2(int(math.ceil(math.log2(max(pilot_size, 8 * size)))))
+    if extra is not None:
+        pilot = np.vstack([np.atleast_2d(extra), pilot])
     values = problem.penalised(pilot, robust)
     order = np.argsort(values, kind="stable")
-    rest = rng.choice(order[size // 2:], size - size // 2, replace=False)
-    init = pilot[np.concatenate([order[: size // 2], rest])]
 
     def func(U):                 # vectorised: U has shape (d, S)
         return problem.penalised(np.asarray(U, dtype=float).T.reshape(-1, d), robust)
 
-    res = differential_evolution(func, [(0.0, 1.0)] * d, maxiter=maxiter, tol=1e-8, atol=0.0, init=init,
-                                 polish=False, vectorized=True, updating="deferred", rng=rng)
-    best = pilot[order[0]]
-    if func(best[:, None])[0] < res.fun:      # never worse than the pilot's best
-        return problem.space.from_unit(best)[0]
-    return problem.space.from_unit(res.x)[0]
+    def evolve(init, strategy):
+        return differential_evolution(func, [(0.0, 1.0)] * d, strategy=strategy, maxiter=maxiter, tol=1e-8,
+                                      atol=0.0, init=init, polish=False, vectorized=True, updating="deferred",
+                                      rng=rng)
+
+    top = max(1, size // 10)
+    members, energies = [pilot[order[:1]]], [values[order[:1]]]
+    for run in range(restarts):
+        lead = order[:top] if run == 0 else order[:0]
+        res = evolve(pilot[np.concatenate([lead, rng.choice(order[top:], size - len(lead), replace=False)])],
+                     "best1bin" if run == 0 else "rand1bin")
+        members.append(res.population), energies.append(res.population_energies)
+    # a last greedy run from the best members of all runs sharpens the best basin found
+    members, energies = np.vstack(members), np.concatenate(energies)
+    pool = np.argsort(energies, kind="stable")[:size]
+    res = evolve(members[pool], "best1bin")
+    best_u = res.x if res.fun <= energies[pool[0]] else members[pool[0]]
+    return problem.space.from_unit(best_u)[0], pilot[order[:top]]
 
 
 @dataclass(frozen=True)
@@ -543,7 +571,8 @@ def _ranges(predict, space: Space, responses, seed) -> dict:
 
 def find_settings(predict, space: Space, objective: str, goal: str, *, k: float = 1.0, limits=(),
                   probability: float = 0.9, samples: int = 256, seed=0, runs_X=None, units=None,
-                  vehicle_block=None, maxiter: int = DEFAULT_MAXITER) -> RobustResult:
+                  vehicle_block=None, maxiter: int = DEFAULT_MAXITER,
+                  restarts: int = DEFAULT_RESTARTS) -> RobustResult:
     """Nominal optimum on the surrogate mean, and robust optimum under setup scatter.
 
     Parameters
@@ -572,7 +601,9 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     vehicle_block : callable, optional
         ``vehicle_block(x) -> VehicleFigures`` at setting ``x`` (study units).
     maxiter : int
-        Generations of the search.
+        Generations of each differential-evolution run.
+    restarts : int
+        Independent runs per search; the best is kept.
 
     Returns
     -------
@@ -595,8 +626,13 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     ranges = _ranges(predict, space, responses, seeds[0])
     problem = _Problem(predict, space, objective, sense, float(k), tuple(limits), float(probability),
                        scatter_draws(space.dim, samples, seeds[1]), ranges)
-    x_nom = _search(problem, robust=False, seed=int(seeds[2]), maxiter=maxiter)
-    x_rob = _search(problem, robust=True, seed=int(seeds[2]), maxiter=maxiter)
+    if int(maxiter) < 1 or int(restarts) < 1:
+        raise DoeError(f"robust: maxiter and restarts must be at least 1, got {maxiter} and {restarts}")
+    # the nominal search is cheap per point (no scatter draws): a dense pilot; its best points and the
+    # nominal optimum seed the robust search (with zero tolerances the two problems coincide)
+    x_nom, seen = _search(problem, False, int(seeds[2]), int(maxiter), int(restarts), NOMINAL_PILOT)
+    x_rob, _ = _search(problem, True, int(seeds[2]), int(maxiter), int(restarts), ROBUST_PILOT,
+                       extra=np.vstack([space.to_unit(x_nom), seen]))
     nominal = _describe_point(problem, x_nom, False, runs_X, vehicle_block)
     robust = _describe_point(problem, x_rob, True, runs_X, vehicle_block)
     units = units or {}
@@ -606,8 +642,8 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     method = {"propagation": "Monte Carlo on the surrogate mean: antithetic normal draws of setup scatter "
                              "(tolerance = one standard deviation), the same draws for every candidate",
               "samples": len(problem.draws), "seed": seed if isinstance(seed, int) else None,
-              "search": f"differential evolution over the unit cube, {maxiter} generations, penalty for "
-                        "broken constraints and limits",
+              "search": f"best of {restarts} differential-evolution runs over the unit cube, {maxiter} "
+                        "generations each, penalty for broken constraints and limits",
               "probability_target": float(probability)}
     lims = [{"response": lim.response, "unit": units.get(lim.response, ""), "min": lim.min, "max": lim.max}
             for lim in limits]
