@@ -81,7 +81,8 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -103,8 +104,8 @@ DEFAULT_RESTARTS = 3
 #: Sobol' pilot points before the nominal and the robust search.
 NOMINAL_PILOT, ROBUST_PILOT = 4096, 256
 SIZE_PER_DIM = 10
-#: Penalty per unit of violation, in multiples of the objective's range over the space.
-_PENALTY = 1e3
+#: Penalty per unit of violation, and its step at the first violation, in multiples of the objective's range.
+_PENALTY, _STEP = 1e3, 10.0
 #: A point whose surrogate std exceeds this share of the objective's range is flagged.
 MODEL_STD_SHARE = 0.05
 
@@ -293,7 +294,7 @@ def fragility(predict, space: Space, objective: str, goal: str, x) -> list:
     order = np.argsort([-fr.drop for fr in out], kind="stable")
     ranks = np.empty(d, dtype=int)
     ranks[order] = np.arange(1, d + 1)
-    return [Fragility(**{**fr.__dict__, "rank": int(r)}) for fr, r in zip(out, ranks)]
+    return [replace(fr, rank=int(r)) for fr, r in zip(out, ranks)]
 
 
 # ---------------------------------------------------------------------------
@@ -356,12 +357,17 @@ class _Problem:
         k = self.k if robust else 0.0
         score = self.sense * obj.mean - k * obj.std
         bad = self.linear_violation(X) + self.limit_violation(spreads, robust)
-        return -score + _PENALTY * (self.ranges[self.objective] or 1.0) * bad
+        scale = self.ranges[self.objective] or 1.0
+        # a step of 10 ranges puts every breaking point behind every keeping one; the slope leads back
+        return -score + np.where(bad > 0, _STEP * scale, 0.0) + _PENALTY * scale * bad
 
     def _space(self, robust: bool) -> Space:
-        if robust:
-            return self.space
-        exact = tuple(type(p)(p.name, p.unit, p.low, p.high, 0.0, p.description) for p in self.space.parameters)
+        return self.space if robust else self.exact_space
+
+    @cached_property
+    def exact_space(self) -> Space:
+        """The space with every tolerance set to 0 (for the nominal search)."""
+        exact = tuple(replace(p, tolerance=0.0) for p in self.space.parameters)
         return Space(exact, self.space.constraints)
 
 

@@ -29,6 +29,30 @@ Minimal example::
     [plan]
     runs = 40
     seed = 1
+
+Optional tables for robust settings and vehicle figures (see
+``studies/demo_vehicle.toml`` for a full example):
+
+``[robust]``
+    ``objective`` (a response with a goal; default the first), ``k`` (robust
+    value = mean -/+ k std, default 1), ``probability`` (each limit must hold
+    with this chance, default 0.9), ``samples`` (Monte-Carlo draws of setup
+    scatter, default 256), ``seed`` (default ``[plan] seed``), ``limits`` (list
+    of ``{ response = "...", max = x, min = y }``, either bound optional),
+    ``tradeoff`` (responses of the trade-off set; default those with a goal),
+    ``targets`` (``{ response = value }`` for trade-off responses with goal none).
+``[vehicle]``
+    ``mass_kg``, ``tyre_mu``, ``power_kw`` (at the wheels), ``wheelbase_m``,
+    ``cg_to_front_axle_m`` (required); ``rolling_resistance`` (-, default
+    0.012), ``drive`` (front | rear | all), ``brake_limit_g``,
+    ``air_density_kg_m3`` (default 1.225); ``cla_response``/``cda_response``
+    (default cla_total/cda_total), ``front_share_response`` or
+    ``aero_front_share`` (front share of the aero load, -); ``speeds_kph`` and
+    ``radii_m`` of the tables.
+``[track]``
+    ``name`` and ``[[track.segments]]``, each ``kind = "straight"`` with
+    ``length_m``, or ``kind = "corner"`` with ``radius_m`` and one of
+    ``angle_deg`` or ``length_m`` (arc). The lap closes on itself.
 """
 from __future__ import annotations
 
