@@ -61,7 +61,11 @@ key                         meaning (unit)
 ``vehicle``                 :class:`doe.vehicle.VehicleFigures` as a dict (with ``[vehicle]``)
 ==========================  ===================================================
 
-``vehicle_change``: ``robust - nominal`` of every vehicle figure (with ``[vehicle]``).
+``vehicle_change``: ``robust - nominal`` of every vehicle figure (with ``[vehicle]``), same
+keys and units as ``vehicle``; a negative ``lap_time_s`` means the robust point is faster.
+``baseline``: the setting the car runs now (``[robust] baseline``), a record like
+``robust`` (limits judged at the robust probability), or null.
+``vehicle_change_from_baseline``: ``robust - baseline`` of the vehicle figures, or null.
 
 Trade-off CSV (written by :func:`write_tradeoff`): the parameter columns (study
 units), then per trade-off response ``<response>`` (surrogate mean, response
@@ -549,6 +553,10 @@ class RobustResult:
     method : dict
     vehicle_change : dict or None
         ``robust - nominal`` of the vehicle figures.
+    baseline : PointResult or None
+        The setting the car runs now, described like the two optima.
+    vehicle_change_from_baseline : dict or None
+        ``robust - baseline`` of the vehicle figures.
     """
 
     objective: str
@@ -560,13 +568,17 @@ class RobustResult:
     limits: list
     method: dict
     vehicle_change: dict | None = None
+    baseline: PointResult | None = None
+    vehicle_change_from_baseline: dict | None = None
 
     def to_dict(self) -> dict:
         """The robust JSON."""
         return {"objective": {"response": self.objective, "unit": self.unit, "goal": self.goal, "k": self.k},
                 "method": self.method, "limits": self.limits,
                 "nominal": self.nominal.to_dict(self.unit), "robust": self.robust.to_dict(self.unit),
-                "vehicle_change": self.vehicle_change}
+                "vehicle_change": self.vehicle_change,
+                "baseline": self.baseline.to_dict(self.unit) if self.baseline is not None else None,
+                "vehicle_change_from_baseline": self.vehicle_change_from_baseline}
 
 
 def _ranges(predict, space: Space, responses, seed) -> dict:
@@ -577,7 +589,7 @@ def _ranges(predict, space: Space, responses, seed) -> dict:
 
 def find_settings(predict, space: Space, objective: str, goal: str, *, k: float = 1.0, limits=(),
                   probability: float = 0.9, samples: int = 256, seed=0, runs_X=None, units=None,
-                  vehicle_block=None, maxiter: int = DEFAULT_MAXITER,
+                  vehicle_block=None, baseline=None, maxiter: int = DEFAULT_MAXITER,
                   restarts: int = DEFAULT_RESTARTS) -> RobustResult:
     """Nominal optimum on the surrogate mean, and robust optimum under setup scatter.
 
@@ -606,6 +618,9 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
         Units of the responses, for the JSON.
     vehicle_block : callable, optional
         ``vehicle_block(x) -> VehicleFigures`` at setting ``x`` (study units).
+    baseline : array_like, shape (d,), optional
+        The setting the car runs now (study units, inside the bounds), to
+        compare with.
     maxiter : int
         Generations of each differential-evolution run.
     restarts : int
@@ -626,6 +641,10 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     if not 0 < probability < 1:
         raise DoeError(f"robust: probability must be between 0 and 1, got {probability!r}")
     space.check_feasible()
+    if baseline is not None:
+        baseline = space._check_shape(baseline)[0]
+        if not space.in_bounds(baseline[None, :])[0]:
+            raise DoeError(f"robust: the baseline {dict(zip(space.names, baseline.tolist()))} is outside the bounds")
     rng = np.random.default_rng(seed)
     seeds = rng.integers(0, 2**63 - 1, size=3)
     responses = list(dict.fromkeys([objective] + [lim.response for lim in limits]))
@@ -641,10 +660,10 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
                        extra=np.vstack([space.to_unit(x_nom), seen]))
     nominal = _describe_point(problem, x_nom, False, runs_X, vehicle_block)
     robust = _describe_point(problem, x_rob, True, runs_X, vehicle_block)
+    base = _describe_point(problem, baseline, True, runs_X, vehicle_block) if baseline is not None else None
     units = units or {}
-    change = None
-    if nominal.vehicle is not None and robust.vehicle is not None:
-        change = compare_figures(nominal.vehicle, robust.vehicle)
+    change = _vehicle_change(nominal, robust)
+    change_base = _vehicle_change(base, robust) if base is not None else None
     method = {"propagation": "Monte Carlo on the surrogate mean: antithetic normal draws of setup scatter "
                              "(tolerance = one standard deviation), the same draws for every candidate",
               "samples": len(problem.draws), "seed": seed if isinstance(seed, int) else None,
@@ -653,7 +672,14 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
               "probability_target": float(probability)}
     lims = [{"response": lim.response, "unit": units.get(lim.response, ""), "min": lim.min, "max": lim.max}
             for lim in limits]
-    return RobustResult(objective, units.get(objective, ""), goal, float(k), nominal, robust, lims, method, change)
+    return RobustResult(objective, units.get(objective, ""), goal, float(k), nominal, robust, lims, method, change,
+                        base, change_base)
+
+
+def _vehicle_change(a: PointResult, b: PointResult) -> dict | None:
+    if a.vehicle is None or b.vehicle is None:
+        return None
+    return compare_figures(a.vehicle, b.vehicle)
 
 
 # ---------------------------------------------------------------------------
@@ -693,9 +719,10 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) ->
         raise DoeError("robust: the study has no [robust] settings")
     units = {resp.name: resp.unit for resp in study.responses}
     block = (lambda x: study_vehicle_figures(study, predict, x[None, :])) if study.vehicle is not None else None
+    baseline = [r.baseline[n] for n in study.space.names] if r.baseline is not None else None
     return find_settings(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
                          probability=r.probability, samples=r.samples, seed=r.seed, runs_X=runs_X, units=units,
-                         vehicle_block=block, maxiter=maxiter)
+                         vehicle_block=block, baseline=baseline, maxiter=maxiter)
 
 
 def study_tradeoff(study, predict, samples: int = 4096) -> pd.DataFrame:

@@ -40,7 +40,8 @@ Optional tables for robust settings and vehicle figures (see
     scatter, default 256), ``seed`` (default ``[plan] seed``), ``limits`` (list
     of ``{ response = "...", max = x, min = y }``, either bound optional),
     ``tradeoff`` (responses of the trade-off set; default those with a goal),
-    ``targets`` (``{ response = value }`` for trade-off responses with goal none).
+    ``targets`` (``{ response = value }`` for trade-off responses with goal none),
+    ``baseline`` (``{ parameter = value, ... }``: the setting run now, to compare with).
 ``[vehicle]``
     ``mass_kg``, ``tyre_mu``, ``power_kw`` (at the wheels), ``wheelbase_m``,
     ``cg_to_front_axle_m`` (required); ``rolling_resistance`` (-, default
@@ -214,6 +215,8 @@ class RobustSettings:
         Responses of the trade-off (non-dominated) set.
     targets : dict of str to float
         For trade-off responses with goal ``none``: the value aimed at (distance to it is minimised).
+    baseline : dict of str to float or None
+        The setting the car runs now, one value per parameter (its unit), to compare with.
     """
 
     objective: str
@@ -225,6 +228,7 @@ class RobustSettings:
     seed: int = 0
     tradeoff: tuple = ()
     targets: dict = field(default_factory=dict)
+    baseline: dict | None = None
 
 
 @dataclass(frozen=True)
@@ -389,7 +393,7 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     plan = _read_plan(_one_table(top, "plan"), len(parameters))
     space = Space(parameters, constraints)
     fit = _read_fit(_one_table(top, "fit"))
-    robust = _read_robust(_one_table(top, "robust"), responses, plan.seed)
+    robust = _read_robust(_one_table(top, "robust"), responses, plan.seed, parameters)
     vehicle = _read_vehicle(_one_table(top, "vehicle"), responses) if "vehicle" in data else None
     track = _read_track(_one_table(top, "track")) if "track" in data else None
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
@@ -536,7 +540,23 @@ def _numbers(t: Table, key: str, default: tuple) -> tuple:
     return tuple(float(v) for v in values)
 
 
-def _read_robust(t: Table, responses, plan_seed: int) -> RobustSettings:
+def _read_baseline(t: Table, parameters) -> dict | None:
+    values = t.take("baseline", dict, default=None)
+    if values is None:
+        return None
+    names = [p.name for p in parameters]
+    for name, value in values.items():
+        if name not in names or isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise t.error("baseline", f"'{name}' must be a parameter ({', '.join(names)}) with a number as its value")
+    for p in parameters:
+        if p.name not in values:
+            raise t.error("baseline", f"give a value for every parameter; '{p.name}' is missing")
+        if not p.low <= values[p.name] <= p.high:
+            raise t.error("baseline", f"{p.name} = {values[p.name]:g} is outside [{p.low:g}, {p.high:g}] {p.unit}")
+    return {n: float(values[n]) for n in names}
+
+
+def _read_robust(t: Table, responses, plan_seed: int, parameters) -> RobustSettings:
     goals = {r.name: r.goal for r in responses}
     first = next((r.name for r in responses if r.goal != "none"), responses[0].name)
     objective = _response_name(t, "objective", responses, default=first)
@@ -568,9 +588,10 @@ def _read_robust(t: Table, responses, plan_seed: int) -> RobustSettings:
     for name, value in targets.items():
         if name not in tradeoff or isinstance(value, bool) or not isinstance(value, (int, float)):
             raise t.error("targets", f"'{name}' must be a trade-off response with a number as its target")
+    baseline = _read_baseline(t, parameters)
     t.finish()
     return RobustSettings(objective, goals[objective], k, prob, tuple(limits), samples, seed, tradeoff,
-                          {n: float(v) for n, v in targets.items()})
+                          {n: float(v) for n, v in targets.items()}, baseline)
 
 
 def _read_vehicle(t: Table, responses) -> VehicleSettings:

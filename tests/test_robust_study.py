@@ -82,11 +82,15 @@ def test_unknown_key_in_new_tables_is_an_error():
         read_study_text(HEAD + SNIPPET.replace("tyre_mu = 1.35", "tyre_mu = 1.35\nmass = 3.0"))
     with pytest.raises(StudyError, match="not a response"):
         read_study_text(HEAD + SNIPPET.replace('response = "cda_total"', 'response = "cd"'))
+    with pytest.raises(StudyError, match="outside"):
+        read_study_text(HEAD + SNIPPET.replace("# baseline = { flap_angle = 4.0", "baseline = { flap_angle = 40.0"))
     with pytest.raises(StudyError, match="a corner takes radius_m"):
         read_study_text(HEAD + SNIPPET.replace("angle_deg = 95.0", "angle_deg = 95.0\nlength_m = 40.0"))
 
 
-def test_study_robust_json_shape_and_limits(study):
+def test_study_robust_json_shape_and_limits():
+    study = read_study_text(HEAD + SNIPPET.replace("# baseline =", "baseline ="))
+    assert study.robust.baseline == {"flap_angle": 4.0, "wing_height": 120.0}
     runs = np.column_stack([np.linspace(0, 20, 12), np.linspace(40, 200, 12)])
     res = study_robust(study, invented_aero, runs_X=runs, maxiter=40)
     data = json.loads(json.dumps(res.to_dict(), allow_nan=False))   # strict JSON
@@ -111,6 +115,10 @@ def test_study_robust_json_shape_and_limits(study):
     assert rob["std"] < nom["std"]
     assert data["objective"] == {"response": "cla_total", "unit": "m^2", "goal": "minimize", "k": 1.0}
     assert isinstance(data["vehicle_change"]["lap_time_s"], float)
+    # the baseline (4 deg of flap) makes less downforce than the robust point: slower in corners
+    assert data["baseline"]["point"] == {"flap_angle": 4.0, "wing_height": 120.0}
+    change = data["vehicle_change_from_baseline"]
+    assert all(v > 0 for v in change["corner_speed_kph"][:2]) and change["lap_time_s"] < 0
 
 
 def test_vehicle_figures_follow_the_surrogate(study):
