@@ -95,6 +95,7 @@ from scipy.stats import qmc
 
 from .errors import DoeError
 from .space import Space
+from .study import ResponseLimit
 from .vehicle import Aero, VehicleFigures, compare_figures, vehicle_figures
 
 __all__ = ["scatter_draws", "propagate", "Spread", "Fragility", "fragility", "PointResult", "RobustResult",
@@ -604,8 +605,9 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     goal : {"maximize", "minimize"}
     k : float
         Weight of the scatter spread in the robust value, -.
-    limits : sequence of doe.study.ResponseLimit
-        ``min <= response <= max`` limits on other responses (their units).
+    limits : sequence of doe.study.ResponseLimit or dict
+        ``min <= response <= max`` limits on other responses (their units); a
+        dict takes the keys ``response``, ``min`` and ``max``.
     probability : float
         Chance each limit must hold at the robust point, -.
     samples : int
@@ -645,6 +647,7 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
         baseline = space._check_shape(baseline)[0]
         if not space.in_bounds(baseline[None, :])[0]:
             raise DoeError(f"robust: the baseline {dict(zip(space.names, baseline.tolist()))} is outside the bounds")
+    limits = tuple(_as_limit(lim) for lim in limits)
     rng = np.random.default_rng(seed)
     seeds = rng.integers(0, 2**63 - 1, size=3)
     responses = list(dict.fromkeys([objective] + [lim.response for lim in limits]))
@@ -674,6 +677,25 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
             for lim in limits]
     return RobustResult(objective, units.get(objective, ""), goal, float(k), nominal, robust, lims, method, change,
                         base, change_base)
+
+
+def _as_limit(lim) -> ResponseLimit:
+    """A :class:`~doe.study.ResponseLimit` from itself or a mapping with ``response``, ``min``, ``max``."""
+    if isinstance(lim, dict):
+        unknown = set(lim) - {"response", "min", "max"}
+        if unknown or "response" not in lim:
+            raise DoeError(f"robust: a limit needs 'response' and 'min' and/or 'max', got {sorted(lim)}")
+        lim = ResponseLimit(lim["response"], lim.get("max"), lim.get("min"))
+    if not isinstance(lim, ResponseLimit):
+        raise DoeError(f"robust: a limit must be a ResponseLimit or a dict, got {lim!r}")
+    for bound in (lim.min, lim.max):
+        if bound is not None and not (isinstance(bound, (int, float)) and math.isfinite(bound)):
+            raise DoeError(f"robust: the limit on '{lim.response}' must be finite numbers, got {bound!r}")
+    if lim.min is None and lim.max is None:
+        raise DoeError(f"robust: the limit on '{lim.response}' needs 'min', 'max' or both")
+    if lim.min is not None and lim.max is not None and not lim.min < lim.max:
+        raise DoeError(f"robust: the limit on '{lim.response}' has min {lim.min:g} >= max {lim.max:g}")
+    return lim
 
 
 def _vehicle_change(a: PointResult, b: PointResult) -> dict | None:

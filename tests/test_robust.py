@@ -220,3 +220,13 @@ def test_nominal_search_finds_published_minima(name):
     res = find_settings(as_predictor(y=tf.func), tf.space(), "y", "minimize", seed=0)
     # the published values are given to 6 significant figures
     assert res.nominal.value_at_point == pytest.approx(tf.minimum, abs=2e-5)
+
+
+def test_limits_given_as_dicts_match_response_limits():
+    space = Space((Parameter("a", "-", 0, 1, 0.02), Parameter("b", "-", 0, 1, 0.02)))
+    pred = as_predictor(y=bowl, g=lambda X: X[:, 0] + X[:, 1])
+    r1 = find_settings(pred, space, "y", "maximize", limits=[{"response": "g", "max": 1.0}], seed=4, maxiter=30)
+    r2 = find_settings(pred, space, "y", "maximize", limits=[ResponseLimit("g", max=1.0)], seed=4, maxiter=30)
+    assert r1.to_dict() == r2.to_dict()
+    with pytest.raises(DoeError):
+        find_settings(pred, space, "y", "maximize", limits=[{"response": "g", "min": 2.0, "max": 1.0}])
