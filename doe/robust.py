@@ -164,6 +164,9 @@ class Spread:
         Mean and standard deviation (ddof 1) of the surrogate mean over the draws, response unit.
     model_std : ndarray
         Root-mean-square surrogate standard deviation over the draws, response unit.
+    draws_mean, draws_std : ndarray, shape (m, n)
+        Surrogate mean and standard deviation at each of the ``n`` scattered
+        settings around each of the ``m`` settings, response unit.
     """
 
     mean: np.ndarray
@@ -253,8 +256,9 @@ class Fragility:
 
     def to_dict(self, objective_unit: str = "") -> dict:
         """Plain dict without the parameter name; ``per_unit`` spells the unit of ``drop_per_unit``."""
-        return {"unit": self.unit, "per_unit": f"{objective_unit or '-'}/{self.unit}", "step": self.step, "slope": self.slope, "curvature": self.curvature,
-                "drop": self.drop, "drop_per_unit": self.drop_per_unit, "rank": self.rank}
+        return {"unit": self.unit, "per_unit": f"{objective_unit or '-'}/{self.unit}", "step": self.step,
+                "slope": self.slope, "curvature": self.curvature, "drop": self.drop,
+                "drop_per_unit": self.drop_per_unit, "rank": self.rank}
 
 
 def fragility(predict, space: Space, objective: str, goal: str, x) -> list:
