@@ -111,7 +111,7 @@ def _lap(quick: bool) -> list[str]:
              "| cell (m) | lap time (s) | time (ms) |", "|---|---|---|"]
     for step in ((1.0, 0.5) if quick else (2.0, 1.0, 0.5, 0.25)):
         t0 = time.perf_counter()
-        lap = lap_time(car, Aero(-0.4, 0.72, 0.4), track, step_m=step)
+        lap = lap_time(car, Aero.from_total(-0.4, 0.72, 0.4), track, step_m=step)
         lines.append(f"| {step} | {lap.time_s:.4f} | {1e3 * (time.perf_counter() - t0):.0f} |")
     return lines
 

@@ -718,13 +718,16 @@ def study_vehicle_figures(study, predict, x) -> VehicleFigures | None:
     v = study.vehicle
     if v is None:
         return None
-    names = [v.cla_response, v.cda_response] + ([v.front_share_response] if v.front_share_response else [])
-    pred = _predict_checked(predict, study.space._check_shape(x), names)
-    share = float(pred[v.front_share_response][0][0]) if v.front_share_response else v.aero_front_share
-    if not 0.0 <= share <= 1.0:
-        raise DoeError(f"vehicle: response '{v.front_share_response}' is {share:.3g} at this setting; "
-                       "it must be the front share of the aero load, between 0 and 1")
-    aero = Aero(float(pred[v.cla_response][0][0]), max(float(pred[v.cda_response][0][0]), 0.0), share)
+    axles = v.cla_front_response is not None
+    names = [v.cda_response] + ([v.cla_front_response, v.cla_rear_response] if axles else [v.cla_response]) + (
+        [v.front_share_response] if v.front_share_response else [])
+    value = {n: float(m[0]) for n, (m, _) in _predict_checked(predict, study.space._check_shape(x), names).items()}
+    cda = max(value[v.cda_response], 0.0)
+    if axles:
+        aero = Aero(value[v.cla_front_response], value[v.cla_rear_response], cda)
+    else:
+        share = value[v.front_share_response] if v.front_share_response else v.aero_front_share
+        aero = Aero.from_total(value[v.cla_response], cda, share)
     return vehicle_figures(v.car, aero, study.track, v.speeds_kph, v.radii_m)
 
 

@@ -239,7 +239,10 @@ class VehicleSettings:
     ----------
     car : doe.vehicle.Vehicle
     cla_response, cda_response : str
-        Responses holding CLA and CDA of the whole car, m^2 (CLA negative for downforce).
+        Responses holding CLA and CDA of the whole car, m^2 (CLA negative for
+        downforce); ``cla_response`` is None when the axle responses are given.
+    cla_front_response, cla_rear_response : str or None
+        Responses holding the CLA at each axle, m^2 (both or neither).
     front_share_response : str or None
         Response holding the front share of the aero load (-); None uses ``aero_front_share``.
     aero_front_share : float
@@ -251,8 +254,10 @@ class VehicleSettings:
     """
 
     car: Vehicle
-    cla_response: str = "cla_total"
+    cla_response: str | None = "cla_total"
     cda_response: str = "cda_total"
+    cla_front_response: str | None = None
+    cla_rear_response: str | None = None
     front_share_response: str | None = None
     aero_front_share: float = 0.5
     speeds_kph: tuple = (100.0, 150.0, 200.0)
@@ -607,13 +612,22 @@ def _read_vehicle(t: Table, responses) -> VehicleSettings:
                air_density_kg_m3=t.take("air_density_kg_m3", float, default=RHO_SEA_LEVEL, **positive))
     if car["cg_to_front_axle_m"] > car["wheelbase_m"]:
         raise t.error("cg_to_front_axle_m", "is longer than wheelbase_m")
+    front = _response_name(t, "cla_front_response", responses, default=None)
+    rear = _response_name(t, "cla_rear_response", responses, default=None)
+    if (front is None) != (rear is None):
+        raise t.error("cla_front_response" if front is None else "cla_rear_response",
+                      "give both cla_front_response and cla_rear_response, or neither")
+    if front is not None:
+        for key in ("cla_response", "front_share_response", "aero_front_share"):
+            if t.has(key):
+                raise t.error(key, "leave it out: cla_front_response and cla_rear_response give the aero load")
     settings = VehicleSettings(
         car=Vehicle(**car),
-        cla_response=_response_name(t, "cla_response", responses, default="cla_total"),
+        cla_response=_response_name(t, "cla_response", responses, default=None if front else "cla_total"),
         cda_response=_response_name(t, "cda_response", responses, default="cda_total"),
+        cla_front_response=front, cla_rear_response=rear,
         front_share_response=_response_name(t, "front_share_response", responses, default=None),
-        aero_front_share=t.take("aero_front_share", float, default=0.5, check=lambda v: 0 <= v <= 1,
-                                why="must be between 0 and 1"),
+        aero_front_share=t.take("aero_front_share", float, default=0.5),
         speeds_kph=_numbers(t, "speeds_kph", VehicleSettings.speeds_kph),
         radii_m=_numbers(t, "radii_m", VehicleSettings.radii_m))
     t.finish()

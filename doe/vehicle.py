@@ -2,7 +2,7 @@
 
 Pure physics on SI units; it knows nothing of plans, surrogates or study files.
 A car is a :class:`Vehicle` (mass, tyres, power, axle geometry), its
-aerodynamics an :class:`Aero` (CLA, CDA and the front share of the aero load),
+aerodynamics an :class:`Aero` (CLA at each axle and CDA),
 and a track a :class:`Track` (straights and constant-radius corners).
 
 Sign convention: ``cla_m2`` is the lift coefficient times its reference area,
@@ -140,41 +140,52 @@ class Vehicle:
 
 @dataclass(frozen=True)
 class Aero:
-    """Aerodynamic coefficients of one configuration.
+    """Aerodynamic coefficients of one configuration, split between the axles.
 
     Attributes
     ----------
-    cla_m2 : float
-        Lift coefficient times reference area, m^2; negative for downforce.
+    cla_front_m2, cla_rear_m2 : float
+        Lift coefficient times reference area acting at the front and rear
+        axle, m^2; negative for downforce. One axle may lift while the other
+        is pressed down.
     cda_m2 : float
         Drag coefficient times reference area, m^2; >= 0.
-    front_share : float
-        Share of the aero vertical load on the front axle, -.
     """
 
-    cla_m2: float
+    cla_front_m2: float
+    cla_rear_m2: float
     cda_m2: float
-    front_share: float = 0.5
 
     def __post_init__(self):
-        if not math.isfinite(float(self.cla_m2)):
-            raise DoeError(f"aero: cla_m2 must be a finite number, got {self.cla_m2!r}")
+        for name in ("cla_front_m2", "cla_rear_m2"):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+                raise DoeError(f"aero: {name} must be a finite number, got {value!r}")
         _positive("cda_m2", self.cda_m2, allow_zero=True)
-        if not 0.0 <= float(self.front_share) <= 1.0:
-            raise DoeError(f"aero: front_share must be between 0 and 1, got {self.front_share!r}")
 
     @classmethod
-    def from_axles(cls, cla_front_m2: float, cla_rear_m2: float, cda_m2: float) -> "Aero":
-        """Build from the front and rear axle CLA (m^2, negative for downforce) and CDA (m^2)."""
-        total = cla_front_m2 + cla_rear_m2
-        if total == 0:
-            return cls(0.0, cda_m2, 0.5)
-        return cls(total, cda_m2, cla_front_m2 / total)
+    def from_total(cls, cla_m2: float, cda_m2: float, front_share: float = 0.5) -> "Aero":
+        """Build from the whole-car CLA (m^2, negative for downforce), CDA (m^2) and the
+        front share of the aero vertical load (-; outside [0, 1] when one axle lifts)."""
+        if not math.isfinite(float(cla_m2)) or not math.isfinite(float(front_share)):
+            raise DoeError(f"aero: cla_m2 and front_share must be finite, got {cla_m2!r} and {front_share!r}")
+        return cls(float(cla_m2) * float(front_share), float(cla_m2) * (1.0 - float(front_share)), cda_m2)
+
+    @property
+    def cla_m2(self) -> float:
+        """Whole-car CLA, m^2 (negative for downforce)."""
+        return float(self.cla_front_m2 + self.cla_rear_m2)
+
+    @property
+    def front_share(self) -> float | None:
+        """Front share of the aero vertical load, -; None when the total is zero."""
+        total = self.cla_m2
+        return float(self.cla_front_m2 / total) if total != 0 else None
 
     @property
     def downforce_area_m2(self) -> float:
         """``S C_L,down = -CLA``, m^2 (positive for downforce)."""
-        return -float(self.cla_m2)
+        return -self.cla_m2
 
 
 # ---------------------------------------------------------------------------
@@ -214,10 +225,10 @@ def axle_loads(vehicle: Vehicle, aero: Aero, speed_m_s):
     front_share : float or ndarray
         ``front_n / (front_n + rear_n)``, -.
     """
-    down, _ = aero_forces(vehicle, aero, speed_m_s)
+    q = _q(vehicle, speed_m_s)
     w = vehicle.weight_n
-    front = w * vehicle.static_front_share + aero.front_share * down
-    rear = w * (1.0 - vehicle.static_front_share) + (1.0 - aero.front_share) * down
+    front = w * vehicle.static_front_share - q * aero.cla_front_m2
+    rear = w * (1.0 - vehicle.static_front_share) - q * aero.cla_rear_m2
     return front, rear, front / (front + rear)
 
 
@@ -501,8 +512,10 @@ class VehicleFigures:
 
     Attributes
     ----------
-    cla_m2, cda_m2, aero_front_share : float
-        The configuration (m^2, m^2, -).
+    cla_m2, cla_front_m2, cla_rear_m2, cda_m2 : float
+        The configuration, m^2 (CLA negative for downforce).
+    aero_front_share : float or None
+        Front share of the aero vertical load, - (None when the total is zero).
     speeds_kph : tuple of float
         Speeds of the force table, km/h.
     downforce_n, drag_n : tuple of float
@@ -520,8 +533,10 @@ class VehicleFigures:
     """
 
     cla_m2: float
+    cla_front_m2: float
+    cla_rear_m2: float
     cda_m2: float
-    aero_front_share: float
+    aero_front_share: float | None
     speeds_kph: tuple
     downforce_n: tuple
     drag_n: tuple
@@ -572,7 +587,8 @@ def vehicle_figures(vehicle: Vehicle, aero: Aero, track: Track | None = None,
     def tup(a):
         return tuple(float(x) for x in np.atleast_1d(a))
 
-    return VehicleFigures(float(aero.cla_m2), float(aero.cda_m2), float(aero.front_share), tup(speeds * 3.6),
+    return VehicleFigures(aero.cla_m2, float(aero.cla_front_m2), float(aero.cla_rear_m2), float(aero.cda_m2),
+                          aero.front_share, tup(speeds * 3.6),
                           tup(down), tup(drag), tup(front), tup(rear), tup(share), tup(radii_m), tup(corners),
                           vmax * 3.6, lap)
 

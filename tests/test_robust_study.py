@@ -47,6 +47,14 @@ goal = "minimize"
 name = "balance_front"
 unit = "-"
 
+[[responses]]
+name = "cla_front"
+unit = "m^2"
+
+[[responses]]
+name = "cla_rear"
+unit = "m^2"
+
 [evaluator]
 kind = "command"
 argv = ["true"]
@@ -62,7 +70,8 @@ def invented_aero(X):
     cda = 0.66 + 0.0006 * flap**2 + 0.01 * h
     bal = 0.45 - 0.25 * down
     z = np.zeros(len(X))
-    return {"cla_total": (cla, z), "cda_total": (cda, z + 1e-4), "balance_front": (bal, z)}
+    return {"cla_total": (cla, z), "cda_total": (cda, z + 1e-4), "balance_front": (bal, z),
+            "cla_front": (cla * bal, z), "cla_rear": (cla * (1 - bal), z)}
 
 
 @pytest.fixture(scope="module")
@@ -73,7 +82,8 @@ def study():
 def test_snippet_tables_are_read(study):
     assert study.robust.objective == "cla_total" and study.robust.goal == "minimize"
     assert [lim.response for lim in study.robust.limits] == ["cda_total", "balance_front"]
-    assert study.vehicle.car.drive == "front" and study.vehicle.front_share_response == "balance_front"
+    assert study.vehicle.car.drive == "front" and study.vehicle.cla_front_response == "cla_front"
+    assert study.vehicle.cla_response is None
     assert len(study.track.segments) == 12
 
 
@@ -84,6 +94,8 @@ def test_unknown_key_in_new_tables_is_an_error():
         read_study_text(HEAD + SNIPPET.replace('response = "cda_total"', 'response = "cd"'))
     with pytest.raises(StudyError, match="outside"):
         read_study_text(HEAD + SNIPPET.replace("# baseline = { flap_angle = 4.0", "baseline = { flap_angle = 40.0"))
+    with pytest.raises(StudyError, match="give both"):
+        read_study_text(HEAD + SNIPPET.replace('cla_rear_response = "cla_rear"\n', ""))
     with pytest.raises(StudyError, match="a corner takes radius_m"):
         read_study_text(HEAD + SNIPPET.replace("angle_deg = 95.0", "angle_deg = 95.0\nlength_m = 40.0"))
 
@@ -126,6 +138,13 @@ def test_vehicle_figures_follow_the_surrogate(study):
     high = study_vehicle_figures(study, invented_aero, [[14.0, 100.0]])
     assert high.downforce_n[0] > low.downforce_n[0]
     assert high.lap_time_s < low.lap_time_s   # the invented map gains more in corners than it loses on straights
+    # the same car described by total CLA and front share gives the same figures (cla_f = share * cla)
+    by_share = read_study_text(HEAD + SNIPPET.replace(
+        'cla_front_response = "cla_front"', 'cla_response = "cla_total"\nfront_share_response = "balance_front"'
+    ).replace('cla_rear_response = "cla_rear"\n', ""))
+    again = study_vehicle_figures(by_share, invented_aero, [[14.0, 100.0]])
+    assert again.front_axle_n == pytest.approx(high.front_axle_n, rel=1e-12)
+    assert again.lap_time_s == pytest.approx(high.lap_time_s, rel=1e-12)
 
 
 def test_study_tradeoff(study):
