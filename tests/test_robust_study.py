@@ -13,7 +13,10 @@ from doe.errors import StudyError
 from doe.robust import study_robust, study_tradeoff, study_vehicle_figures
 from doe.study import read_study_text
 
-SNIPPET = (Path(__file__).parents[1] / "studies" / "demo_vehicle.toml").read_text()
+DEMO = (Path(__file__).parents[1] / "studies" / "demo_vehicle.toml").read_text()
+# the tests' own limits, for the invented map below: drag and the front share of the downforce
+SNIPPET = DEMO.replace('{ response = "cda_total", max = 0.75 }', '{ response = "cda_total", max = 0.80 }').replace(
+    '{ response = "cla_front", max = 0.50 }', '{ response = "balance_front", min = 0.30, max = 0.55 }')
 
 HEAD = """
 [study]
@@ -77,6 +80,11 @@ def invented_aero(X):
 @pytest.fixture(scope="module")
 def study():
     return read_study_text(HEAD + SNIPPET)
+
+
+def test_demo_tables_are_read():
+    demo = read_study_text(HEAD + DEMO)
+    assert [(lim.response, lim.max) for lim in demo.robust.limits] == [("cda_total", 0.75), ("cla_front", 0.50)]
 
 
 def test_snippet_tables_are_read(study):
