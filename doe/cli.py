@@ -254,6 +254,43 @@ def _cmd_sensitivity(args):
     print(f"wrote {out}")
 
 
+def _add_robust(sub):
+    p = sub.add_parser("robust", help="settings that stay good under setup scatter; downforce-drag trade-off",
+                       description="Fit the surrogates to the results, then find the nominal optimum of the study's "
+                                   "[robust] objective and the robust optimum under setup scatter (each parameter's "
+                                   "tolerance as one standard deviation), with limit probabilities, a fragility map "
+                                   "and, with [vehicle], what each point is worth on track. Writes the robust JSON "
+                                   "and a trade-off CSV of the non-dominated settings.")
+    _add_results_options(p)
+    p.add_argument("--out", type=Path, help="robust JSON (default: reports/<study name>/robust.json)")
+    p.add_argument("--tradeoff-out", type=Path, metavar="CSV",
+                   help="trade-off CSV (default: tradeoff.csv beside the robust JSON)")
+    p.set_defaults(func=_cmd_robust)
+
+
+def _cmd_robust(args):
+    from .results import read_results
+    from .robust import study_robust, study_tradeoff, write_tradeoff
+    from .study import load_study
+    from .surrogate import fit_surrogates
+
+    study = load_study(args.study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    result = study_robust(study, sset.predict, runs_X=results.X())
+    out = args.out or study.default_output / "robust.json"
+    _write_json(result.to_dict(), out)
+    for label, point in (("nominal", result.nominal), ("robust", result.robust)):
+        _say(point.summary(label, result.objective, result.unit))
+    print(f"wrote {out}")
+    if len(study.robust.tradeoff) >= 2:
+        target = args.tradeoff_out or out.with_name("tradeoff.csv")
+        table = study_tradeoff(study, sset.predict)
+        write_tradeoff(table, target)
+        _say(f"trade-off: {len(table)} non-dominated settings of {', '.join(study.robust.tradeoff)}")
+        print(f"wrote {target}")
+
+
 #: Every verb: (name, function adding its parser). Extend here.
 VERBS = [
     ("plan", _add_plan),
@@ -261,6 +298,7 @@ VERBS = [
     ("fit", _add_fit),
     ("next", _add_next),
     ("sensitivity", _add_sensitivity),
+    ("robust", _add_robust),
 ]
 
 
