@@ -18,6 +18,7 @@ __all__ = [
     "SurrogateError",
     "NotFittedError",
     "StoreLockedError",
+    "AeroError",
     "where",
 ]
 
@@ -52,6 +53,10 @@ class NotFittedError(SurrogateError):
 
 class StoreLockedError(DoeError):
     """Another process is writing to the same results store."""
+
+
+class AeroError(DoeError):
+    """The built-in aerodynamic model cannot be set up as asked (bad section file, clashing geometry, ...)."""
 
 
 def where(path, line=None, key=None, column=None) -> str:

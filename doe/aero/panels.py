@@ -1,0 +1,399 @@
+"""Two-dimensional potential flow round several bodies: a linear-strength vortex panel method.
+
+Each body is a contour of straight panels carrying a vortex sheet whose
+strength varies linearly along each panel and is continuous from panel to
+panel (the unknowns are the strengths at the nodes). The flow normal to every
+panel vanishes at its mid-point (Neumann condition), and each body carries one
+Kutta condition, ``gamma_first + gamma_last = 0``: the flow leaves the body at
+the node where its contour starts and ends, with the same speed on both sides.
+For a section that node is the trailing edge; for the car it is the edge where
+the flow leaves the body (see :mod:`doe.aero.car`). The ground, when present,
+is the plane ``y = 0`` and is represented by the mirror image of every body
+with opposite vortex strength (an inviscid plane of symmetry, which is also the
+inviscid model of a moving ground).
+
+Assumptions and limits: steady, incompressible, inviscid, two-dimensional flow
+with the separation points fixed by the geometry (no boundary layer, no wake
+displacement, no separation bubbles). Contours must be ordered clockwise
+(trailing edge, lower surface, leading edge, upper surface, trailing edge);
+lengths are in metres or chords, velocities are per unit free-stream speed.
+
+Several configurations with the same panel counts are solved at once: node
+arrays carry a leading batch axis and the influence matrices are built by
+broadcasting.
+
+References
+----------
+.. [1] Katz, J., Plotkin, A. (2001). Low-Speed Aerodynamics, 2nd ed. Cambridge
+   University Press, §10.4.2 (linear-strength vortex element, eqs. 10.72-10.73)
+   and §11.4.2 (linear-strength vortex method, Neumann condition, Kutta condition).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import AeroError
+
+__all__ = ["Layout", "FieldSolution", "solve_field", "sheet_velocity", "source_velocity", "signed_area"]
+
+_TWO_PI = 2.0 * np.pi
+
+
+@dataclass(frozen=True)
+class Layout:
+    """How the nodes of several bodies are stacked in one array.
+
+    Attributes
+    ----------
+    names : tuple of str
+        Body names, in stacking order.
+    nodes : tuple of int
+        Node count of each body (its panel count plus one).
+    leave_speed : tuple of (float or None)
+        None for a lifting body (Kutta condition at its trailing edge); for a
+        bluff body with an open base, the speed, per unit free-stream speed,
+        with which the flow leaves its two separation edges.
+    """
+
+    names: tuple
+    nodes: tuple
+    leave_speed: tuple = ()
+
+    def __post_init__(self):
+        if not self.leave_speed:
+            object.__setattr__(self, "leave_speed", (None,) * len(self.names))
+        if not (len(self.names) == len(self.nodes) == len(self.leave_speed)):
+            raise AeroError("layout: one name, node count and leave speed per body")
+        if any(n < 4 for n in self.nodes):
+            raise AeroError("layout: every body needs at least 3 panels")
+
+    @property
+    def starts(self) -> np.ndarray:
+        """Index of each body's first node in the stacked array."""
+        return np.r_[0, np.cumsum(self.nodes)[:-1]].astype(int)
+
+    @property
+    def n_nodes(self) -> int:
+        """Total number of nodes (= unknowns)."""
+        return int(sum(self.nodes))
+
+    def panel_index(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Start node, end node and body number of every panel, in stacking order."""
+        a, body = [], []
+        for k, (s, n) in enumerate(zip(self.starts, self.nodes)):
+            a.append(np.arange(s, s + n - 1))
+            body.append(np.full(n - 1, k))
+        a = np.concatenate(a)
+        return a, a + 1, np.concatenate(body)
+
+    def index(self, name: str) -> int:
+        """Position of the body called ``name``."""
+        return self.names.index(name)
+
+
+@dataclass
+class FieldSolution:
+    """The solved field of a batch of configurations.
+
+    Attributes
+    ----------
+    layout : Layout
+    nodes : ndarray, shape (B, n_nodes, 2)
+        Node coordinates.
+    gamma : ndarray, shape (B, n_nodes, R)
+        Vortex strength at each node per unit free-stream speed, for each of
+        ``R`` right-hand sides (0: the free stream; 1: a unit upwash on the
+        ``upwash_body``, when asked).
+    qt : ndarray, shape (B, n_panels, R)
+        Surface speed along each panel's direction at its mid-point, per unit
+        free-stream speed (same right-hand sides).
+    mid, normal, length : ndarray
+        Panel mid-points ``(B, n_panels, 2)``, outward unit normals
+        ``(B, n_panels, 2)`` and lengths ``(B, n_panels)``.
+    body : ndarray, shape (n_panels,)
+        Body number of each panel.
+    sigma : ndarray, shape (B, n_bluff, R)
+        Base-source strength of each bluff body (outflow per unit length and
+        free-stream speed), per right-hand side.
+    """
+
+    layout: Layout
+    nodes: np.ndarray
+    gamma: np.ndarray
+    qt: np.ndarray
+    mid: np.ndarray
+    normal: np.ndarray
+    length: np.ndarray
+    body: np.ndarray
+    sigma: np.ndarray = None
+
+    def cp(self, weights=None) -> np.ndarray:
+        """Pressure coefficient at the panel mid-points, ``1 - (q_t / V)^2``, shape ``(B, n_panels)``.
+
+        Parameters
+        ----------
+        weights : array_like, shape (B, R) or (R,), optional
+            How much of each right-hand side to superpose (default: the free
+            stream alone).
+        """
+        return 1.0 - self.surface_speed(weights) ** 2
+
+    def surface_speed(self, weights=None) -> np.ndarray:
+        """Superposed surface speed (see :meth:`cp`), shape ``(B, n_panels)``."""
+        if weights is None:
+            return self.qt[..., 0]
+        w = np.broadcast_to(np.asarray(weights, dtype=float), (self.qt.shape[0], self.qt.shape[2]))
+        return np.einsum("bpr,br->bp", self.qt, w)
+
+    def circulation(self, weights=None) -> np.ndarray:
+        """Clockwise circulation of each body per unit free-stream speed, shape ``(B, n_bodies)``."""
+        g = self.gamma[..., 0] if weights is None else np.einsum(
+            "bnr,br->bn", self.gamma, np.broadcast_to(np.asarray(weights, float), (self.gamma.shape[0],
+                                                                                   self.gamma.shape[2])))
+        a, b, body = self.layout.panel_index()
+        per_panel = 0.5 * (g[:, a] + g[:, b]) * self.length
+        return np.stack([per_panel[:, body == k].sum(axis=1) for k in range(len(self.layout.names))], axis=1)
+
+    def forces(self, cp: np.ndarray, about=(0.0, 0.0)):
+        """Pressure force and moment on each body from a pressure-coefficient field.
+
+        Parameters
+        ----------
+        cp : ndarray, shape (B, n_panels)
+        about : array_like, shape (2,) or (B, 2)
+            Moment centre.
+
+        Returns
+        -------
+        fx, fy, mz : ndarray, shape (B, n_bodies)
+            Force per unit span over dynamic pressure (units of length) and
+            moment per unit span over dynamic pressure (length squared),
+            counter-clockwise positive.
+        """
+        f = -cp[..., None] * self.normal * self.length[..., None]          # (B, P, 2)
+        r = self.mid - np.asarray(about, dtype=float).reshape(-1, 1, 2)
+        m = r[..., 0] * f[..., 1] - r[..., 1] * f[..., 0]
+        out = []
+        for comp in (f[..., 0], f[..., 1], m):
+            out.append(np.stack([comp[:, self.body == k].sum(axis=1) for k in range(len(self.layout.names))],
+                                axis=1))
+        return tuple(out)
+
+
+# ---------------------------------------------------------------------------
+def sheet_velocity(px, py, x1, y1, x2, y2):
+    """Velocity induced by a linear-strength vortex panel, per unit end strengths.
+
+    The panel runs from ``(x1, y1)`` to ``(x2, y2)``; its strength varies
+    linearly from ``gamma_a`` at the start to ``gamma_b`` at the end, positive
+    clockwise (Katz & Plotkin [1]_, eqs. 10.72-10.73, integrated in closed
+    form). On the panel itself the limit from its left side (the outside of a
+    clockwise contour) is taken. All arguments broadcast together.
+
+    Parameters
+    ----------
+    px, py : array_like
+        Field points.
+    x1, y1, x2, y2 : array_like
+        Panel end points.
+
+    Returns
+    -------
+    ua, va, ub, vb : ndarray
+        Velocity components (global axes) per unit ``gamma_a`` and per unit ``gamma_b``.
+
+    References
+    ----------
+    .. [1] Katz, J., Plotkin, A. (2001). Low-Speed Aerodynamics, 2nd ed., §10.4.2.
+    """
+    dx, dy = x2 - x1, y2 - y1
+    length = np.hypot(dx, dy)
+    tx, ty = dx / length, dy / length
+    rx, ry = px - x1, py - y1
+    x = rx * tx + ry * ty                    # panel frame: x along the panel,
+    z = -rx * ty + ry * tx                   # z to its left
+    xl = x - length
+    r1sq = x * x + z * z
+    r2sq = xl * xl + z * z
+    dtheta = np.arctan2(z * length, x * xl + z * z)      # angle the panel subtends, in (-pi, pi]
+    on_panel = (np.abs(z) <= 1e-12 * length) & (x > 0) & (x < length)
+    dtheta = np.where(on_panel, np.pi, dtheta)          # outside limit on the panel itself
+    log = 0.5 * np.log(r1sq / r2sq)                      # ln(r1 / r2)
+    i1 = x * dtheta - z * log                            # integral of s z / r^2 over the panel
+    j1 = x * log - length + z * dtheta                   # integral of s (x - s) / r^2
+    ua_l = (dtheta - i1 / length) / _TWO_PI
+    ub_l = (i1 / length) / _TWO_PI
+    wa_l = -(log - j1 / length) / _TWO_PI
+    wb_l = -(j1 / length) / _TWO_PI
+    return (ua_l * tx - wa_l * ty, ua_l * ty + wa_l * tx,
+            ub_l * tx - wb_l * ty, ub_l * ty + wb_l * tx)
+
+
+def signed_area(points) -> np.ndarray:
+    """Signed area of closed polygons (negative when clockwise), shape ``points.shape[:-2]``."""
+    x, y = points[..., 0], points[..., 1]
+    return 0.5 * np.sum(x * np.roll(y, -1, axis=-1) - np.roll(x, -1, axis=-1) * y, axis=-1)
+
+
+def source_velocity(px, py, x1, y1, x2, y2):
+    """Velocity induced by a constant-strength source panel, per unit strength.
+
+    In the panel's frame ``u = ln(r1/r2) / (2 pi)``, ``w = (theta2 - theta1) / (2 pi)``
+    (Katz & Plotkin [1]_, §10.2.1). Arguments broadcast together; the field
+    points must not lie on the panel.
+
+    Returns
+    -------
+    u, v : ndarray
+        Velocity components in global axes.
+
+    References
+    ----------
+    .. [1] Katz, J., Plotkin, A. (2001). Low-Speed Aerodynamics, 2nd ed., §10.2.1.
+    """
+    dx, dy = x2 - x1, y2 - y1
+    length = np.hypot(dx, dy)
+    tx, ty = dx / length, dy / length
+    rx, ry = px - x1, py - y1
+    x = rx * tx + ry * ty
+    z = -rx * ty + ry * tx
+    xl = x - length
+    u_l = 0.25 * np.log((x * x + z * z) / (xl * xl + z * z)) / np.pi
+    w_l = np.arctan2(z * length, x * xl + z * z) / _TWO_PI
+    return u_l * tx - w_l * ty, u_l * ty + w_l * tx
+
+
+def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = False,
+                upwash_body: str | None = None) -> FieldSolution:
+    """Solve the potential flow round the bodies of one or several configurations.
+
+    A lifting body (a section) gets the Kutta condition ``gamma_first +
+    gamma_last = 0``. A bluff body (``layout.leave_speed`` set: the car) leaves
+    its base open between its two separation edges (the first and last nodes);
+    a constant-strength source on the line joining them represents the
+    displacement of the separated wake, and the flow leaves both edges with the
+    speed ``V_b = sqrt(1 - Cp_base)`` of the base region (the free-streamline
+    condition at a separation edge), so ``gamma_first = -V_b`` and
+    ``gamma_last = V_b``. The source strength is the extra unknown.
+
+    Parameters
+    ----------
+    nodes : array_like, shape (B, n_nodes, 2) or (n_nodes, 2)
+        Stacked contours (see :class:`Layout`), each clockwise, first and last
+        node at the body's separation or trailing edge. With ``ground=True``
+        every node must lie above ``y = 0``.
+    layout : Layout
+    freestream : array_like, shape (2,)
+        Onset flow direction and speed (normally a unit vector).
+    ground : bool
+        Add the mirror image in ``y = 0`` (ground effect).
+    upwash_body : str, optional
+        Also solve for a unit upward onset velocity acting on this body alone
+        (the second right-hand side), as used by the lifting-line correction.
+
+    Returns
+    -------
+    FieldSolution
+
+    References
+    ----------
+    .. [1] Katz, J., Plotkin, A. (2001). Low-Speed Aerodynamics, 2nd ed., §11.4.2.
+    """
+    nodes = np.asarray(nodes, dtype=float)
+    if nodes.ndim == 2:
+        nodes = nodes[None]
+    if nodes.shape[1] != layout.n_nodes or nodes.shape[2] != 2:
+        raise AeroError(f"node array has shape {nodes.shape}; the layout needs (B, {layout.n_nodes}, 2)")
+    if ground and np.any(nodes[..., 1] <= 0.0):
+        raise AeroError("a body touches or crosses the ground plane y = 0")
+    a, b, body = layout.panel_index()
+    p1, p2 = nodes[:, a], nodes[:, b]
+    mid = 0.5 * (p1 + p2)
+    seg = p2 - p1
+    length = np.hypot(seg[..., 0], seg[..., 1])
+    if np.any(length <= 0):
+        raise AeroError("a panel has zero length (two nodes coincide)")
+    tang = seg / length[..., None]
+    normal = np.stack([-tang[..., 1], tang[..., 0]], axis=-1)          # left of the panel = outside
+    A_n, A_t = _influence(mid, p1, p2, a, b, normal, tang, layout.n_nodes)
+    if ground:
+        m1, m2 = p1 * [1.0, -1.0], p2 * [1.0, -1.0]
+        G_n, G_t = _influence(mid, m1, m2, a, b, normal, tang, layout.n_nodes)
+        A_n, A_t = A_n - G_n, A_t - G_t                                 # image vortices turn the other way
+    S_n, S_t = _base_sources(nodes, layout, mid, normal, tang, ground)
+    v = np.asarray(freestream, dtype=float)
+    rhs = [-(normal @ v)]
+    onset_t = [tang @ v]
+    if upwash_body is not None:
+        on = (body == layout.index(upwash_body)).astype(float)
+        rhs.append(-normal[..., 1] * on)
+        onset_t.append(tang[..., 1] * on)
+    B, P, N = nodes.shape[0], len(a), layout.n_nodes
+    n_src = S_n.shape[2]
+    M = np.zeros((B, N + n_src, N + n_src))
+    M[:, :P, :N] = A_n
+    M[:, :P, N:] = S_n
+    R = np.zeros((B, N + n_src, len(rhs)))
+    R[:, :P] = np.stack(rhs, axis=-1)
+    row = P
+    for k in range(len(layout.names)):
+        first, last = layout.starts[k], layout.starts[k] + layout.nodes[k] - 1
+        if layout.leave_speed[k] is None:                               # Kutta: gamma_first + gamma_last = 0
+            M[:, row, first] = M[:, row, last] = 1.0
+            row += 1
+        else:                                                           # both edges at the base pressure
+            for r, panel, speed in ((row, first - k, -layout.leave_speed[k]),
+                                    (row + 1, last - k - 1, layout.leave_speed[k])):
+                M[:, r, :N] = A_t[:, panel]                             # exterior speed on the end panels
+                M[:, r, N:] = S_t[:, panel]
+                R[:, r, 0] = speed - onset_t[0][:, panel]
+                R[:, r, 1:] = -np.stack([o[:, panel] for o in onset_t[1:]], axis=-1) if len(rhs) > 1 else 0.0
+            row += 2
+    try:
+        unknowns = np.linalg.solve(M, R)
+    except np.linalg.LinAlgError as exc:
+        raise AeroError("the panel equations are singular; check that bodies do not overlap") from exc
+    gamma, sigma = unknowns[:, :N], unknowns[:, N:]
+    qt = np.stack(onset_t, axis=-1) + A_t @ gamma + S_t @ sigma
+    return FieldSolution(layout, nodes, gamma, qt, mid, normal, length, body, sigma)
+
+
+def _base_sources(nodes, layout, mid, normal, tang, ground):
+    """Normal and tangential velocity at the collocation points per unit base-source strength."""
+    cols_n, cols_t = [], []
+    for k in range(len(layout.names)):
+        if layout.leave_speed[k] is None:
+            continue
+        up = nodes[:, layout.starts[k] + layout.nodes[k] - 1]             # upper edge (last node)
+        lo = nodes[:, layout.starts[k]]                                   # lower edge (first node)
+        args = (mid[..., 0], mid[..., 1], up[:, None, 0], up[:, None, 1], lo[:, None, 0], lo[:, None, 1])
+        u, v = source_velocity(*args)
+        if ground:
+            ui, vi = source_velocity(mid[..., 0], mid[..., 1], up[:, None, 0], -up[:, None, 1],
+                                     lo[:, None, 0], -lo[:, None, 1])
+            u, v = u + ui, v + vi                                         # image sources have the same sign
+        cols_n.append(u * normal[..., 0] + v * normal[..., 1])
+        cols_t.append(u * tang[..., 0] + v * tang[..., 1])
+    if not cols_n:
+        shape = mid.shape[:2] + (0,)
+        return np.zeros(shape), np.zeros(shape)
+    return np.stack(cols_n, axis=-1), np.stack(cols_t, axis=-1)
+
+
+def _influence(mid, p1, p2, a, b, normal, tang, n_nodes):
+    """Normal and tangential influence matrices, shape (B, n_panels, n_nodes)."""
+    px, py = mid[:, :, None, 0], mid[:, :, None, 1]
+    ua, va, ub, vb = sheet_velocity(px, py, p1[:, None, :, 0], p1[:, None, :, 1],
+                                    p2[:, None, :, 0], p2[:, None, :, 1])
+    nx, ny = normal[..., 0][..., None], normal[..., 1][..., None]
+    tx, ty = tang[..., 0][..., None], tang[..., 1][..., None]
+    B, P = mid.shape[0], mid.shape[1]
+    A_n = np.zeros((B, P, n_nodes))
+    A_t = np.zeros((B, P, n_nodes))
+    A_n[:, :, a] += ua * nx + va * ny
+    A_n[:, :, b] += ub * nx + vb * ny
+    A_t[:, :, a] += ua * tx + va * ty
+    A_t[:, :, b] += ub * tx + vb * ty
+    return A_n, A_t
