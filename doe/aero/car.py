@@ -80,7 +80,7 @@ class CarGeometry:
     front_overhang: float = 0.85
     rear_overhang: float = 0.65
     ground_clearance: float = 0.14
-    rear_lift: float = 0.12
+    rear_lift: float = 0.03
     nose_height: float = 0.72
     bonnet_height: float = 0.95
     windscreen_angle: float = 30.0
@@ -249,6 +249,8 @@ def body_contour(car: CarGeometry, flap_angle, flap_chord: float, n_body: int, n
     rear_panels = n_rear_share
     flap_panels = 0
     edge = main[-1]
+    if flap_chord < 0:
+        raise AeroError(f"flap chord {flap_chord:g} m must be >= 0")
     if flap_chord > 0:
         base_dir = (he - rr) / np.hypot(*(he - rr)) if not steep else np.array([1.0, 0.0])
         ang = np.radians(flap_angle)

@@ -266,7 +266,7 @@ def source_velocity(px, py, x1, y1, x2, y2):
 
 
 def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = False,
-                upwash_body: str | None = None) -> FieldSolution:
+                upwash_body: str | None = None, static_nodes: int = 0) -> FieldSolution:
     """Solve the potential flow round the bodies of one or several configurations.
 
     A lifting body (a section) gets the Kutta condition ``gamma_first +
@@ -292,6 +292,9 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
     upwash_body : str, optional
         Also solve for a unit upward onset velocity acting on this body alone
         (the second right-hand side), as used by the lifting-line correction.
+    static_nodes : int
+        How many leading nodes are the same in every configuration and call
+        (their mutual influence is computed once and cached); 0 for none.
 
     Returns
     -------
@@ -317,11 +320,10 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
         raise AeroError("a panel has zero length (two nodes coincide)")
     tang = seg / length[..., None]
     normal = np.stack([-tang[..., 1], tang[..., 0]], axis=-1)          # left of the panel = outside
-    A_n, A_t = _influence(mid, p1, p2, a, b, normal, tang, layout.n_nodes)
-    if ground:
-        m1, m2 = p1 * [1.0, -1.0], p2 * [1.0, -1.0]
-        G_n, G_t = _influence(mid, m1, m2, a, b, normal, tang, layout.n_nodes)
-        A_n, A_t = A_n - G_n, A_t - G_t                                 # image vortices turn the other way
+    if static_nodes and not np.array_equal(nodes[:, :static_nodes], np.broadcast_to(nodes[:1, :static_nodes],
+                                                                                   nodes[:, :static_nodes].shape)):
+        static_nodes = 0                                                # not the same in the whole batch
+    A_n, A_t = _influence(mid, tang, p1, p2, body, layout.n_nodes, ground, static_nodes)
     S_n, S_t = _base_sources(nodes, layout, mid, normal, tang, ground)
     v = np.asarray(freestream, dtype=float)
     rhs = [-(normal @ v)]
@@ -382,18 +384,94 @@ def _base_sources(nodes, layout, mid, normal, tang, ground):
     return np.stack(cols_n, axis=-1), np.stack(cols_t, axis=-1)
 
 
-def _influence(mid, p1, p2, a, b, normal, tang, n_nodes):
-    """Normal and tangential influence matrices, shape (B, n_panels, n_nodes)."""
-    px, py = mid[:, :, None, 0], mid[:, :, None, 1]
-    ua, va, ub, vb = sheet_velocity(px, py, p1[:, None, :, 0], p1[:, None, :, 1],
-                                    p2[:, None, :, 0], p2[:, None, :, 1])
-    nx, ny = normal[..., 0][..., None], normal[..., 1][..., None]
-    tx, ty = tang[..., 0][..., None], tang[..., 1][..., None]
+def _sheet_nt(mid, tang, p1, p2, own):
+    """Normal and tangential velocity at collocation points per unit node strengths of panels.
+
+    ``mid``/``tang``: (B, Pr, 2) collocation points and their panel tangents;
+    ``p1``/``p2``: (B, Pc, 2) panel ends. ``own`` (Pr, Pc) marks a point on its
+    own panel. Same closed form as :func:`sheet_velocity`, projected directly:
+    with ``c = t_j . t_i`` and ``s = t_j . n_i``, the normal component is
+    ``u s + w c`` and the tangential one ``u c - w s``.
+    """
+    d = p2 - p1
+    length = np.hypot(d[..., 0], d[..., 1])[:, None, :]
+    tjx, tjy = d[..., 0][:, None, :] / length, d[..., 1][:, None, :] / length
+    rx = mid[..., 0][:, :, None] - p1[..., 0][:, None, :]
+    ry = mid[..., 1][:, :, None] - p1[..., 1][:, None, :]
+    x = rx * tjx + ry * tjy
+    z = ry * tjx - rx * tjy
+    xl = x - length
+    zz = z * z
+    dtheta = np.arctan2(z * length, x * xl + zz)
+    if own is not None:
+        dtheta[:, own] = np.pi                                 # outside limit on the panel itself
+    log = 0.5 * np.log((x * x + zz) / (xl * xl + zz))
+    i1 = (x * dtheta - z * log) / length
+    j1 = (x * log + z * dtheta) / length - 1.0
+    ua, ub = dtheta - i1, i1                                    # times 2 pi, in the panel frame
+    wa, wb = j1 - log, -j1
+    tix, tiy = tang[..., 0][:, :, None], tang[..., 1][:, :, None]
+    c = tjx * tix + tjy * tiy
+    sn = tjy * tix - tjx * tiy
+    k = 1.0 / _TWO_PI
+    return ((ua * sn + wa * c) * k, (ub * sn + wb * c) * k, (ua * c - wa * sn) * k, (ub * c - wb * sn) * k)
+
+
+def _block(mid, tang, p1, p2, ground, own):
+    """:func:`_sheet_nt` of the panels plus (with ``ground``) minus that of their mirror images."""
+    out = _sheet_nt(mid, tang, p1, p2, own)
+    if ground:
+        flip = np.array([1.0, -1.0])
+        img = _sheet_nt(mid, tang, p1 * flip, p2 * flip, None)
+        out = tuple(o - g for o, g in zip(out, img))              # image vortices turn the other way
+    return out
+
+
+#: Influence blocks of static leading nodes, keyed by their coordinates (bounded in size).
+_STATIC_CACHE: dict = {}
+_STATIC_CACHE_SIZE = 8
+
+
+def _influence(mid, tang, p1, p2, body, n_nodes, ground, n_static):
+    """Normal and tangential influence matrices, shape (B, n_panels, n_nodes).
+
+    The first ``n_static`` nodes are the same in every configuration of the
+    batch (the car without its flap); their panels' influence on their own
+    collocation points is computed once and cached. Panel ``j`` of body ``k``
+    runs from node ``j + k`` to node ``j + k + 1``, so every block lands in
+    contiguous columns.
+    """
     B, P = mid.shape[0], mid.shape[1]
     A_n = np.zeros((B, P, n_nodes))
     A_t = np.zeros((B, P, n_nodes))
-    A_n[:, :, a] += ua * nx + va * ny
-    A_n[:, :, b] += ub * nx + vb * ny
-    A_t[:, :, a] += ua * tx + va * ty
-    A_t[:, :, b] += ub * tx + vb * ty
+    ps = max(n_static - 1, 0)                                   # panels wholly on static nodes
+    own = np.eye(P, dtype=bool)
+
+    def put(r0, r1, c0, c1, blocks):
+        na, nb, ta, tb = blocks
+        for k in np.unique(body[c0:c1]):
+            cols = np.flatnonzero(body[c0:c1] == k)
+            j0, j1 = c0 + cols[0], c0 + cols[-1] + 1
+            sa, sb = slice(j0 + k, j1 + k), slice(j0 + k + 1, j1 + k + 1)
+            q0, q1 = cols[0], cols[-1] + 1
+            A_n[:, r0:r1, sa] += na[..., q0:q1]
+            A_n[:, r0:r1, sb] += nb[..., q0:q1]
+            A_t[:, r0:r1, sa] += ta[..., q0:q1]
+            A_t[:, r0:r1, sb] += tb[..., q0:q1]
+
+    if ps == 0:
+        put(0, P, 0, P, _block(mid, tang, p1, p2, ground, own))
+        return A_n, A_t
+    key = (ground, p1[0, :ps].tobytes(), p2[0, :ps].tobytes())
+    cached = _STATIC_CACHE.get(key)
+    if cached is None:
+        cached = tuple(x[0] for x in _block(mid[:1, :ps], tang[:1, :ps], p1[:1, :ps], p2[:1, :ps], ground,
+                                            own[:ps, :ps]))
+        if len(_STATIC_CACHE) >= _STATIC_CACHE_SIZE:
+            _STATIC_CACHE.pop(next(iter(_STATIC_CACHE)))
+        _STATIC_CACHE[key] = cached
+    put(0, ps, 0, ps, cached)
+    if ps < P:
+        put(0, P, ps, P, _block(mid, tang, p1[:, ps:], p2[:, ps:], ground, own[:, ps:]))
+        put(ps, P, 0, ps, _block(mid[:, ps:], tang[:, ps:], p1[:, :ps], p2[:, :ps], ground, own[ps:, :ps]))
     return A_n, A_t
