@@ -61,9 +61,10 @@ class Coefficients:
         Model choice, set so that the invented hatchback's lift lies in the
         handbook range (Hucho; memory).
     base_pressure : float
-        Base pressure coefficient behind the separation line (Hucho gives about
-        -0.1 to -0.3 for cars; memory). It sets the speed with which the flow
-        leaves the separation edges and the base drag.
+        Base pressure coefficient on the base, behind the separation line
+        (Hucho gives about -0.1 to -0.3 for cars; memory). It gives the base
+        drag and the base's share of lift and moment; the potential flow does
+        not know it (it only fixes where the flow leaves the body).
     forebody_cd : float
         Drag coefficient on the frontal area of everything the centreline model
         does not see (forebody, wheels, mirrors, underbody friction, cooling).
@@ -88,7 +89,7 @@ class Coefficients:
         rear edge (Ahmed, Ramm & Faltin 1984: about 30 degrees).
     """
 
-    body_3d_factor: float = 0.30
+    body_3d_factor: float = 0.12
     base_pressure: float = -0.15
     forebody_cd: float = 0.17
     viscous_lift_factor: float = 0.88
@@ -109,7 +110,7 @@ class Coefficients:
 
 #: Plausible range of each coefficient (what a calibration may explore).
 COEFFICIENT_RANGES = {
-    "body_3d_factor": (0.1, 0.8),
+    "body_3d_factor": (0.03, 0.5),
     "base_pressure": (-0.4, -0.05),
     "forebody_cd": (0.08, 0.30),
     "viscous_lift_factor": (0.75, 1.0),
@@ -367,14 +368,13 @@ class RearPackageModel:
 
     def _solve(self, geoms, keep_cp):
         st, co = self.settings, self.settings.coefficients
-        vb = np.sqrt(1.0 - co.base_pressure)
         nb = len(geoms[0]["body"].nodes)
         static = nb - geoms[0]["body"].flap_panels                            # the car without its flap
         if st.has_wing:
-            layout = Layout(("body", "wing"), (nb, len(geoms[0]["wing"])), (vb, None))
+            layout = Layout(("body", "wing"), (nb, len(geoms[0]["wing"])), (True, False))
             nodes = np.stack([np.vstack([g["body"].nodes, g["wing"]]) for g in geoms])
         else:
-            layout = Layout(("body",), (nb,), (vb,))
+            layout = Layout(("body",), (nb,), (True,))
             nodes = np.stack([g["body"].nodes for g in geoms])
         sol = solve_field(nodes, layout, ground=st.ground, upwash_body="wing" if st.has_wing else None,
                           static_nodes=static)

@@ -36,7 +36,7 @@ import numpy as np
 
 from ..errors import AeroError
 
-__all__ = ["Layout", "FieldSolution", "solve_field", "sheet_velocity", "source_velocity", "signed_area"]
+__all__ = ["Layout", "FieldSolution", "solve_field", "sheet_velocity", "signed_area"]
 
 _TWO_PI = 2.0 * np.pi
 
@@ -51,21 +51,21 @@ class Layout:
         Body names, in stacking order.
     nodes : tuple of int
         Node count of each body (its panel count plus one).
-    leave_speed : tuple of (float or None)
-        None for a lifting body (Kutta condition at its trailing edge); for a
-        bluff body with an open base, the speed, per unit free-stream speed,
-        with which the flow leaves its two separation edges.
+    bluff : tuple of bool
+        Per body: False for a lifting body (Kutta condition at its trailing
+        edge); True for a bluff body whose base is left open between its two
+        separation edges (its first and last nodes), see :func:`solve_field`.
     """
 
     names: tuple
     nodes: tuple
-    leave_speed: tuple = ()
+    bluff: tuple = ()
 
     def __post_init__(self):
-        if not self.leave_speed:
-            object.__setattr__(self, "leave_speed", (None,) * len(self.names))
-        if not (len(self.names) == len(self.nodes) == len(self.leave_speed)):
-            raise AeroError("layout: one name, node count and leave speed per body")
+        if not self.bluff:
+            object.__setattr__(self, "bluff", (False,) * len(self.names))
+        if not (len(self.names) == len(self.nodes) == len(self.bluff)):
+            raise AeroError("layout: one name, node count and bluff flag per body")
         if any(n < 4 for n in self.nodes):
             raise AeroError("layout: every body needs at least 3 panels")
 
@@ -115,8 +115,8 @@ class FieldSolution:
     body : ndarray, shape (n_panels,)
         Body number of each panel.
     sigma : ndarray, shape (B, n_bluff, R)
-        Base-source strength of each bluff body (outflow per unit length and
-        free-stream speed), per right-hand side.
+        Peak base-source strength of each bluff body (outflow per unit length
+        and free-stream speed), per right-hand side.
     """
 
     layout: Layout
@@ -237,46 +237,20 @@ def signed_area(points) -> np.ndarray:
     return 0.5 * np.sum(x * np.roll(y, -1, axis=-1) - np.roll(x, -1, axis=-1) * y, axis=-1)
 
 
-def source_velocity(px, py, x1, y1, x2, y2):
-    """Velocity induced by a constant-strength source panel, per unit strength.
-
-    In the panel's frame ``u = ln(r1/r2) / (2 pi)``, ``w = (theta2 - theta1) / (2 pi)``
-    (Katz & Plotkin [1]_, §10.2.1). Arguments broadcast together; the field
-    points must not lie on the panel.
-
-    Returns
-    -------
-    u, v : ndarray
-        Velocity components in global axes.
-
-    References
-    ----------
-    .. [1] Katz, J., Plotkin, A. (2001). Low-Speed Aerodynamics, 2nd ed., §10.2.1.
-    """
-    dx, dy = x2 - x1, y2 - y1
-    length = np.hypot(dx, dy)
-    tx, ty = dx / length, dy / length
-    rx, ry = px - x1, py - y1
-    x = rx * tx + ry * ty
-    z = -rx * ty + ry * tx
-    xl = x - length
-    u_l = 0.25 * np.log((x * x + z * z) / (xl * xl + z * z)) / np.pi
-    w_l = np.arctan2(z * length, x * xl + z * z) / _TWO_PI
-    return u_l * tx - w_l * ty, u_l * ty + w_l * tx
-
-
 def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = False,
                 upwash_body: str | None = None, static_nodes: int = 0) -> FieldSolution:
     """Solve the potential flow round the bodies of one or several configurations.
 
     A lifting body (a section) gets the Kutta condition ``gamma_first +
-    gamma_last = 0``. A bluff body (``layout.leave_speed`` set: the car) leaves
-    its base open between its two separation edges (the first and last nodes);
-    a constant-strength source on the line joining them represents the
-    displacement of the separated wake, and the flow leaves both edges with the
-    speed ``V_b = sqrt(1 - Cp_base)`` of the base region (the free-streamline
-    condition at a separation edge), so ``gamma_first = -V_b`` and
-    ``gamma_last = V_b``. The source strength is the extra unknown.
+    gamma_last = 0``. A bluff body (the car) leaves its base open between its
+    two separation edges, its first and last nodes. A source sheet on the line
+    joining them, of triangular distribution (zero at the edges), represents
+    the displacement of the separated wake; its strength is the extra unknown.
+    The flow must leave both edges smoothly: the sheet strength vanishes at
+    each edge, ``gamma_first = gamma_last = 0`` (the Kutta condition of a
+    sheet's free edge), which fixes both the circulation and the wake
+    displacement. The base pressure itself is not imposed (see
+    :mod:`doe.aero.model`).
 
     Parameters
     ----------
@@ -342,16 +316,12 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
     row = P
     for k in range(len(layout.names)):
         first, last = layout.starts[k], layout.starts[k] + layout.nodes[k] - 1
-        if layout.leave_speed[k] is None:                               # Kutta: gamma_first + gamma_last = 0
+        if not layout.bluff[k]:                                         # Kutta: gamma_first + gamma_last = 0
             M[:, row, first] = M[:, row, last] = 1.0
             row += 1
-        else:                                                           # both edges at the base pressure
-            for r, panel, speed in ((row, first - k, -layout.leave_speed[k]),
-                                    (row + 1, last - k - 1, layout.leave_speed[k])):
-                M[:, r, :N] = A_t[:, panel]                             # exterior speed on the end panels
-                M[:, r, N:] = S_t[:, panel]
-                R[:, r, 0] = speed - onset_t[0][:, panel]
-                R[:, r, 1:] = -np.stack([o[:, panel] for o in onset_t[1:]], axis=-1) if len(rhs) > 1 else 0.0
+        else:                                                           # regular flow at both edges
+            M[:, row, first] = 1.0
+            M[:, row + 1, last] = 1.0
             row += 2
     try:
         unknowns = np.linalg.solve(M, R)
@@ -363,25 +333,40 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
 
 
 def _base_sources(nodes, layout, mid, normal, tang, ground):
-    """Normal and tangential velocity at the collocation points per unit base-source strength."""
+    """Normal and tangential velocity at the collocation points per unit base-source strength.
+
+    The base source has a triangular distribution along the base line, zero
+    at both separation edges and ``sigma`` half-way, so that it adds no
+    singular velocity at the edges. A linear source sheet induces the velocity
+    of the linear vortex sheet of the same strengths turned by +90 degrees,
+    ``(u, v) -> (-v, u)``. Image sources have the same sign as the sources.
+    """
     cols_n, cols_t = [], []
     for k in range(len(layout.names)):
-        if layout.leave_speed[k] is None:
+        if not layout.bluff[k]:
             continue
-        up = nodes[:, layout.starts[k] + layout.nodes[k] - 1]             # upper edge (last node)
-        lo = nodes[:, layout.starts[k]]                                   # lower edge (first node)
-        args = (mid[..., 0], mid[..., 1], up[:, None, 0], up[:, None, 1], lo[:, None, 0], lo[:, None, 1])
-        u, v = source_velocity(*args)
+        up = nodes[:, layout.starts[k] + layout.nodes[k] - 1][:, None, :]   # upper edge (last node)
+        lo = nodes[:, layout.starts[k]][:, None, :]                         # lower edge (first node)
+        u, v = _triangle_source(mid, up, lo)
         if ground:
-            ui, vi = source_velocity(mid[..., 0], mid[..., 1], up[:, None, 0], -up[:, None, 1],
-                                     lo[:, None, 0], -lo[:, None, 1])
-            u, v = u + ui, v + vi                                         # image sources have the same sign
+            flip = np.array([1.0, -1.0])
+            ui, vi = _triangle_source(mid, up * flip, lo * flip)
+            u, v = u + ui, v + vi
         cols_n.append(u * normal[..., 0] + v * normal[..., 1])
         cols_t.append(u * tang[..., 0] + v * tang[..., 1])
     if not cols_n:
         shape = mid.shape[:2] + (0,)
         return np.zeros(shape), np.zeros(shape)
     return np.stack(cols_n, axis=-1), np.stack(cols_t, axis=-1)
+
+
+def _triangle_source(mid, up, lo):
+    """Velocity of a source sheet rising linearly from 0 at ``up`` to 1 half-way and back to 0 at ``lo``."""
+    half = 0.5 * (up + lo)
+    x, y = mid[..., 0], mid[..., 1]
+    _, _, ub, vb = sheet_velocity(x, y, up[..., 0], up[..., 1], half[..., 0], half[..., 1])
+    ua, va, _, _ = sheet_velocity(x, y, half[..., 0], half[..., 1], lo[..., 0], lo[..., 1])
+    return -(vb + va), ub + ua
 
 
 def _sheet_nt(mid, tang, p1, p2, own):
