@@ -405,8 +405,10 @@ class RearPackageModel:
         cl2d, a_w = fy2d / c, np.clip(dfy / c, 2.0, 12.0)
         ar_eff = endplate_aspect_ratio(st.span / c, st.endplate_height, st.span)
         ll = glauert(ar_eff, a_w)
-        target = cl2d * ll.lift_factor(a_w) * co.viscous_lift_factor
-        cp1 = 1.0 - (q0 + ((target - cl2d) / a_w)[:, None] * q1) ** 2
+        inviscid = cl2d * ll.lift_factor(a_w)
+        target = inviscid * co.viscous_lift_factor
+        # the stall rule reads the inviscid pressures of the 3-D loading, as its authors did
+        cp1 = 1.0 - (q0 + ((inviscid - cl2d) / a_w)[:, None] * q1) ** 2
         first, last = np.flatnonzero(wing)[[0, -1]]
         dcp = pressure_difference(cp1, first, last)
         factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag).apply(dcp)

@@ -254,7 +254,8 @@ def section_from_points(points, name: str = "", where: str = "<points>") -> Sect
     chord_vec = te - pts[i_le]
     chord = float(np.hypot(*chord_vec))
     if chord <= 0 or i_le in (0, len(pts) - 1):
-        raise AeroError(f"{where}: cannot find a leading edge away from the trailing edge")
+        raise AeroError(f"{where}: points are badly ordered: the contour must start and end at the "
+                        "trailing edge and pass the leading edge in between")
     gap = np.hypot(*(pts[-1] - pts[0])) / chord
     if gap > MAX_TE_GAP:
         raise AeroError(f"{where}: the contour is not closed: its ends are {gap:.3f} chords apart "
