@@ -101,7 +101,8 @@ def test_grid_convergence_of_the_car():
     # for the wing and 2.2-3.4 % for the body here; a known limit, see doe.aero.model)
     pts = dict(flap_angle=[15.0, 35.0], wing_aoa=[3.0, 9.0], wing_height=[80.0, 160.0])
     coarse = _run(BASE, **pts)
-    fine = _run(replace(BASE, wing_panels=140, body_panels=220, flap_panels=16), **pts)
+    fine = _run(replace(BASE, wing_panels=2 * BASE.wing_panels, body_panels=2 * BASE.body_panels,
+                       flap_panels=2 * BASE.flap_panels), **pts)
     assert np.all(np.abs(fine["cla_wing"] / coarse["cla_wing"] - 1) < 0.015)
     assert np.all(np.abs(fine["cla_body"] / coarse["cla_body"] - 1) < 0.04)
     assert np.all(np.abs(fine["cda_total"] / coarse["cda_total"] - 1) < 0.01)

@@ -33,6 +33,7 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass, fields
+from functools import lru_cache
 
 import numpy as np
 
@@ -204,6 +205,33 @@ def _resample(poly, n, cluster_ends=True):
     return np.column_stack([np.interp(u * s[-1], s, poly[:, 0]), np.interp(u * s[-1], s, poly[:, 1])])
 
 
+@lru_cache(maxsize=16)
+def _car_outline(car: CarGeometry, n_body: int, critical_slant: float):
+    """Nodes of the car without its flap (cached: the same for every configuration of a study)."""
+    L, hc = car.length, car.ground_clearance
+    kick = car.rear_axle + 0.25 * car.rear_overhang
+    lower = np.array([L, hc + car.rear_lift])
+    ws, rr, he = car.windscreen_base, car.roof_rear, car.hatch_edge
+    rt = rr - [car.roof_length, 0.0]
+    steep = car.rear_window_angle > critical_slant
+    key = [lower, [kick, hc], [0.25, hc], [0.0, 0.5 * (hc + car.nose_height)], [0.12, car.nose_height],
+           ws, rt, rr]
+    radii = [0.30, 0.25, 0.25, 0.20, 0.10, 0.30] + ([] if steep else [0.25])
+    if not steep:
+        key.append(he)
+    poly = _fillet(np.array(key, dtype=float), radii, 9)
+    n_rear = 0 if steep else max(6, int(round(n_body * 0.12)))
+    if steep:
+        main = _resample(poly, n_body)
+    else:
+        i_rr = int(np.argmin(np.hypot(*(poly - rr).T)))
+        head = _resample(poly[: i_rr + 1], n_body - n_rear)
+        window = _resample(np.array([head[-1], he]), n_rear)
+        main = np.vstack([head, window[1:]])
+    main.setflags(write=False)
+    return main, n_rear, steep
+
+
 def body_contour(car: CarGeometry, flap_angle, flap_chord: float, n_body: int, n_flap: int,
                  critical_slant: float = 30.0) -> BodyContour:
     """Panel nodes of the centreline profile, with the flap (see the module docstring).
@@ -226,26 +254,9 @@ def body_contour(car: CarGeometry, flap_angle, flap_chord: float, n_body: int, n
     -------
     BodyContour
     """
-    L, hc = car.length, car.ground_clearance
-    kick = car.rear_axle + 0.25 * car.rear_overhang
-    lower = np.array([L, hc + car.rear_lift])
-    ws, rr, he = car.windscreen_base, car.roof_rear, car.hatch_edge
-    rt = rr - [car.roof_length, 0.0]
-    steep = car.rear_window_angle > critical_slant
-    key = [lower, [kick, hc], [0.25, hc], [0.0, 0.5 * (hc + car.nose_height)], [0.12, car.nose_height],
-           ws, rt, rr]
-    radii = [0.30, 0.25, 0.25, 0.20, 0.10, 0.30] + ([] if steep else [0.25])
-    if not steep:
-        key.append(he)
-    poly = _fillet(np.array(key, dtype=float), radii, 9)
-    n_rear_share = 0 if steep else max(6, int(round(n_body * 0.12)))
-    if steep:
-        main = _resample(poly, n_body)
-    else:
-        i_rr = int(np.argmin(np.hypot(*(poly - rr).T)))
-        head = _resample(poly[: i_rr + 1], n_body - n_rear_share)
-        window = _resample(np.array([head[-1], he]), n_rear_share)
-        main = np.vstack([head, window[1:]])
+    main, n_rear_share, steep = _car_outline(car, n_body, critical_slant)
+    he, rr = car.hatch_edge, car.roof_rear
+    lower = main[0]
     rear_panels = n_rear_share
     flap_panels = 0
     edge = main[-1]
@@ -293,5 +304,8 @@ def wing_contour(section_points, chord: float, aoa_deg, leading_edge) -> np.ndar
 
 def min_distance(a, b) -> float:
     """Smallest distance between the nodes of two contours, m."""
+    lo, hi = a.min(axis=0), a.max(axis=0)
+    near = np.all((b > lo - 0.5) & (b < hi + 0.5), axis=1)    # only nodes within 0.5 m can be the closest
+    b = b[near] if near.any() else b
     d = a[:, None, :] - b[None, :, :]
     return float(np.sqrt(np.min(np.sum(d * d, axis=-1))))

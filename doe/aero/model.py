@@ -227,8 +227,8 @@ class ModelSettings:
     speed: float = 40.0
     density: float = ISA_DENSITY
     temperature: float = ISA_TEMPERATURE
-    wing_panels: int = 70
-    body_panels: int = 110
+    wing_panels: int = 60
+    body_panels: int = 100
     flap_panels: int = 8
     ground: bool = True
     has_wing: bool = True

@@ -379,27 +379,31 @@ def _sheet_nt(mid, tang, p1, p2, own):
     ``u s + w c`` and the tangential one ``u c - w s``.
     """
     d = p2 - p1
-    length = np.hypot(d[..., 0], d[..., 1])[:, None, :]
-    tjx, tjy = d[..., 0][:, None, :] / length, d[..., 1][:, None, :] / length
+    length = np.hypot(d[..., 0], d[..., 1])
+    tjx, tjy = (d[..., 0] / length)[:, None, :], (d[..., 1] / length)[:, None, :]
+    ax, ay = tjx / length[:, None, :], tjy / length[:, None, :]
     rx = mid[..., 0][:, :, None] - p1[..., 0][:, None, :]
     ry = mid[..., 1][:, :, None] - p1[..., 1][:, None, :]
-    x = rx * tjx + ry * tjy
-    z = ry * tjx - rx * tjy
-    xl = x - length
+    x = rx * ax + ry * ay                                       # panel frame, in panel lengths
+    z = ry * ax - rx * ay
+    xl = x - 1.0
     zz = z * z
-    dtheta = np.arctan2(z * length, x * xl + zz)
+    dtheta = np.arctan2(z, x * xl + zz)                         # angle the panel subtends
     if own is not None:
         dtheta[:, own] = np.pi                                 # outside limit on the panel itself
-    log = 0.5 * np.log((x * x + zz) / (xl * xl + zz))
-    i1 = (x * dtheta - z * log) / length
-    j1 = (x * log + z * dtheta) / length - 1.0
-    ua, ub = dtheta - i1, i1                                    # times 2 pi, in the panel frame
-    wa, wb = j1 - log, -j1
+    log = 0.5 * np.log((x * x + zz) / (xl * xl + zz))          # ln(r1 / r2)
+    i1 = x * dtheta - z * log
+    j1 = x * log + z * dtheta - 1.0
     tix, tiy = tang[..., 0][:, :, None], tang[..., 1][:, :, None]
-    c = tjx * tix + tjy * tiy
-    sn = tjy * tix - tjx * tiy
     k = 1.0 / _TWO_PI
-    return ((ua * sn + wa * c) * k, (ub * sn + wb * c) * k, (ua * c - wa * sn) * k, (ub * c - wb * sn) * k)
+    ck = (tjx * tix + tjy * tiy) * k                            # cos(phi_j - phi_i) / 2 pi
+    sk = (tjy * tix - tjx * tiy) * k                            # sin(phi_j - phi_i) / 2 pi
+    # panel-frame velocities (times 2 pi): u_a = dtheta - i1, u_b = i1, w_a = j1 - log, w_b = -j1
+    nb = i1 * sk - j1 * ck
+    tb = i1 * ck + j1 * sk
+    na = dtheta * sk - log * ck - nb
+    ta = dtheta * ck + log * sk - tb
+    return na, nb, ta, tb
 
 
 def _block(mid, tang, p1, p2, ground, own):
@@ -430,6 +434,8 @@ def _influence(mid, tang, p1, p2, body, n_nodes, ground, n_static):
     A_n = np.zeros((B, P, n_nodes))
     A_t = np.zeros((B, P, n_nodes))
     ps = max(n_static - 1, 0)                                   # panels wholly on static nodes
+    if ps and np.any(body[:ps] != 0):
+        ps = 0                                                  # only the first body's leading panels are cached
     own = np.eye(P, dtype=bool)
 
     def put(r0, r1, c0, c1, blocks):
@@ -450,12 +456,17 @@ def _influence(mid, tang, p1, p2, body, n_nodes, ground, n_static):
     key = (ground, p1[0, :ps].tobytes(), p2[0, :ps].tobytes())
     cached = _STATIC_CACHE.get(key)
     if cached is None:
-        cached = tuple(x[0] for x in _block(mid[:1, :ps], tang[:1, :ps], p1[:1, :ps], p2[:1, :ps], ground,
-                                            own[:ps, :ps]))
+        blocks = _block(mid[:1, :ps], tang[:1, :ps], p1[:1, :ps], p2[:1, :ps], ground, own[:ps, :ps])
+        cn, ct = np.zeros((ps, ps + 1)), np.zeros((ps, ps + 1))
+        cn[:, :ps] += blocks[0][0]
+        cn[:, 1:] += blocks[1][0]
+        ct[:, :ps] += blocks[2][0]
+        ct[:, 1:] += blocks[3][0]                               # static panels are one body's first ones
         if len(_STATIC_CACHE) >= _STATIC_CACHE_SIZE:
             _STATIC_CACHE.pop(next(iter(_STATIC_CACHE)))
-        _STATIC_CACHE[key] = cached
-    put(0, ps, 0, ps, cached)
+        cached = _STATIC_CACHE[key] = (cn, ct)
+    A_n[:, :ps, :ps + 1] = cached[0]
+    A_t[:, :ps, :ps + 1] = cached[1]
     if ps < P:
         put(0, P, ps, P, _block(mid, tang, p1[:, ps:], p2[:, ps:], ground, own[:, ps:]))
         put(ps, P, 0, ps, _block(mid[:, ps:], tang[:, ps:], p1[:, :ps], p2[:, :ps], ground, own[ps:, :ps]))

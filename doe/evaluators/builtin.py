@@ -33,8 +33,8 @@ Study keys (all optional; defaults in brackets)::
     speed = 40.0             # m/s                                 [40]
     density = 1.225          # kg/m^3 (ISO 2533 sea level)         [1.225]
     temperature = 288.15     # K, for the viscosity                [288.15]
-    wing_panels = 70         # panels on the wing section          [70]
-    body_panels = 110        # panels on the body without the flap [110]
+    wing_panels = 60         # panels on the wing section          [60]
+    body_panels = 100        # panels on the body without the flap [100]
     flap_panels = 8          # panels on the flap                  [8]
     wing = true              # false: the car and flap alone       [true]
     flap_chord = 60.0        # any design input not varied, in model units (mm, deg, % chord)
