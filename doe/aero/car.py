@@ -19,7 +19,9 @@ leaves open.
 The flap is a plate mounted flush at the hatch edge, without a slot; it is
 panelled as the last part of the body's upper contour (its underside faces the
 base and carries the base pressure). Its angle is measured up from the line of
-the rear window.
+the rear window. When the window is steeper than the critical slant the flap
+is taken to sit on the roof's rear edge instead (a roof spoiler), its angle
+measured up from the horizontal.
 
 The wing is an inverted section: its suction side faces the ground. Its angle
 of attack is positive when the trailing edge is above the leading edge (more

@@ -3,14 +3,15 @@
 Each body is a contour of straight panels carrying a vortex sheet whose
 strength varies linearly along each panel and is continuous from panel to
 panel (the unknowns are the strengths at the nodes). The flow normal to every
-panel vanishes at its mid-point (Neumann condition), and each body carries one
-Kutta condition, ``gamma_first + gamma_last = 0``: the flow leaves the body at
-the node where its contour starts and ends, with the same speed on both sides.
-For a section that node is the trailing edge; for the car it is the edge where
-the flow leaves the body (see :mod:`doe.aero.car`). The ground, when present,
-is the plane ``y = 0`` and is represented by the mirror image of every body
-with opposite vortex strength (an inviscid plane of symmetry, which is also the
-inviscid model of a moving ground).
+panel vanishes at its mid-point (Neumann condition). A lifting body (a wing
+section) carries the Kutta condition ``gamma_first + gamma_last = 0`` at its
+trailing edge. A bluff body (the car) is an open contour between its two
+separation edges; a source sheet across its base stands for the displacement
+of the separated wake, and the flow leaves both edges smoothly (see
+:func:`solve_field`). The ground, when present, is the plane ``y = 0`` and is
+represented by the mirror image of every body (vortices of opposite sign,
+sources of the same sign): an inviscid plane of symmetry, which is also the
+inviscid model of a moving ground.
 
 Assumptions and limits: steady, incompressible, inviscid, two-dimensional flow
 with the separation points fixed by the geometry (no boundary layer, no wake
@@ -384,25 +385,50 @@ def _sheet_nt(mid, tang, p1, p2, own):
     ax, ay = tjx / length[:, None, :], tjy / length[:, None, :]
     rx = mid[..., 0][:, :, None] - p1[..., 0][:, None, :]
     ry = mid[..., 1][:, :, None] - p1[..., 1][:, None, :]
-    x = rx * ax + ry * ay                                       # panel frame, in panel lengths
-    z = ry * ax - rx * ay
-    xl = x - 1.0
+    x = rx * ax                                                 # panel frame, in panel lengths
+    x += ry * ay                                                # (in-place updates: fewer temporaries)
+    z = ry * ax
+    z -= rx * ay
+    del rx, ry
     zz = z * z
-    dtheta = np.arctan2(z, x * xl + zz)                         # angle the panel subtends
+    xl = x - 1.0
+    den = x * xl
+    den += zz
+    dtheta = np.arctan2(z, den)                                 # angle the panel subtends
     if own is not None:
         dtheta[:, own] = np.pi                                 # outside limit on the panel itself
-    log = 0.5 * np.log((x * x + zz) / (xl * xl + zz))          # ln(r1 / r2)
-    i1 = x * dtheta - z * log
-    j1 = x * log + z * dtheta - 1.0
+    num = x * x
+    num += zz
+    den = xl * xl
+    den += zz
+    num /= den
+    log = np.log(num)
+    log *= 0.5                                                  # ln(r1 / r2)
+    del num, den, xl, zz
+    i1 = x * dtheta
+    i1 -= z * log
+    j1 = x * log
+    j1 += z * dtheta
+    j1 -= 1.0
     tix, tiy = tang[..., 0][:, :, None], tang[..., 1][:, :, None]
     k = 1.0 / _TWO_PI
-    ck = (tjx * tix + tjy * tiy) * k                            # cos(phi_j - phi_i) / 2 pi
-    sk = (tjy * tix - tjx * tiy) * k                            # sin(phi_j - phi_i) / 2 pi
+    ck = tjx * tix
+    ck += tjy * tiy
+    ck *= k                                                     # cos(phi_j - phi_i) / 2 pi
+    sk = tjy * tix
+    sk -= tjx * tiy
+    sk *= k                                                     # sin(phi_j - phi_i) / 2 pi
     # panel-frame velocities (times 2 pi): u_a = dtheta - i1, u_b = i1, w_a = j1 - log, w_b = -j1
-    nb = i1 * sk - j1 * ck
-    tb = i1 * ck + j1 * sk
-    na = dtheta * sk - log * ck - nb
-    ta = dtheta * ck + log * sk - tb
+    nb = i1 * sk
+    nb -= j1 * ck
+    tb = i1 * ck
+    tb += j1 * sk
+    na = dtheta * sk
+    na -= log * ck
+    na -= nb
+    ta = dtheta * ck
+    ta += log * sk
+    ta -= tb
     return na, nb, ta, tb
 
 
