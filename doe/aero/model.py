@@ -383,11 +383,16 @@ class RearPackageModel:
         sol = solve_field(nodes, layout, ground=st.ground, upwash_body="wing" if st.has_wing else None,
                           static_nodes=static)
         if st.has_wing:
-            cp, cl3d, ll, extra_cd, dcp, stalled = self._wing_3d(sol)
+            weights, cl3d, ll, extra_cd, dcp, stalled = self._wing_3d(sol)
         else:
-            cp, cl3d, ll, extra_cd = sol.cp(), np.zeros(len(geoms)), None, 0.0
+            weights, cl3d, ll, extra_cd = np.array([1.0]), np.zeros(len(geoms)), None, 0.0
             dcp, stalled = np.zeros(len(geoms)), np.zeros(len(geoms), dtype=bool)
-        out = self._loads(geoms, sol, cp, cl3d, ll, extra_cd)
+        cp = sol.cp(weights)
+        f = self._panel_forces(sol, cp)
+        if st.has_wing:                                     # the wing is closed: exact sheet pressures
+            wing = sol.body == 1
+            f[:, wing] = sol.sheet_forces(weights)[:, wing]
+        out = self._loads(geoms, sol, f, cl3d, ll, extra_cd)
         out["stall_margin"] = dcp / co.stall_dcp
         out["stalled"] = stalled.astype(float)
         cps = []
@@ -401,10 +406,14 @@ class RearPackageModel:
         """The field with the wing's circulation brought to its 3-D, viscous, stall-limited value."""
         st, co = self.settings, self.settings.coefficients
         wing = sol.body == 1
-        q0, q1 = sol.qt[..., 0], sol.qt[..., 1]
-        f0 = self._panel_forces(sol, 1.0 - q0**2)
-        dfy = (2 * q0 * q1 * sol.normal[..., 1] * sol.length)[:, wing].sum(axis=1)   # d(fy_wing)/d(upwash)
-        fy2d = f0[..., 1][:, wing].sum(axis=1)
+        a, b, _ = sol.layout.panel_index()
+        a, b = a[wing], b[wing]
+        g0, g1 = sol.gamma[..., 0], sol.gamma[..., 1]
+        ln_y = (sol.length * sol.normal[..., 1])[:, wing]
+        fy2d = -(ln_y * (1.0 - (g0[:, a] ** 2 + g0[:, a] * g0[:, b] + g0[:, b] ** 2) / 3.0)).sum(axis=1)
+        # d(fy_wing)/d(upwash) of the same exact sheet-pressure integral
+        dfy = (ln_y * (2 * g0[:, a] * g1[:, a] + g0[:, a] * g1[:, b] + g1[:, a] * g0[:, b]
+                       + 2 * g0[:, b] * g1[:, b]) / 3.0).sum(axis=1)
         c = st.chord
         cl2d, a_w = fy2d / c, np.clip(dfy / c, 2.0, 12.0)
         ar_eff = endplate_aspect_ratio(st.span / c, st.endplate_height, st.span)
@@ -412,22 +421,21 @@ class RearPackageModel:
         inviscid = cl2d * ll.lift_factor(a_w)
         target = inviscid * co.viscous_lift_factor
         # the stall rule reads the inviscid pressures of the 3-D loading, as its authors did
-        cp1 = 1.0 - (q0 + ((inviscid - cl2d) / a_w)[:, None] * q1) ** 2
+        cp1 = sol.cp(np.stack([np.ones_like(cl2d), (inviscid - cl2d) / a_w], axis=1))
         first, last = np.flatnonzero(wing)[[0, -1]]
         dcp = pressure_difference(cp1, first, last)
         factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag).apply(dcp)
         cl3d = target * factor
-        cp = 1.0 - (q0 + ((cl3d - cl2d) / a_w)[:, None] * q1) ** 2
-        return cp, cl3d, ll, extra_cd, dcp, stalled
+        weights = np.stack([np.ones_like(cl2d), (cl3d - cl2d) / a_w], axis=1)   # free stream + local upwash
+        return weights, cl3d, ll, extra_cd, dcp, stalled
 
     @staticmethod
     def _panel_forces(sol, cp):
         """Pressure force of every panel per unit span over q, m (B, P, 2)."""
         return -cp[..., None] * sol.normal * sol.length[..., None]
 
-    def _loads(self, geoms, sol, cp, cl3d, ll, extra_cd):
+    def _loads(self, geoms, sol, f, cl3d, ll, extra_cd):
         st, co, car = self.settings, self.settings.coefficients, self.settings.car
-        f = self._panel_forces(sol, cp)
         xf = car.front_axle
         wing, bodyp = sol.body == 1, sol.body == 0
         x, y = sol.mid[..., 0] - xf, sol.mid[..., 1]

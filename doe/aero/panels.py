@@ -148,6 +148,29 @@ class FieldSolution:
         w = np.broadcast_to(np.asarray(weights, dtype=float), (self.qt.shape[0], self.qt.shape[2]))
         return np.einsum("bpr,br->bp", self.qt, w)
 
+    def node_strength(self, weights=None) -> np.ndarray:
+        """Superposed vortex strength at the nodes, shape ``(B, n_nodes)`` (see :meth:`cp` for ``weights``)."""
+        if weights is None:
+            return self.gamma[..., 0]
+        w = np.broadcast_to(np.asarray(weights, dtype=float), (self.gamma.shape[0], self.gamma.shape[2]))
+        return np.einsum("bnr,br->bn", self.gamma, w)
+
+    def sheet_forces(self, weights=None) -> np.ndarray:
+        """Pressure force of every panel from the node strengths, per unit span over ``q``, shape ``(B, P, 2)``.
+
+        On a closed lifting body the still interior makes the sheet strength the
+        outer surface speed, linear along each panel, so ``Cp = 1 - gamma(s)^2``
+        integrates exactly over it: ``l (1 - (g_a^2 + g_a g_b + g_b^2) / 3)``. This
+        converges much faster than mid-point pressures (0.1 % against 1.3 % for a
+        NACA 4412 at 70 panels). Not valid on an open (bluff) body, whose
+        interior flows: use :meth:`forces` with :meth:`cp` there.
+        """
+        g = self.node_strength(weights)
+        a, b, _ = self.layout.panel_index()
+        ga, gb = g[:, a], g[:, b]
+        mean_cp = 1.0 - (ga * ga + ga * gb + gb * gb) / 3.0
+        return -(mean_cp * self.length)[..., None] * self.normal
+
     def circulation(self, weights=None) -> np.ndarray:
         """Clockwise circulation of each body per unit free-stream speed, shape ``(B, n_bodies)``."""
         g = self.gamma[..., 0] if weights is None else np.einsum(

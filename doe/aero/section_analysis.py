@@ -107,8 +107,10 @@ def analyse_section(section: Section, alpha_deg: float, ground_height: float | N
             raise AeroError(f"at {alpha_deg:g} deg the section touches the ground; raise --ground-height")
     sol = solve_field(world, Layout(("section",), (len(world),)), ground=ground_height is not None)
     cp = sol.cp()
-    fx, fy, mz = sol.forces(cp, about=quarter + [0.0, ground_height or 0.0])
-    cl_p = float(fy[0, 0])
+    f = sol.sheet_forces()[0]                                    # exact integral of the linear sheet's pressures
+    r = sol.mid[0] - quarter - [0.0, ground_height or 0.0]
+    cl_p = float(f[:, 1].sum())
+    mz = float(np.sum(r[:, 0] * f[:, 1] - r[:, 1] * f[:, 0]))
     # in free air the Kutta-Joukowski lift of the circulation (chord 1, unit speed) is exact to the panel
     # solution; near the ground the image's induced velocity changes the force, so the pressures are used
     cl = 2.0 * float(sol.circulation()[0, 0]) if ground_height is None else cl_p
@@ -116,5 +118,5 @@ def analyse_section(section: Section, alpha_deg: float, ground_height: float | N
     if inverted:
         mid_local = mid_local * [1.0, -1.0]
     dcp = float(0.5 * (cp[0, 0] + cp[0, -1]) - cp[0].min())
-    return SectionResult(section.name, float(alpha_deg), cl, cl_p, float(-mz[0, 0]),
+    return SectionResult(section.name, float(alpha_deg), cl, cl_p, -mz,
                          ground_height, inverted, mid_local[:, 0], mid_local[:, 1], cp[0], dcp)
