@@ -306,7 +306,7 @@ class RearPackageModel:
             raise AeroError(f"unknown model input '{sorted(unknown)[0]}' (known: {', '.join(DESIGN_INPUTS)})")
         return out
 
-    def evaluate(self, points: dict, keep_cp: bool = False, batch: int = 8) -> ModelResult:
+    def evaluate(self, points: dict, keep_cp: bool = False, batch: int = 16) -> ModelResult:
         """Evaluate configurations.
 
         Parameters
@@ -337,14 +337,14 @@ class RearPackageModel:
                 good.append(i)
         groups = [[i for i in good if (geoms[i]["body"].flap_panels > 0) == flap] for flap in (False, True)]
         chunks = [grp[s:s + batch] for grp in groups for s in range(0, len(grp), batch)]
-        for idx in chunks:
-            with threadpool_limits(limits=1, user_api="blas"):   # small matrices: threads only contend
+        with threadpool_limits(limits=1, user_api="blas"):       # small matrices: threads only contend
+            for idx in chunks:
                 out, cp = self._solve([geoms[i] for i in idx], keep_cp)
-            for k, v in out.items():
-                values[k][idx] = v
-            ok[idx] = True
-            for j, i in enumerate(idx):
-                cps[i] = cp[j] if keep_cp else None
+                for k, v in out.items():
+                    values[k][idx] = v
+                ok[idx] = True
+                for j, i in enumerate(idx):
+                    cps[i] = cp[j] if keep_cp else None
         return ModelResult(values, ok, messages, cps if keep_cp else [])
 
     # ------------------------------------------------------------------
