@@ -427,7 +427,9 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     space = Space(parameters, constraints)
     fit = _read_fit(_one_table(top, "fit"))
     sensitivity = _read_sensitivity(_one_table(top, "sensitivity"), parameters)
-    robust = _read_robust(_one_table(top, "robust"), responses, plan.seed, parameters)
+    has_goal = any(r.goal != "none" for r in responses)
+    robust = (_read_robust(_one_table(top, "robust"), responses, plan.seed, parameters)
+              if "robust" in data or has_goal else None)
     vehicle = _read_vehicle(_one_table(top, "vehicle"), responses) if "vehicle" in data else None
     track = _read_track(_one_table(top, "track")) if "track" in data else None
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
