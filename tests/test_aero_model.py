@@ -36,7 +36,7 @@ def test_small_wing_magnitudes():
     v = _run(small, wing_aoa=[3.0, 5.0, 8.0], wing_camber=4.0, flap_angle=30.0)
     assert np.all((-0.2 <= v["cla_wing"]) & (v["cla_wing"] <= -0.08))
     ld = -v["cla_wing"] / v["cda_wing"]
-    assert np.all((4.0 <= ld) & (ld <= 12.0))
+    assert np.all((4.5 <= ld) & (ld <= 11.0))                 # "about 5-10": 10 % slack each way
 
 
 def test_flap_reduces_rear_lift_of_the_body():

@@ -86,8 +86,8 @@ class Coefficients:
     lift_drag_factor : float
         ``k`` of the wing's lift-dependent profile drag ``k c_l^2`` (common practice, no source).
     wing_parasite_cd : float
-        Drag coefficient on the wing's plan area of its endplates and supports
-        (common practice, no source).
+        Drag coefficient on the wing's plan area of its endplates, supports and
+        interference with the body's low-energy flow (common practice, no source).
     critical_slant : float
         Rear-window slope, degrees, above which the flow leaves at the roof's
         rear edge (Ahmed, Ramm & Faltin 1984: about 30 degrees).
@@ -101,7 +101,7 @@ class Coefficients:
     stall_width: float = 0.08
     post_stall_drag: float = 0.05
     lift_drag_factor: float = 0.005
-    wing_parasite_cd: float = 0.010
+    wing_parasite_cd: float = 0.030
     critical_slant: float = 30.0
 
     def __post_init__(self):
@@ -180,7 +180,7 @@ OUTPUTS = {
     "cla_wing": ("m^2", "the wing's own lift (3-D)"),
     "cla_body": ("m^2", "the body's lift with the flap, in the wing's presence"),
     "cda_total": ("m^2", "drag coefficient times area of the whole car"),
-    "cda_wing": ("m^2", "the wing's drag: profile, induced, parasite and installation"),
+    "cda_wing": ("m^2", "the wing's drag: profile, induced, parasite (endplates, supports) and post-stall"),
     "cda_body": ("m^2", "the body's drag: forebody baseline, rear-window pressure and base"),
     "lift_to_drag": ("-", "downforce over drag of the whole car, -cla_total / cda_total"),
     "balance_front": ("-", "share of the downforce on the front axle, cla_front / cla_total"),
@@ -280,6 +280,18 @@ class ModelResult:
     ok: np.ndarray
     messages: list
     cp: list = field(default_factory=list)
+
+
+@dataclass
+class _WingState:
+    """The wing's 3-D correction of one batch (see :meth:`RearPackageModel._wing_3d`)."""
+
+    weights: np.ndarray        # (B, 2): free stream and local upwash to superpose
+    cl3d: np.ndarray           # 3-D, viscous, stall-limited lift coefficient
+    lifting_line: object       # LiftingLine, for the induced drag
+    extra_cd: object           # post-stall profile-drag rise
+    dcp: np.ndarray            # Valarezo-Chin pressure difference
+    stalled: np.ndarray
 
 
 class RearPackageModel:
@@ -382,19 +394,17 @@ class RearPackageModel:
             nodes = np.stack([g["body"].nodes for g in geoms])
         sol = solve_field(nodes, layout, ground=st.ground, upwash_body="wing" if st.has_wing else None,
                           static_nodes=static)
-        if st.has_wing:
-            weights, cl3d, ll, extra_cd, dcp, stalled = self._wing_3d(sol)
-        else:
-            weights, cl3d, ll, extra_cd = np.array([1.0]), np.zeros(len(geoms)), None, 0.0
-            dcp, stalled = np.zeros(len(geoms)), np.zeros(len(geoms), dtype=bool)
-        cp = sol.cp(weights)
+        n = len(geoms)
+        ws = self._wing_3d(sol) if st.has_wing else _WingState(np.array([1.0]), np.zeros(n), None, 0.0,
+                                                               np.zeros(n), np.zeros(n, dtype=bool))
+        cp = sol.cp(ws.weights)
         f = self._panel_forces(sol, cp)
         if st.has_wing:                                     # the wing is closed: exact sheet pressures
             wing = sol.body == 1
-            f[:, wing] = sol.sheet_forces(weights)[:, wing]
-        out = self._loads(geoms, sol, f, cl3d, ll, extra_cd)
-        out["stall_margin"] = dcp / co.stall_dcp
-        out["stalled"] = stalled.astype(float)
+            f[:, wing] = sol.sheet_forces(ws.weights)[:, wing]
+        out = self._loads(geoms, sol, f, ws)
+        out["stall_margin"] = ws.dcp / co.stall_dcp
+        out["stalled"] = ws.stalled.astype(float)
         cps = []
         if keep_cp:
             for j in range(len(geoms)):
@@ -410,7 +420,8 @@ class RearPackageModel:
         a, b = a[wing], b[wing]
         g0, g1 = sol.gamma[..., 0], sol.gamma[..., 1]
         ln_y = (sol.length * sol.normal[..., 1])[:, wing]
-        fy2d = -(ln_y * (1.0 - (g0[:, a] ** 2 + g0[:, a] * g0[:, b] + g0[:, b] ** 2) / 3.0)).sum(axis=1)
+        mean_cp = 1.0 - (g0[:, a] ** 2 + g0[:, a] * g0[:, b] + g0[:, b] ** 2) / 3.0
+        fy2d = -(ln_y * mean_cp).sum(axis=1)
         # d(fy_wing)/d(upwash) of the same exact sheet-pressure integral
         dfy = (ln_y * (2 * g0[:, a] * g1[:, a] + g0[:, a] * g1[:, b] + g1[:, a] * g0[:, b]
                        + 2 * g0[:, b] * g1[:, b]) / 3.0).sum(axis=1)
@@ -427,14 +438,14 @@ class RearPackageModel:
         factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag).apply(dcp)
         cl3d = target * factor
         weights = np.stack([np.ones_like(cl2d), (cl3d - cl2d) / a_w], axis=1)   # free stream + local upwash
-        return weights, cl3d, ll, extra_cd, dcp, stalled
+        return _WingState(weights, cl3d, ll, extra_cd, dcp, stalled)
 
     @staticmethod
     def _panel_forces(sol, cp):
         """Pressure force of every panel per unit span over q, m (B, P, 2)."""
         return -cp[..., None] * sol.normal * sol.length[..., None]
 
-    def _loads(self, geoms, sol, f, cl3d, ll, extra_cd):
+    def _loads(self, geoms, sol, f, ws):
         st, co, car = self.settings, self.settings.coefficients, self.settings.car
         xf = car.front_axle
         wing, bodyp = sol.body == 1, sol.body == 0
@@ -461,7 +472,7 @@ class RearPackageModel:
         d_base = f_base[:, 0] * w
         d_fore = np.full(len(geoms), co.forebody_cd * car.frontal_area)
         cda_body = d_fore + d_rear + d_base
-        cla_wing, cda_wing, x_wing, y_wing = self._wing_loads(geoms, sol, f, x, cl3d, ll, extra_cd)
+        cla_wing, cda_wing, x_wing, y_wing = self._wing_loads(geoms, sol, f, x, ws)
         # axle loads from the moment about the front contact patch (x forward-positive arms, drag at its height)
         moment = (my_body * w * k + x_wing * cla_wing
                   - d_fore * 0.5 * car.roof_height - d_rear * h_rear - d_base * base_mid[:, 1]
@@ -476,9 +487,9 @@ class RearPackageModel:
         return {"cla_total": cla_total, "cla_front": cla_front, "cla_rear": cla_rear, "cla_wing": cla_wing,
                 "cla_body": cla_body, "cda_total": cda_total, "cda_wing": cda_wing, "cda_body": cda_body,
                 "lift_to_drag": -cla_total / cda_total, "balance_front": balance,
-                "downforce": -cla_total * q, "drag": cda_total * q, "cl_wing": cl3d}
+                "downforce": -cla_total * q, "drag": cda_total * q, "cl_wing": ws.cl3d}
 
-    def _wing_loads(self, geoms, sol, f, x, cl3d, ll, extra_cd):
+    def _wing_loads(self, geoms, sol, f, x, ws):
         """The wing's CLA and CDA (3-D), and the x and height of its force, m."""
         st, co = self.settings, self.settings.coefficients
         zero = np.zeros(len(geoms))
@@ -486,17 +497,19 @@ class RearPackageModel:
             return zero, zero, zero, zero
         wing = sol.body == 1
         s_area = st.span * st.chord
+        cl3d = ws.cl3d
         cla_wing = cl3d * s_area
         fyw = f[..., 1][:, wing].sum(1)
         x_wing = (x * f[..., 1])[:, wing].sum(1) / np.where(np.abs(fyw) > 1e-12, fyw, 1.0)
         y_wing = sol.mid[:, wing, 1].mean(axis=1)
         re = reynolds(st.speed, st.chord, st.density, st.temperature)
         thick = np.array([g["thickness"] for g in geoms])
-        cd_wing = (profile_drag(re, thick, cl3d, co.lift_drag_factor) + ll.induced_drag(cl3d)
-                   + co.wing_parasite_cd + extra_cd)
-        scale = cl3d / np.where(np.abs(fyw / st.chord) > 1e-12, fyw / st.chord, 1.0)
-        d_install = f[..., 0][:, wing].sum(1) * scale * st.span             # tilt of the lift vector in the body's flow
-        cda_wing = cd_wing * s_area + d_install
+        cd_wing = (profile_drag(re, thick, cl3d, co.lift_drag_factor) + ws.lifting_line.induced_drag(cl3d)
+                   + co.wing_parasite_cd + ws.extra_cd)
+        # the 2-D wing's pressure force along the stream (its lift tilted by the body's downwash, and by the
+        # upwash of the 3-D correction) is not counted: the centreline exaggerates the downwash over the
+        # hatch, and the induced drag comes from the lifting line
+        cda_wing = cd_wing * s_area
         return cla_wing, cda_wing, x_wing, y_wing
 
     def with_coefficients(self, **changes) -> "RearPackageModel":
