@@ -446,48 +446,52 @@ class RearPackageModel:
         return -cp[..., None] * sol.normal * sol.length[..., None]
 
     def _loads(self, geoms, sol, f, ws):
-        st, co, car = self.settings, self.settings.coefficients, self.settings.car
-        xf = car.front_axle
-        wing, bodyp = sol.body == 1, sol.body == 0
-        x, y = sol.mid[..., 0] - xf, sol.mid[..., 1]
-        up = np.stack([g["body"].upper_separation for g in geoms])
-        lo = np.stack([g["body"].lower_separation for g in geoms])
-        base_vec = lo - up                                                  # closing line, clockwise
-        base_len = np.hypot(base_vec[:, 0], base_vec[:, 1])
-        base_n = np.stack([-base_vec[:, 1], base_vec[:, 0]], axis=1) / base_len[:, None]
-        f_base = -co.base_pressure * base_n * base_len[:, None]             # (B, 2), per q per width
-        base_mid = 0.5 * (up + lo) - [xf, 0.0]
-        # body lift and its moment arm (vertical forces about the front contact patch)
-        fy_body = f[..., 1][:, bodyp].sum(1) + f_base[:, 1]
-        my_body = (x * f[..., 1])[:, bodyp].sum(1) + base_mid[:, 0] * f_base[:, 1]
-        k, w = co.body_3d_factor, car.width
-        cla_body = fy_body * w * k
-        # body drag: forebody baseline, rear-window/flap pressure drag, base drag
-        rear = np.zeros(len(sol.body), dtype=bool)
-        rear_idx = np.flatnonzero(bodyp)[-geoms[0]["body"].rear_panels:] if geoms[0]["body"].rear_panels else []
-        rear[rear_idx] = True
-        d_rear = f[..., 0][:, rear].sum(1) * w * k
-        h_rear = (y * f[..., 0])[:, rear].sum(1) / np.where(np.abs(f[..., 0][:, rear].sum(1)) > 1e-12,
-                                                              f[..., 0][:, rear].sum(1), 1.0)
-        d_base = f_base[:, 0] * w
-        d_fore = np.full(len(geoms), co.forebody_cd * car.frontal_area)
-        cda_body = d_fore + d_rear + d_base
+        """All outputs from the panel forces ``f`` (B, P, 2) of a batch."""
+        st, car = self.settings, self.settings.car
+        x = sol.mid[..., 0] - car.front_axle
+        body = self._body_loads(geoms, sol, f, x)
         cla_wing, cda_wing, x_wing, y_wing = self._wing_loads(geoms, sol, f, x, ws)
-        # axle loads from the moment about the front contact patch (x forward-positive arms, drag at its height)
-        moment = (my_body * w * k + x_wing * cla_wing
-                  - d_fore * 0.5 * car.roof_height - d_rear * h_rear - d_base * base_mid[:, 1]
-                  - cda_wing * y_wing)
-        cla_total = cla_body + cla_wing
+        # axle loads from the moment about the front contact patch: lifts at their x, drags at their height
+        moment = body["moment"] + x_wing * cla_wing - cda_wing * y_wing
+        cla_total = body["cla"] + cla_wing
         cla_rear = moment / car.wheelbase
         cla_front = cla_total - cla_rear
-        cda_total = cda_body + cda_wing
+        cda_total = body["cda"] + cda_wing
         q = st.dynamic_pressure
         with np.errstate(divide="ignore", invalid="ignore"):
             balance = np.where(np.abs(cla_total) > 1e-9, cla_front / cla_total, np.nan)
         return {"cla_total": cla_total, "cla_front": cla_front, "cla_rear": cla_rear, "cla_wing": cla_wing,
-                "cla_body": cla_body, "cda_total": cda_total, "cda_wing": cda_wing, "cda_body": cda_body,
+                "cla_body": body["cla"], "cda_total": cda_total, "cda_wing": cda_wing, "cda_body": body["cda"],
                 "lift_to_drag": -cla_total / cda_total, "balance_front": balance,
                 "downforce": -cla_total * q, "drag": cda_total * q, "cl_wing": ws.cl3d}
+
+    def _body_loads(self, geoms, sol, f, x):
+        """The body's CLA, CDA and pitching moment about the front contact patch (m^3)."""
+        co, car = self.settings.coefficients, self.settings.car
+        y = sol.mid[..., 1]
+        bodyp = sol.body == 0
+        up = np.stack([g["body"].upper_separation for g in geoms])
+        lo = np.stack([g["body"].lower_separation for g in geoms])
+        base_vec = lo - up                                                  # base line, clockwise
+        base_len = np.hypot(base_vec[:, 0], base_vec[:, 1])
+        base_n = np.stack([-base_vec[:, 1], base_vec[:, 0]], axis=1) / base_len[:, None]
+        f_base = -co.base_pressure * base_n * base_len[:, None]             # (B, 2), per q per width
+        base_mid = 0.5 * (up + lo) - [car.front_axle, 0.0]
+        k, w = co.body_3d_factor, car.width
+        fy = f[..., 1][:, bodyp].sum(1) + f_base[:, 1]
+        my = (x * f[..., 1])[:, bodyp].sum(1) + base_mid[:, 0] * f_base[:, 1]
+        # drag: forebody baseline, rear-window/flap pressure drag, base drag
+        rear = np.zeros(len(sol.body), dtype=bool)
+        n_rear = geoms[0]["body"].rear_panels
+        if n_rear:
+            rear[np.flatnonzero(bodyp)[-n_rear:]] = True
+        fx_rear = f[..., 0][:, rear].sum(1)
+        h_rear = (y * f[..., 0])[:, rear].sum(1) / np.where(np.abs(fx_rear) > 1e-12, fx_rear, 1.0)
+        d_rear = fx_rear * w * k
+        d_base = f_base[:, 0] * w
+        d_fore = np.full(len(geoms), co.forebody_cd * car.frontal_area)
+        moment = my * w * k - d_fore * 0.5 * car.roof_height - d_rear * h_rear - d_base * base_mid[:, 1]
+        return {"cla": fy * w * k, "cda": d_fore + d_rear + d_base, "moment": moment}
 
     def _wing_loads(self, geoms, sol, f, x, ws):
         """The wing's CLA and CDA (3-D), and the x and height of its force, m."""
