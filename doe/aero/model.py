@@ -28,7 +28,7 @@ centreline section stands for the 3-D body through one documented factor; no
 yaw, no cooling flow, no rotating wheels or wheel wells, no engine bay, no
 boundary-layer displacement, no unsteady wake; the stall rule is empirical;
 the lifting line ignores the ground's effect on the trailing vortices. The
-body's lift converges at first order with the panel count (about 2-3 % per
+body's lift converges at first order with the panel count (about 2-4 % per
 doubling at the defaults, from the sharp separation edges); the wing's lift
 and the drag to about 1 %. This is a low-order model for ranking and
 planning, not for certifying loads.
