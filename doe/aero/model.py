@@ -30,7 +30,8 @@ boundary-layer displacement, no unsteady wake; the stall rule is empirical;
 the lifting line ignores the ground's effect on the trailing vortices. Doubling
 the panels from the defaults moves the body's lift by up to about 1.5 % (first
 order, from the sharp separation edges) and the wing's lift and the drag by
-under 0.5 %. This is a low-order model for ranking and
+under 0.5 %; near stall the suction peak, and with it the stall margin and
+the limited lift, is more sensitive (a few per cent). This is a low-order model for ranking and
 planning, not for certifying loads.
 """
 from __future__ import annotations
@@ -432,9 +433,9 @@ class RearPackageModel:
         inviscid = cl2d * ll.lift_factor(a_w)
         target = inviscid * co.viscous_lift_factor
         # the stall rule reads the inviscid pressures of the 3-D loading, as its authors did
-        cp1 = sol.cp(np.stack([np.ones_like(cl2d), (inviscid - cl2d) / a_w], axis=1))
-        first, last = np.flatnonzero(wing)[[0, -1]]
-        dcp = pressure_difference(cp1, first, last)
+        g1 = sol.node_strength(np.stack([np.ones_like(cl2d), (inviscid - cl2d) / a_w], axis=1))
+        start = sol.layout.starts[1]
+        dcp = pressure_difference(1.0 - g1[:, start:start + sol.layout.nodes[1]] ** 2)
         factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag).apply(dcp)
         cl3d = target * factor
         weights = np.stack([np.ones_like(cl2d), (cl3d - cl2d) / a_w], axis=1)   # free stream + local upwash
