@@ -36,7 +36,7 @@ def test_small_wing_magnitudes():
     v = _run(small, wing_aoa=[3.0, 5.0, 8.0], wing_camber=4.0, flap_angle=30.0)
     assert np.all((-0.2 <= v["cla_wing"]) & (v["cla_wing"] <= -0.08))
     ld = -v["cla_wing"] / v["cda_wing"]
-    assert np.all((4.0 <= ld) & (ld <= 12.0))
+    assert np.all((4.5 <= ld) & (ld <= 11.0))                 # "about 5-10": 10 % slack each way
 
 
 def test_flap_reduces_rear_lift_of_the_body():
@@ -96,16 +96,16 @@ def test_critical_slant_moves_separation_and_raises_drag():
 
 
 def test_grid_convergence_of_the_car():
-    # doubling every panel count: the wing's lift moves by less than 1.5 % and the body's by less
-    # than 4 % (the body converges at first order near the open base's sharp edges: measured 0.3-1.0 %
-    # for the wing and 2.2-3.4 % for the body here; a known limit, see doe.aero.model)
-    pts = dict(flap_angle=[15.0, 35.0], wing_aoa=[3.0, 9.0], wing_height=[80.0, 160.0])
+    # doubling every panel count from the defaults: the wing's lift moves by less than 1 % (measured
+    # <= 0.5 %) and the body's by less than 2 % (measured <= 1.4 %, worst with a steep flap under a low
+    # wing; the body converges at first order near its sharp separation edges)
+    pts = dict(flap_angle=[15.0, 35.0, 45.0], wing_aoa=[3.0, 9.0, 14.0], wing_height=[80.0, 160.0, 60.0])
     coarse = _run(BASE, **pts)
     fine = _run(replace(BASE, wing_panels=2 * BASE.wing_panels, body_panels=2 * BASE.body_panels,
-                       flap_panels=2 * BASE.flap_panels), **pts)
-    assert np.all(np.abs(fine["cla_wing"] / coarse["cla_wing"] - 1) < 0.015)
-    assert np.all(np.abs(fine["cla_body"] / coarse["cla_body"] - 1) < 0.04)
-    assert np.all(np.abs(fine["cda_total"] / coarse["cda_total"] - 1) < 0.01)
+                        flap_panels=2 * BASE.flap_panels), **pts)
+    assert np.all(np.abs(fine["cla_wing"] / coarse["cla_wing"] - 1) < 0.01)
+    assert np.all(np.abs(fine["cla_body"] / coarse["cla_body"] - 1) < 0.02)
+    assert np.all(np.abs(fine["cda_total"] / coarse["cda_total"] - 1) < 0.005)
 
 
 def test_bad_inputs():

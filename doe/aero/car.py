@@ -203,7 +203,7 @@ def _resample(poly, n, cluster_ends=True):
     s = np.r_[0.0, np.cumsum(np.hypot(*np.diff(poly, axis=0).T))]
     u = np.linspace(0.0, 1.0, n + 1)
     if cluster_ends:
-        u = 0.5 * (1.0 - np.cos(np.pi * u)) * 0.6 + 0.4 * u     # 60 % cosine, 40 % uniform
+        u = 0.5 * (1.0 - np.cos(np.pi * u)) * 0.85 + 0.15 * u   # 85 % cosine, 15 % uniform
     return np.column_stack([np.interp(u * s[-1], s, poly[:, 0]), np.interp(u * s[-1], s, poly[:, 1])])
 
 

@@ -92,23 +92,23 @@ def profile_drag(reynolds, thickness, cl, lift_factor=0.0):
     return 2.0 * flat_plate_cf(reynolds) * form_factor(thickness) + lift_factor * np.asarray(cl, dtype=float) ** 2
 
 
-def pressure_difference(cp, first, last):
-    """Valarezo-Chin pressure difference ``Cp_TE - Cp_min`` of one body per configuration.
+def pressure_difference(cp_nodes):
+    """Valarezo-Chin pressure difference ``Cp_TE - Cp_min`` of one lifting body per configuration.
 
     Parameters
     ----------
-    cp : ndarray, shape (B, n_panels)
-        Panel pressure coefficients of all bodies.
-    first, last : int
-        Index of the body's first and last panel (the two at its trailing edge).
+    cp_nodes : ndarray, shape (B, n_nodes)
+        Pressure coefficients at the body's nodes, first and last at the
+        trailing edge (``1 - gamma^2`` on a closed body, whose sheet strength
+        is its surface speed: the suction peak is resolved better at the nodes
+        than at panel mid-points).
 
     Returns
     -------
     ndarray, shape (B,)
     """
-    body = cp[:, first:last + 1]
-    cp_te = 0.5 * (cp[:, first] + cp[:, last])
-    return cp_te - body.min(axis=1)
+    cp_te = 0.5 * (cp_nodes[:, 0] + cp_nodes[:, -1])
+    return cp_te - cp_nodes.min(axis=1)
 
 
 class StallLimit:

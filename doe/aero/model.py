@@ -27,10 +27,11 @@ Assumptions and limits: potential flow with separation fixed by the geometry
 centreline section stands for the 3-D body through one documented factor; no
 yaw, no cooling flow, no rotating wheels or wheel wells, no engine bay, no
 boundary-layer displacement, no unsteady wake; the stall rule is empirical;
-the lifting line ignores the ground's effect on the trailing vortices. The
-body's lift converges at first order with the panel count (about 2-3 % per
-doubling at the defaults, from the sharp separation edges); the wing's lift
-and the drag to about 1 %. This is a low-order model for ranking and
+the lifting line ignores the ground's effect on the trailing vortices. Doubling
+the panels from the defaults moves the body's lift by up to about 1.5 % (first
+order, from the sharp separation edges) and the wing's lift and the drag by
+under 0.5 %; near stall the suction peak, and with it the stall margin and
+the limited lift, is more sensitive (a few per cent). This is a low-order model for ranking and
 planning, not for certifying loads.
 """
 from __future__ import annotations
@@ -86,8 +87,8 @@ class Coefficients:
     lift_drag_factor : float
         ``k`` of the wing's lift-dependent profile drag ``k c_l^2`` (common practice, no source).
     wing_parasite_cd : float
-        Drag coefficient on the wing's plan area of its endplates and supports
-        (common practice, no source).
+        Drag coefficient on the wing's plan area of its endplates, supports and
+        interference with the body's low-energy flow (common practice, no source).
     critical_slant : float
         Rear-window slope, degrees, above which the flow leaves at the roof's
         rear edge (Ahmed, Ramm & Faltin 1984: about 30 degrees).
@@ -95,13 +96,13 @@ class Coefficients:
 
     body_3d_factor: float = 0.12
     base_pressure: float = -0.15
-    forebody_cd: float = 0.17
+    forebody_cd: float = 0.18
     viscous_lift_factor: float = 0.88
     stall_dcp: float = 10.5
     stall_width: float = 0.08
     post_stall_drag: float = 0.05
     lift_drag_factor: float = 0.005
-    wing_parasite_cd: float = 0.010
+    wing_parasite_cd: float = 0.030
     critical_slant: float = 30.0
 
     def __post_init__(self):
@@ -180,7 +181,7 @@ OUTPUTS = {
     "cla_wing": ("m^2", "the wing's own lift (3-D)"),
     "cla_body": ("m^2", "the body's lift with the flap, in the wing's presence"),
     "cda_total": ("m^2", "drag coefficient times area of the whole car"),
-    "cda_wing": ("m^2", "the wing's drag: profile, induced, parasite and installation"),
+    "cda_wing": ("m^2", "the wing's drag: profile, induced, parasite (endplates, supports) and post-stall"),
     "cda_body": ("m^2", "the body's drag: forebody baseline, rear-window pressure and base"),
     "lift_to_drag": ("-", "downforce over drag of the whole car, -cla_total / cda_total"),
     "balance_front": ("-", "share of the downforce on the front axle, cla_front / cla_total"),
@@ -280,6 +281,18 @@ class ModelResult:
     ok: np.ndarray
     messages: list
     cp: list = field(default_factory=list)
+
+
+@dataclass
+class _WingState:
+    """The wing's 3-D correction of one batch (see :meth:`RearPackageModel._wing_3d`)."""
+
+    weights: np.ndarray        # (B, 2): free stream and local upwash to superpose
+    cl3d: np.ndarray           # 3-D, viscous, stall-limited lift coefficient
+    lifting_line: object       # LiftingLine, for the induced drag
+    extra_cd: object           # post-stall profile-drag rise
+    dcp: np.ndarray            # Valarezo-Chin pressure difference
+    stalled: np.ndarray
 
 
 class RearPackageModel:
@@ -382,19 +395,17 @@ class RearPackageModel:
             nodes = np.stack([g["body"].nodes for g in geoms])
         sol = solve_field(nodes, layout, ground=st.ground, upwash_body="wing" if st.has_wing else None,
                           static_nodes=static)
-        if st.has_wing:
-            weights, cl3d, ll, extra_cd, dcp, stalled = self._wing_3d(sol)
-        else:
-            weights, cl3d, ll, extra_cd = np.array([1.0]), np.zeros(len(geoms)), None, 0.0
-            dcp, stalled = np.zeros(len(geoms)), np.zeros(len(geoms), dtype=bool)
-        cp = sol.cp(weights)
+        n = len(geoms)
+        ws = self._wing_3d(sol) if st.has_wing else _WingState(np.array([1.0]), np.zeros(n), None, 0.0,
+                                                               np.zeros(n), np.zeros(n, dtype=bool))
+        cp = sol.cp(ws.weights)
         f = self._panel_forces(sol, cp)
         if st.has_wing:                                     # the wing is closed: exact sheet pressures
             wing = sol.body == 1
-            f[:, wing] = sol.sheet_forces(weights)[:, wing]
-        out = self._loads(geoms, sol, f, cl3d, ll, extra_cd)
-        out["stall_margin"] = dcp / co.stall_dcp
-        out["stalled"] = stalled.astype(float)
+            f[:, wing] = sol.sheet_forces(ws.weights)[:, wing]
+        out = self._loads(geoms, sol, f, ws)
+        out["stall_margin"] = ws.dcp / co.stall_dcp
+        out["stalled"] = ws.stalled.astype(float)
         cps = []
         if keep_cp:
             for j in range(len(geoms)):
@@ -410,7 +421,8 @@ class RearPackageModel:
         a, b = a[wing], b[wing]
         g0, g1 = sol.gamma[..., 0], sol.gamma[..., 1]
         ln_y = (sol.length * sol.normal[..., 1])[:, wing]
-        fy2d = -(ln_y * (1.0 - (g0[:, a] ** 2 + g0[:, a] * g0[:, b] + g0[:, b] ** 2) / 3.0)).sum(axis=1)
+        mean_cp = 1.0 - (g0[:, a] ** 2 + g0[:, a] * g0[:, b] + g0[:, b] ** 2) / 3.0
+        fy2d = -(ln_y * mean_cp).sum(axis=1)
         # d(fy_wing)/d(upwash) of the same exact sheet-pressure integral
         dfy = (ln_y * (2 * g0[:, a] * g1[:, a] + g0[:, a] * g1[:, b] + g1[:, a] * g0[:, b]
                        + 2 * g0[:, b] * g1[:, b]) / 3.0).sum(axis=1)
@@ -421,64 +433,68 @@ class RearPackageModel:
         inviscid = cl2d * ll.lift_factor(a_w)
         target = inviscid * co.viscous_lift_factor
         # the stall rule reads the inviscid pressures of the 3-D loading, as its authors did
-        cp1 = sol.cp(np.stack([np.ones_like(cl2d), (inviscid - cl2d) / a_w], axis=1))
-        first, last = np.flatnonzero(wing)[[0, -1]]
-        dcp = pressure_difference(cp1, first, last)
+        g1 = sol.node_strength(np.stack([np.ones_like(cl2d), (inviscid - cl2d) / a_w], axis=1))
+        start = sol.layout.starts[1]
+        dcp = pressure_difference(1.0 - g1[:, start:start + sol.layout.nodes[1]] ** 2)
         factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag).apply(dcp)
         cl3d = target * factor
         weights = np.stack([np.ones_like(cl2d), (cl3d - cl2d) / a_w], axis=1)   # free stream + local upwash
-        return weights, cl3d, ll, extra_cd, dcp, stalled
+        return _WingState(weights, cl3d, ll, extra_cd, dcp, stalled)
 
     @staticmethod
     def _panel_forces(sol, cp):
         """Pressure force of every panel per unit span over q, m (B, P, 2)."""
         return -cp[..., None] * sol.normal * sol.length[..., None]
 
-    def _loads(self, geoms, sol, f, cl3d, ll, extra_cd):
-        st, co, car = self.settings, self.settings.coefficients, self.settings.car
-        xf = car.front_axle
-        wing, bodyp = sol.body == 1, sol.body == 0
-        x, y = sol.mid[..., 0] - xf, sol.mid[..., 1]
-        up = np.stack([g["body"].upper_separation for g in geoms])
-        lo = np.stack([g["body"].lower_separation for g in geoms])
-        base_vec = lo - up                                                  # closing line, clockwise
-        base_len = np.hypot(base_vec[:, 0], base_vec[:, 1])
-        base_n = np.stack([-base_vec[:, 1], base_vec[:, 0]], axis=1) / base_len[:, None]
-        f_base = -co.base_pressure * base_n * base_len[:, None]             # (B, 2), per q per width
-        base_mid = 0.5 * (up + lo) - [xf, 0.0]
-        # body lift and its moment arm (vertical forces about the front contact patch)
-        fy_body = f[..., 1][:, bodyp].sum(1) + f_base[:, 1]
-        my_body = (x * f[..., 1])[:, bodyp].sum(1) + base_mid[:, 0] * f_base[:, 1]
-        k, w = co.body_3d_factor, car.width
-        cla_body = fy_body * w * k
-        # body drag: forebody baseline, rear-window/flap pressure drag, base drag
-        rear = np.zeros(len(sol.body), dtype=bool)
-        rear_idx = np.flatnonzero(bodyp)[-geoms[0]["body"].rear_panels:] if geoms[0]["body"].rear_panels else []
-        rear[rear_idx] = True
-        d_rear = f[..., 0][:, rear].sum(1) * w * k
-        h_rear = (y * f[..., 0])[:, rear].sum(1) / np.where(np.abs(f[..., 0][:, rear].sum(1)) > 1e-12,
-                                                              f[..., 0][:, rear].sum(1), 1.0)
-        d_base = f_base[:, 0] * w
-        d_fore = np.full(len(geoms), co.forebody_cd * car.frontal_area)
-        cda_body = d_fore + d_rear + d_base
-        cla_wing, cda_wing, x_wing, y_wing = self._wing_loads(geoms, sol, f, x, cl3d, ll, extra_cd)
-        # axle loads from the moment about the front contact patch (x forward-positive arms, drag at its height)
-        moment = (my_body * w * k + x_wing * cla_wing
-                  - d_fore * 0.5 * car.roof_height - d_rear * h_rear - d_base * base_mid[:, 1]
-                  - cda_wing * y_wing)
-        cla_total = cla_body + cla_wing
+    def _loads(self, geoms, sol, f, ws):
+        """All outputs from the panel forces ``f`` (B, P, 2) of a batch."""
+        st, car = self.settings, self.settings.car
+        x = sol.mid[..., 0] - car.front_axle
+        body = self._body_loads(geoms, sol, f, x)
+        cla_wing, cda_wing, x_wing, y_wing = self._wing_loads(geoms, sol, f, x, ws)
+        # axle loads from the moment about the front contact patch: lifts at their x, drags at their height
+        moment = body["moment"] + x_wing * cla_wing - cda_wing * y_wing
+        cla_total = body["cla"] + cla_wing
         cla_rear = moment / car.wheelbase
         cla_front = cla_total - cla_rear
-        cda_total = cda_body + cda_wing
+        cda_total = body["cda"] + cda_wing
         q = st.dynamic_pressure
         with np.errstate(divide="ignore", invalid="ignore"):
             balance = np.where(np.abs(cla_total) > 1e-9, cla_front / cla_total, np.nan)
         return {"cla_total": cla_total, "cla_front": cla_front, "cla_rear": cla_rear, "cla_wing": cla_wing,
-                "cla_body": cla_body, "cda_total": cda_total, "cda_wing": cda_wing, "cda_body": cda_body,
+                "cla_body": body["cla"], "cda_total": cda_total, "cda_wing": cda_wing, "cda_body": body["cda"],
                 "lift_to_drag": -cla_total / cda_total, "balance_front": balance,
-                "downforce": -cla_total * q, "drag": cda_total * q, "cl_wing": cl3d}
+                "downforce": -cla_total * q, "drag": cda_total * q, "cl_wing": ws.cl3d}
 
-    def _wing_loads(self, geoms, sol, f, x, cl3d, ll, extra_cd):
+    def _body_loads(self, geoms, sol, f, x):
+        """The body's CLA, CDA and pitching moment about the front contact patch (m^3)."""
+        co, car = self.settings.coefficients, self.settings.car
+        y = sol.mid[..., 1]
+        bodyp = sol.body == 0
+        up = np.stack([g["body"].upper_separation for g in geoms])
+        lo = np.stack([g["body"].lower_separation for g in geoms])
+        base_vec = lo - up                                                  # base line, clockwise
+        base_len = np.hypot(base_vec[:, 0], base_vec[:, 1])
+        base_n = np.stack([-base_vec[:, 1], base_vec[:, 0]], axis=1) / base_len[:, None]
+        f_base = -co.base_pressure * base_n * base_len[:, None]             # (B, 2), per q per width
+        base_mid = 0.5 * (up + lo) - [car.front_axle, 0.0]
+        k, w = co.body_3d_factor, car.width
+        fy = f[..., 1][:, bodyp].sum(1) + f_base[:, 1]
+        my = (x * f[..., 1])[:, bodyp].sum(1) + base_mid[:, 0] * f_base[:, 1]
+        # drag: forebody baseline, rear-window/flap pressure drag, base drag
+        rear = np.zeros(len(sol.body), dtype=bool)
+        n_rear = geoms[0]["body"].rear_panels
+        if n_rear:
+            rear[np.flatnonzero(bodyp)[-n_rear:]] = True
+        fx_rear = f[..., 0][:, rear].sum(1)
+        h_rear = (y * f[..., 0])[:, rear].sum(1) / np.where(np.abs(fx_rear) > 1e-12, fx_rear, 1.0)
+        d_rear = fx_rear * w * k
+        d_base = f_base[:, 0] * w
+        d_fore = np.full(len(geoms), co.forebody_cd * car.frontal_area)
+        moment = my * w * k - d_fore * 0.5 * car.roof_height - d_rear * h_rear - d_base * base_mid[:, 1]
+        return {"cla": fy * w * k, "cda": d_fore + d_rear + d_base, "moment": moment}
+
+    def _wing_loads(self, geoms, sol, f, x, ws):
         """The wing's CLA and CDA (3-D), and the x and height of its force, m."""
         st, co = self.settings, self.settings.coefficients
         zero = np.zeros(len(geoms))
@@ -486,17 +502,19 @@ class RearPackageModel:
             return zero, zero, zero, zero
         wing = sol.body == 1
         s_area = st.span * st.chord
+        cl3d = ws.cl3d
         cla_wing = cl3d * s_area
         fyw = f[..., 1][:, wing].sum(1)
         x_wing = (x * f[..., 1])[:, wing].sum(1) / np.where(np.abs(fyw) > 1e-12, fyw, 1.0)
         y_wing = sol.mid[:, wing, 1].mean(axis=1)
         re = reynolds(st.speed, st.chord, st.density, st.temperature)
         thick = np.array([g["thickness"] for g in geoms])
-        cd_wing = (profile_drag(re, thick, cl3d, co.lift_drag_factor) + ll.induced_drag(cl3d)
-                   + co.wing_parasite_cd + extra_cd)
-        scale = cl3d / np.where(np.abs(fyw / st.chord) > 1e-12, fyw / st.chord, 1.0)
-        d_install = f[..., 0][:, wing].sum(1) * scale * st.span             # tilt of the lift vector in the body's flow
-        cda_wing = cd_wing * s_area + d_install
+        cd_wing = (profile_drag(re, thick, cl3d, co.lift_drag_factor) + ws.lifting_line.induced_drag(cl3d)
+                   + co.wing_parasite_cd + ws.extra_cd)
+        # the 2-D wing's pressure force along the stream (its lift tilted by the body's downwash, and by the
+        # upwash of the 3-D correction) is not counted: the centreline exaggerates the downwash over the
+        # hatch, and the induced drag comes from the lifting line
+        cda_wing = cd_wing * s_area
         return cla_wing, cda_wing, x_wing, y_wing
 
     def with_coefficients(self, **changes) -> "RearPackageModel":

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import AeroError
+from .drag import pressure_difference
 from .panels import Layout, solve_field
 from .sections import Section
 
@@ -117,6 +118,6 @@ def analyse_section(section: Section, alpha_deg: float, ground_height: float | N
     mid_local = (sol.mid[0] - [0.0, ground_height or 0.0] - quarter) @ rot + quarter
     if inverted:
         mid_local = mid_local * [1.0, -1.0]
-    dcp = float(0.5 * (cp[0, 0] + cp[0, -1]) - cp[0].min())
+    dcp = float(pressure_difference(1.0 - sol.node_strength() ** 2)[0])
     return SectionResult(section.name, float(alpha_deg), cl, cl_p, -mz,
                          ground_height, inverted, mid_local[:, 0], mid_local[:, 1], cp[0], dcp)

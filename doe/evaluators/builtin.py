@@ -37,6 +37,7 @@ Study keys (all optional; defaults in brackets)::
     body_panels = 100        # panels on the body without the flap [100]
     flap_panels = 8          # panels on the flap                  [8]
     wing = true              # false: the car and flap alone       [true]
+    ground = true            # false: free air (no ground image)   [true]
     flap_chord = 60.0        # any design input not varied, in model units (mm, deg, % chord)
 
     [evaluator.car]          # the invented hatchback: see doe.aero.CarGeometry
@@ -95,6 +96,7 @@ def read_builtin_settings(study) -> tuple[ModelSettings, dict]:
         kw[key] = t.take(key, int, default=getattr(ModelSettings, key), check=lambda v, lo=low: v >= lo,
                          why=f"must be at least {low}")
     kw["has_wing"] = t.take("wing", bool, default=True)
+    kw["ground"] = t.take("ground", bool, default=True)
     names = study.space.names
     fixed = {}
     for name, d in DESIGN_INPUTS.items():
