@@ -239,3 +239,19 @@ def test_fit_table_is_checked():
         read_study_text(STUDY + "\n[fit]\nrestart = 3\n")
     with pytest.raises(StudyError, match="kernel"):
         read_study_text(STUDY + "\n[fit]\nkernel = \"rbf\"\n")
+
+
+@pytest.mark.parametrize("name", ["branin", "hartmann3"])
+def test_a_corrupted_run_is_flagged(name):
+    # one value shifted by 3 standard deviations of the response (a unit slip); functions from
+    # Surjanovic & Bingham (VLSE). The clean data must not be flagged (verdict rules in doe.fitreport).
+    from doe.fitreport import verdict
+
+    f, U, y = _data(name, 30, seed=2)
+    bad = y.copy()
+    bad[7] += 3 * np.std(y)
+    m = ResponseSurrogate(seed=0, **FAST).fit(U, bad)
+    label, why = verdict(m.loo_, 0.0, 0.9, [f"r{i}" for i in range(30)])
+    assert label == "check the data" and "run r7 " in why
+    clean = ResponseSurrogate(seed=0, **FAST).fit(U, y)
+    assert verdict(clean.loo_, 0.0, 0.9)[0] != "check the data"
