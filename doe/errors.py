@@ -19,6 +19,7 @@ __all__ = [
     "NotFittedError",
     "StoreLockedError",
     "SensitivityError",
+    "AeroError",
     "where",
 ]
 
@@ -57,6 +58,10 @@ class StoreLockedError(DoeError):
 
 class SensitivityError(DoeError):
     """A sensitivity analysis cannot be run as asked (bad distribution, failed runs, ...)."""
+
+
+class AeroError(DoeError):
+    """The built-in aerodynamic model cannot be set up as asked (bad section file, clashing geometry, ...)."""
 
 
 def where(path, line=None, key=None, column=None) -> str:
