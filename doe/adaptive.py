@@ -18,9 +18,15 @@ aim        criterion what it maximises
                      Sacks, Welch, Mitchell & Wynn 1989), summed over responses, each
                      scaled by the variance of its runs. Default for ``map``.
 ``map``    variance  the predictive variance itself (MacKay 1992), same scaling
+``map``    ``eigf``  expected improvement for global fit, ``(mu - y_nearest)^2 + var``
+                     (Lam 2008), same scaling
 ``optimum`` ``ei``   expected improvement of one response with a goal (Jones, Schonlau
                      & Welch 1998)
 ========== ========= ===================================================================
+
+For ``map``, candidates are scored with length scales capped at each
+parameter's range (:data:`MAP_LENGTH_SCALE_CAP`): a parameter that a few runs
+make look irrelevant is still explored.
 
 References
 ----------
@@ -35,6 +41,8 @@ References
    analysis of computer experiments. Statistical Science 4(4), 409-423.
 .. [5] MacKay, D. J. C. (1992). Information-based objective functions for active
    data selection. Neural Computation 4(4), 590-604.
+.. [6] Lam, C. Q. (2008). Sequential adaptive designs in computer experiments for
+   response surface model fit. PhD thesis, The Ohio State University.
 """
 from __future__ import annotations
 
@@ -69,6 +77,7 @@ _SOURCES = {
     "ivr": "integrated variance reduction (Cohn 1996; Sacks, Welch, Mitchell & Wynn 1989)",
     "variance": "maximum predictive variance (MacKay 1992)",
     "ei": "expected improvement (Jones, Schonlau & Welch 1998)",
+    "eigf": "expected improvement for global fit (Lam 2008)",
 }
 
 
@@ -356,7 +365,8 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
     U0 : ndarray, shape (n0, d)
         First runs, unit cube.
     n_add : int
-        Runs to add.
+        Successful runs to add (a run whose value is not finite counts as
+        failed: it is not fitted and its point is not proposed again).
     batch : int
         Runs proposed per round.
     refit_every : int
@@ -386,19 +396,25 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
 
     U = np.asarray(U0, dtype=float)
     y = np.asarray(func(U), dtype=float)
-    model, rounds = None, 0
-    while len(U) < len(U0) + n_add:
+    bad = ~np.isfinite(y)                     # failed runs: never refitted, never proposed again
+    failed, U, y = U[bad], U[~bad], y[~bad]
+    model, rounds, target = None, 0, len(U) + n_add
+    while len(U) < target:
         if model is None or rounds % refit_every == 0:
             model = ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)
         if on_round is not None and on_round(model, U, y):
             return U, y, model
         sset = SurrogateSet(space, {"y": model}, {"y": "-"}, {"y": goal}, [], 0.9)
-        k = min(batch, len(U0) + n_add - len(U))
-        new = space.to_unit(propose_runs(sset, k, aim=aim, criterion=criterion, seed=seed + rounds)
+        k = min(batch, target - len(U))
+        avoid = space.from_unit(failed) if len(failed) else None
+        new = space.to_unit(propose_runs(sset, k, aim=aim, criterion=criterion, avoid=avoid, seed=seed + rounds)
                             .frame[space.names].to_numpy(dtype=float))
         y_new = np.asarray(func(new), dtype=float)
-        model = model.conditioned(new, y_new)
-        U, y = np.vstack([U, new]), np.concatenate([y, y_new])
+        ok = np.isfinite(y_new)
+        failed = np.vstack([failed, new[~ok]])
+        if ok.any():
+            model = model.conditioned(new[ok], y_new[ok])
+        U, y = np.vstack([U, new[ok]]), np.concatenate([y, y_new[ok]])
         rounds += 1
     model = ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)
     if on_round is not None:

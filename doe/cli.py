@@ -169,7 +169,10 @@ def _add_next(sub):
     _add_results_options(p)
     p.add_argument("--runs", type=int, required=True, help="number of runs to propose")
     p.add_argument("--aim", choices=("map", "optimum"), default="map", help="map the space, or seek an optimum")
-    p.add_argument("--criterion", choices=("ivr", "variance", "ei"), help="criterion (default: ivr for map, ei for optimum)")
+    p.add_argument("--criterion", choices=("ivr", "variance", "eigf", "ei"),
+                   help="criterion (default: ivr for map, ei for optimum)")
+    p.add_argument("--surrogate", type=Path, metavar="FOLDER",
+                   help="use the surrogates saved by 'doe fit' in FOLDER instead of fitting again")
     p.add_argument("--response", help="response to optimise with --aim optimum (default: the first with a goal)")
     p.add_argument("--pending", type=Path, metavar="PLAN_CSV", help="runs planned but not evaluated yet")
     p.add_argument("--out", type=Path, help="plan CSV (default: reports/<study name>/next.csv)")
@@ -180,13 +183,13 @@ def _cmd_next(args):
     from .adaptive import propose_runs
     from .results import read_plan, read_results, write_plan
     from .study import load_study
-    from .surrogate import fit_surrogates
+    from .surrogate import fit_surrogates, load_surrogates
 
     study = load_study(args.study)
     seed = args.seed if args.seed is not None else study.plan.seed
     results = read_results(args.results, study, accept_outside=args.accept_outside)
     pending = read_plan(args.pending, study) if args.pending is not None else None
-    sset = fit_surrogates(study, results, seed=seed)
+    sset = load_surrogates(args.surrogate, study) if args.surrogate else fit_surrogates(study, results, seed=seed)
     taken = list(results.frame["run_id"]) + (list(pending["run_id"]) if pending is not None else [])
     proposal = propose_runs(sset, args.runs, aim=args.aim, criterion=args.criterion, response=args.response,
                             pending=None if pending is None else pending[study.space.names].to_numpy(float),

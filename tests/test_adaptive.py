@@ -29,7 +29,7 @@ def fitted():
     return study, res, fit_surrogates(study, res, seed=0)
 
 
-@pytest.mark.parametrize("aim,criterion", [("map", "ivr"), ("map", "variance"), ("optimum", "ei")])
+@pytest.mark.parametrize("aim,criterion", [("map", "ivr"), ("map", "variance"), ("map", "eigf"), ("optimum", "ei")])
 def test_proposals_are_feasible_new_and_explained(fitted, aim, criterion):
     study, res, sset = fitted
     pending = study.space.from_unit(np.array([[0.1, 0.1], [0.2, 0.5]]))

@@ -53,6 +53,17 @@ def test_next_writes_plan_and_reasons(tmp_path, capsys):
     assert "expected improvement" in err
 
 
+def test_next_reuses_a_saved_surrogate(tmp_path):
+    study_file, study = _setup(tmp_path)
+    results = str(tmp_path / "results.csv")
+    assert main(["fit", str(study_file), "--results", results, "--out", str(tmp_path / "sur")]) == 0
+    for name, extra in (("a.csv", ["--surrogate", str(tmp_path / "sur")]), ("b.csv", [])):
+        assert main(["next", str(study_file), "--results", results, "--runs", "2", "--out", str(tmp_path / name),
+                     *extra]) == 0
+    # the same seed and the same (deterministically refitted) surrogates give the same proposals
+    assert (tmp_path / "a.csv").read_text() == (tmp_path / "b.csv").read_text()
+
+
 def test_cli_errors_are_one_line(tmp_path, capsys):
     study_file, _ = _setup(tmp_path)
     code = main(["next", str(study_file), "--results", str(tmp_path / "results.csv"), "--runs", "2",
