@@ -100,7 +100,8 @@ from .vehicle import Aero, VehicleFigures, compare_figures, vehicle_figures
 
 __all__ = ["scatter_draws", "propagate", "Spread", "Fragility", "fragility", "PointResult", "RobustResult",
            "find_settings", "nondominated", "tradeoff_set", "write_tradeoff", "study_robust", "study_tradeoff",
-           "study_vehicle_figures", "DEFAULT_MAXITER", "DEFAULT_RESTARTS"]
+           "study_vehicle_figures", "study_responses", "only_responses", "DEFAULT_MAXITER",
+           "DEFAULT_RESTARTS"]
 
 #: Generations of each differential-evolution run.
 DEFAULT_MAXITER = 100
@@ -729,6 +730,37 @@ def study_vehicle_figures(study, predict, x) -> VehicleFigures | None:
         share = value[v.front_share_response] if v.front_share_response else v.aero_front_share
         aero = Aero.from_total(value[v.cla_response], cda, share)
     return vehicle_figures(v.car, aero, study.track, v.speeds_kph, v.radii_m)
+
+
+def study_responses(study) -> list:
+    """Responses the robust analysis of a study reads: objective, limits, trade-off, ``[vehicle]`` aero."""
+    names = []
+    if study.robust is not None:
+        names += [study.robust.objective] + [lim.response for lim in study.robust.limits] + list(study.robust.tradeoff)
+    v = study.vehicle
+    if v is not None:
+        names += [n for n in (v.cla_response, v.cda_response, v.cla_front_response, v.cla_rear_response,
+                              v.front_share_response) if n is not None]
+    return list(dict.fromkeys(names))
+
+
+def only_responses(surrogates, names):
+    """A fitted surrogate set reduced to the responses ``names``, so each prediction costs only those.
+
+    Parameters
+    ----------
+    surrogates : doe.surrogate.SurrogateSet
+    names : sequence of str
+
+    Returns
+    -------
+    doe.surrogate.SurrogateSet
+        The same models for ``names``; the others are left out.
+    """
+    missing = [n for n in names if n not in surrogates.models]
+    if missing:
+        raise DoeError(f"robust: no surrogate for {missing}; the surrogates cover {list(surrogates.models)}")
+    return replace(surrogates, models={n: surrogates.models[n] for n in names})
 
 
 def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) -> RobustResult:

@@ -186,3 +186,9 @@ def test_cli_robust_end_to_end(tmp_path):
     header = (tmp_path / "out" / "tradeoff.csv").read_text().splitlines()[0]
     assert header == "flap_angle,wing_height,cla_total,cla_total_std,cda_total,cda_total_std"
     assert main(["robust", str(study_file), "--results", str(tmp_path / "missing.csv")]) == 2
+
+
+def test_study_responses_lists_what_robust_reads():
+    from doe.robust import study_responses
+
+    assert study_responses(read_study_text(HEAD + DEMO)) == ["cla_total", "cda_total", "cla_front", "cla_rear"]
