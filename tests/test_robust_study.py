@@ -169,7 +169,7 @@ def test_cli_robust_end_to_end(tmp_path):
     from doe.plans import make_plan
 
     study_file = tmp_path / "study.toml"
-    study_file.write_text(HEAD + SNIPPET.replace("samples = 256", "samples = 64"))  # fewer draws: test speed
+    study_file.write_text(HEAD + SNIPPET.replace("samples = 128", "samples = 32"))  # fewer draws: test speed
     frame = make_plan(read_study_text(HEAD + SNIPPET).space, 30, seed=1).frame
     pred = invented_aero(frame[["flap_angle", "wing_height"]].to_numpy())
     for name, (mean, _) in pred.items():
