@@ -43,19 +43,26 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 from scipy.stats import norm
+from threadpoolctl import threadpool_limits
 
 from .errors import PlanError, SurrogateError
 from .plans import _candidates, _next_ids
 
-__all__ = ["propose_runs", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
+__all__ = ["propose_runs", "run_adaptive", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
 
 AIMS = ("map", "optimum")
 #: Criteria allowed per aim; the first is the default.
-CRITERIA = {"map": ("ivr", "variance"), "optimum": ("ei",)}
+CRITERIA = {"map": ("ivr", "variance", "eigf"), "optimum": ("ei",)}
 #: No proposal is closer than this to an existing, pending or picked run (Euclidean, unit cube).
 MIN_DISTANCE = 0.01
 #: Candidate points scored per pick.
 N_CANDIDATES = 2048
+#: For aim "map", candidates are scored with length scales capped at this fraction of each range, so
+#: that a parameter the first runs make look irrelevant is still explored (None: no cap).
+MAP_LENGTH_SCALE_CAP = 1.0
+#: Expected improvement below this fraction of the spread of the runs counts as none: the pick
+#: then falls back to the largest predictive variance (common practice, no source).
+EI_NEGLIGIBLE = 1e-6
 #: Points over which the integrated variance is averaged.
 N_REFERENCE = 512
 _SOURCES = {
@@ -113,7 +120,7 @@ class Proposal:
 
 def accuracy_status(sset) -> tuple:
     """The stopping rule: (met, sentence). Met when ``q2_loo >= target_q2`` for every response."""
-    q2 = {name: m.loo_.q2 for name, m in sset.models.items()}
+    q2 = {name: m.loo_.q2 for name, m in sset.models.items() if not m.constant_}
     short = [f"{n} ({v:.3f})" for n, v in q2.items() if not v >= sset.target_q2]
     if not short:
         shown = ", ".join(f"{n} {v:.3f}" for n, v in q2.items())
@@ -144,7 +151,7 @@ def _variance(models, sset, C, R, response):
         top = max(scaled, key=lambda n: scaled[n][i])
         mean, std = parts[top][0][i], parts[top][1][i]
         return (f"largest predictive uncertainty left: {top} = {mean:.4g} +/- {std:.3g} {sset.units[top]} here "
-                f"({std / models[top].y_std_:.0%} of the spread of the runs)")
+                f"({std / models[top].y_std_:.1%} of the spread of the runs)")
 
     return score, why
 
@@ -190,7 +197,27 @@ def _ei(models, sset, C, R, response):
     return ei, why
 
 
-_CRITERIA = {"ivr": _ivr, "variance": _variance, "ei": _ei}
+def _eigf(models, sset, C, R, response):
+    score = np.zeros(len(C))
+    parts = {}
+    for n, m in models.items():
+        mean, std = m.predict(C, return_std=True)
+        d2 = ((C[:, None, :] - m.X_unit_[None, :, :]) ** 2).sum(-1)
+        near = m.y_[np.argmin(d2, axis=1)]
+        # expected improvement for global fit: (mu(x) - y(nearest run))^2 + var(x)  (Lam 2008)
+        score += ((mean - near) ** 2 + std**2) / m.y_std_**2
+        parts[n] = (mean, std, near)
+
+    def why(i):
+        bits = [f"{n} = {mu[i]:.4g} +/- {sd[i]:.3g} {sset.units[n]} (nearest run: {ne[i]:.4g})"
+                for n, (mu, sd, ne) in parts.items()]
+        return ("largest expected improvement for global fit: the response is predicted to change most from the "
+                "nearest run, or is least certain, here: " + "; ".join(bits))
+
+    return score, why
+
+
+_CRITERIA = {"ivr": _ivr, "variance": _variance, "ei": _ei, "eigf": _eigf}
 
 
 def _local_candidates(sset, response, rng, n_each=128, spread=0.05):
@@ -240,7 +267,8 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
     avoid : array_like, shape (a, d), optional
         Other points not to repeat (e.g. failed runs), study units.
     taken_ids : iterable of str
-        Run ids already used; new ids continue their numbering.
+        Run ids already used besides those the surrogates were fitted on
+        (failed and pending runs); new ids continue the numbering.
     seed : int
     n_candidates : int
         Candidate points scored per pick.
@@ -255,6 +283,11 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
         Unknown aim or criterion, a response without goal, or no feasible
         candidate left.
     """
+    with threadpool_limits(limits=1, user_api="blas"):  # small matrices: threads only contend
+        return _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates)
+
+
+def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates) -> Proposal:
     if aim not in AIMS:
         raise SurrogateError(f"aim {aim!r} is not one of {', '.join(AIMS)}")
     criterion = criterion or CRITERIA[aim][0]
@@ -279,14 +312,23 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
     if len(P):
         notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean")
     chosen, picks = [], []
-    ids = _next_ids(list(taken_ids), k)
+    ids = _next_ids(list(sset.run_ids) + list(taken_ids), k)
     for j in range(k):
         if len(C) == 0:
             raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; ask for fewer runs")
-        score, why = _CRITERIA[criterion](models, sset, C, R, response)
+        if aim == "map" and MAP_LENGTH_SCALE_CAP is not None:
+            score, _ = _CRITERIA[criterion]({n: m.capped(MAP_LENGTH_SCALE_CAP) for n, m in models.items()},
+                                            sset, C, R, response)
+            why = _CRITERIA[criterion](models, sset, C, R, response)[1]
+        else:
+            score, why = _CRITERIA[criterion](models, sset, C, R, response)
+        prefix = ""
+        if criterion == "ei" and score.max() <= EI_NEGLIGIBLE * models[response].y_std_:
+            score, why = _variance({response: models[response]}, sset, C, R, response)
+            prefix = "expected improvement is negligible everywhere; instead: "
         i = int(np.argmax(score))
         x = C[i]
-        reason = why(i)
+        reason = prefix + why(i)
         if j:
             reason += f" (assuming the {j} run(s) picked before return the surrogate's mean)"
         pred = {n: m.predict(x[None], return_std=True) for n, m in models.items()}
@@ -299,3 +341,66 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
     frame = pd.DataFrame(np.clip(space.from_unit(np.array(chosen)), space.lower, space.upper), columns=space.names)
     frame.insert(0, "run_id", ids)
     return Proposal(frame, picks, aim, criterion, response, met, notes)
+
+
+def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int = 2, seed=0,
+                 aim: str = "map", criterion: str | None = None, goal: str = "none", on_round=None,
+                 **fit_options):
+    """Sequential design with a cheap evaluator: fit, propose a batch, evaluate, repeat.
+
+    Parameters
+    ----------
+    func : callable
+        ``func(U) -> y`` on points of the unit cube, shape ``(n, d) -> (n,)``.
+    space : Space
+    U0 : ndarray, shape (n0, d)
+        First runs, unit cube.
+    n_add : int
+        Runs to add.
+    batch : int
+        Runs proposed per round.
+    refit_every : int
+        Hyperparameters are estimated again every this many rounds; in
+        between, the surrogate is conditioned on the new runs with its
+        hyperparameters kept (a common economy, no source).
+    seed : int
+    aim, criterion : str
+        As in :func:`propose_runs`.
+    goal : {"none", "minimize", "maximize"}
+        Goal of the response (``aim = "optimum"`` needs one).
+    on_round : callable, optional
+        ``on_round(model, U, y) -> bool`` is called with the surrogate used
+        for each round's proposal and finally with the refitted last one; a
+        true return value stops the loop early.
+    **fit_options
+        Options of :class:`~doe.surrogate.ResponseSurrogate`.
+
+    Returns
+    -------
+    U : ndarray, shape (n0 + n_add, d)
+    y : ndarray
+    model : ResponseSurrogate
+        Fitted (hyperparameters estimated) on all runs.
+    """
+    from .surrogate import ResponseSurrogate, SurrogateSet
+
+    U = np.asarray(U0, dtype=float)
+    y = np.asarray(func(U), dtype=float)
+    model, rounds = None, 0
+    while len(U) < len(U0) + n_add:
+        if model is None or rounds % refit_every == 0:
+            model = ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)
+        if on_round is not None and on_round(model, U, y):
+            return U, y, model
+        sset = SurrogateSet(space, {"y": model}, {"y": "-"}, {"y": goal}, [], 0.9)
+        k = min(batch, len(U0) + n_add - len(U))
+        new = space.to_unit(propose_runs(sset, k, aim=aim, criterion=criterion, seed=seed + rounds)
+                            .frame[space.names].to_numpy(dtype=float))
+        y_new = np.asarray(func(new), dtype=float)
+        model = model.conditioned(new, y_new)
+        U, y = np.vstack([U, new]), np.concatenate([y, y_new])
+        rounds += 1
+    model = ResponseSurrogate(seed=seed, names=space.names, **fit_options).fit(U, y)
+    if on_round is not None:
+        on_round(model, U, y)
+    return U, y, model

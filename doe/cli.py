@@ -87,6 +87,9 @@ def _add_evaluate(sub):
     p.add_argument("--plan", type=Path, required=True, help="plan CSV (run_id and one column per parameter)")
     p.add_argument("--out", type=Path, help="results CSV (default: reports/<study name>/results.csv)")
     p.add_argument("--jobs", type=int, default=1, help="runs at once on local processes (default 1)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run on a Dask cluster: its scheduler address (tcp://host:8786), or 'local' for a "
+                        "cluster of --jobs local processes (needs pip install 'doe[cluster]')")
     p.add_argument("--retry-failed", action="store_true", help="run again the runs stored as failed")
     p.add_argument("--no-progress", action="store_true", help="no progress bar")
     p.set_defaults(func=_cmd_evaluate)
@@ -103,11 +106,151 @@ def _cmd_evaluate(args):
     out = args.out or study.default_output / "results.csv"
     evaluator = make_evaluator(study, workspace=out.parent / "cases")
     summary = evaluate_plan(plan, evaluator, out, study.space.names, jobs=args.jobs,
-                            retry_failed=args.retry_failed, progress=not args.no_progress)
+                            retry_failed=args.retry_failed, progress=not args.no_progress,
+                            scheduler=args.scheduler)
     _say(summary.line(out))
     if summary.failed:
         _say(f"note: {summary.failed} run(s) failed; their reasons are in the 'message' column; "
              "rerun them with --retry-failed")
+    print(f"wrote {out}")
+
+
+def _add_results_options(p, results_required: bool = True):
+    """Options shared by the verbs that fit surrogates to a results CSV."""
+    p.add_argument("study", type=Path, help="study file (TOML)")
+    p.add_argument("--results", type=Path, required=results_required, help="results CSV")
+    p.add_argument("--seed", type=int, help="seed (default: the study's [plan] seed)")
+    p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
+
+
+def _add_fit(sub):
+    p = sub.add_parser("fit", help="fit a Gaussian-process surrogate per response, with leave-one-out checks",
+                       description="Fit one Gaussian-process surrogate per response to the ok runs of a results CSV. "
+                                   "Writes the surrogate folder (model.json, data.npz: no code, no pickle) and "
+                                   "fit.json with q2_loo, rmse_loo and a verdict per response.")
+    _add_results_options(p)
+    p.add_argument("--out", type=Path, help="surrogate folder (default: reports/<study name>/surrogate/)")
+    p.add_argument("--predict", type=Path, metavar="POINTS_CSV",
+                   help="also predict at these points (parameter columns, run_id optional)")
+    p.add_argument("--predict-out", type=Path, metavar="CSV",
+                   help="predictions CSV (default: <surrogate folder>/predictions.csv)")
+    p.set_defaults(func=_cmd_fit)
+
+
+def _cmd_fit(args):
+    from .results import read_points, read_results, write_plan
+    from .study import load_study
+    from .surrogate import fit_surrogates, prediction_frame
+
+    study = load_study(args.study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    out = args.out or study.default_output / "surrogate"
+    sset.save(out)
+    for name, rep in sset.fit_report().items():
+        _say(f"{name}: q2_loo {rep['q2_loo'] if rep['q2_loo'] is None else round(rep['q2_loo'], 3)}, "
+             f"rmse_loo {rep['rmse_loo']:.3g} {rep['unit']}, {rep['kernel']}, noise {rep['noise']}: "
+             f"{rep['verdict']} ({rep['verdict_reason']})")
+        for note in rep["statements"]:
+            _say(f"  note: {note}")
+    print(f"wrote {out}/fit.json")
+    if args.predict is not None:
+        target = args.predict_out or out / "predictions.csv"
+        write_plan(prediction_frame(sset, read_points(args.predict, study)), target)
+        print(f"wrote {target}")
+
+
+def _add_next(sub):
+    p = sub.add_parser("next", help="propose the next runs from the surrogates",
+                       description="Fit the surrogates and propose K new runs inside the bounds and constraints. "
+                                   "aim 'map': integrated variance reduction (or --criterion variance); aim "
+                                   "'optimum': expected improvement of a response with a goal. Writes a plan CSV "
+                                   "and, beside it, <name>.why.json saying why each run was picked.")
+    _add_results_options(p)
+    p.add_argument("--runs", type=int, required=True, help="number of runs to propose")
+    p.add_argument("--aim", choices=("map", "optimum"), default="map", help="map the space, or seek an optimum")
+    p.add_argument("--criterion", choices=("ivr", "variance", "ei"), help="criterion (default: ivr for map, ei for optimum)")
+    p.add_argument("--response", help="response to optimise with --aim optimum (default: the first with a goal)")
+    p.add_argument("--pending", type=Path, metavar="PLAN_CSV", help="runs planned but not evaluated yet")
+    p.add_argument("--out", type=Path, help="plan CSV (default: reports/<study name>/next.csv)")
+    p.set_defaults(func=_cmd_next)
+
+
+def _cmd_next(args):
+    from .adaptive import propose_runs
+    from .results import read_plan, read_results, write_plan
+    from .study import load_study
+    from .surrogate import fit_surrogates
+
+    study = load_study(args.study)
+    seed = args.seed if args.seed is not None else study.plan.seed
+    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    pending = read_plan(args.pending, study) if args.pending is not None else None
+    sset = fit_surrogates(study, results, seed=seed)
+    taken = list(results.frame["run_id"]) + (list(pending["run_id"]) if pending is not None else [])
+    proposal = propose_runs(sset, args.runs, aim=args.aim, criterion=args.criterion, response=args.response,
+                            pending=None if pending is None else pending[study.space.names].to_numpy(float),
+                            avoid=results.failed[study.space.names].to_numpy(float), taken_ids=taken, seed=seed)
+    out = args.out or study.default_output / "next.csv"
+    write_plan(proposal.frame, out)
+    _write_json(proposal.record(), out.with_suffix(".why.json"))
+    for note in proposal.notes:
+        _say(f"note: {note}")
+    for pick in proposal.picks:
+        _say(f"{pick.run_id}: {pick.reason}")
+    print(f"wrote {out}")
+
+
+def _add_sensitivity(sub):
+    p = sub.add_parser("sensitivity", help="which knobs matter: Sobol indices with 95 %% intervals",
+                       description="First-order and total Sobol indices per response and parameter, on surrogates "
+                                   "fitted to the results (intervals from the estimator and the surrogate), or "
+                                   "straight from a cheap evaluator with --direct. --screen runs Morris screening "
+                                   "with the evaluator instead. Writes the sensitivity (or screening) JSON and "
+                                   "prints a ranked statement per response.")
+    _add_results_options(p, results_required=False)
+    p.add_argument("--surrogate", type=Path, metavar="FOLDER", help="use surrogates saved by 'doe fit' instead of fitting")
+    p.add_argument("--direct", action="store_true", help="call the study's evaluator (cheap ones only), no surrogate")
+    p.add_argument("--around", nargs="+", metavar="SETTING",
+                   help="scatter (tolerances) around 'nominal' or a setting NAME=VALUE ... instead of the bounds")
+    p.add_argument("--second-order", action="store_true", help="also estimate second-order indices")
+    p.add_argument("--base-samples", type=int, metavar="N", help="Saltelli base sample, a power of two (default: chosen)")
+    p.add_argument("--max-evaluations", type=int, metavar="K",
+                   help="--direct: at most K evaluator calls while the base sample grows (default 20000)")
+    p.add_argument("--screen", action="store_true", help="Morris screening with the evaluator (many parameters)")
+    p.add_argument("--trajectories", type=int, default=20, help="Morris trajectories with --screen (default 20)")
+    p.add_argument("--out", type=Path, help="JSON to write (default: reports/<study name>/sensitivity.json "
+                                            "or screening.json)")
+    p.set_defaults(func=_cmd_sensitivity)
+
+
+def _cmd_sensitivity(args):
+    from . import sensitivity_study as ss
+    from .results import read_results
+    from .study import load_study
+
+    study = load_study(args.study)
+    if args.screen:
+        screening = ss.study_screening(study, trajectories=args.trajectories, seed=args.seed)
+        out = args.out or study.default_output / "screening.json"
+        _write_json(screening.to_json(), out)
+        print(f"inert for every response: {', '.join(screening.inert) or 'none'}")
+        print(f"wrote {out}")
+        return
+    surrogates = None
+    if args.surrogate is not None:
+        from .surrogate import load_surrogates
+
+        surrogates = load_surrogates(args.surrogate, study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside) if args.results else None
+    result = ss.study_sensitivity(study, results, direct=args.direct, around=ss.parse_around(args.around, study),
+                                  second_order=args.second_order or None, base_samples=args.base_samples,
+                                  seed=args.seed, surrogates=surrogates, max_evaluations=args.max_evaluations)
+    data = ss.study_sensitivity_json(study, result)
+    out = args.out or study.default_output / "sensitivity.json"
+    _write_json(data, out)
+    for name, info in data["_meta"]["responses"].items():
+        print(f"{name}: {info['statement']}")
     print(f"wrote {out}")
 
 
@@ -118,13 +261,10 @@ def _add_robust(sub):
                                    "tolerance as one standard deviation), with limit probabilities, a fragility map "
                                    "and, with [vehicle], what each point is worth on track. Writes the robust JSON "
                                    "and a trade-off CSV of the non-dominated settings.")
-    p.add_argument("study", type=Path, help="study file (TOML)")
-    p.add_argument("--results", type=Path, required=True, help="results CSV")
+    _add_results_options(p)
     p.add_argument("--out", type=Path, help="robust JSON (default: reports/<study name>/robust.json)")
     p.add_argument("--tradeoff-out", type=Path, metavar="CSV",
                    help="trade-off CSV (default: tradeoff.csv beside the robust JSON)")
-    p.add_argument("--seed", type=int, help="seed of the surrogate fit (default: the study's [plan] seed)")
-    p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
     p.set_defaults(func=_cmd_robust)
 
 
@@ -152,11 +292,55 @@ def _cmd_robust(args):
         print(f"wrote {target}")
 
 
+def _add_section(sub):
+    p = sub.add_parser("section", help="lift, moment and pressures of one aerofoil section",
+                       description="Potential-flow lift, quarter-chord moment and pressure distribution of an "
+                                   "isolated section (a NACA 4-digit section or a coordinate file), in free air "
+                                   "or near the ground. Inviscid: real sections have about 10-15 % less lift "
+                                   "slope, and stall.")
+    what = p.add_mutually_exclusive_group(required=True)
+    what.add_argument("--naca", metavar="XXXX", help="NACA 4-digit designation, e.g. 4412")
+    what.add_argument("--coords", type=Path, metavar="FILE",
+                      help="text file of x y pairs, trailing edge round the leading edge and back")
+    p.add_argument("--alpha", type=float, required=True, help="angle of attack, degrees")
+    p.add_argument("--ground-height", type=float, help="quarter-chord height above the ground, chords")
+    p.add_argument("--inverted", action="store_true", help="turn the section upside down (downforce)")
+    p.add_argument("--panels", type=int, default=None, help="panels on the section (default 70)")
+    p.add_argument("--open-te", action="store_true", help="NACA: the published finite trailing edge")
+    p.add_argument("--json", action="store_true", help="print JSON (with the pressure distribution)")
+    p.set_defaults(func=_cmd_section)
+
+
+def _cmd_section(args):
+    from .aero.section_analysis import analyse_section
+    from .aero.sections import DEFAULT_SECTION_PANELS, naca4, parse_naca, read_coords
+
+    panels = args.panels or DEFAULT_SECTION_PANELS
+    if args.naca is not None:
+        section = naca4(*parse_naca(args.naca), n_panels=panels, closed_te=not args.open_te)
+    else:
+        section = read_coords(args.coords, n_panels=panels)
+    result = analyse_section(section, args.alpha, args.ground_height, args.inverted)
+    if args.json:
+        print(json.dumps(result.to_dict(), indent=2, allow_nan=False))
+        return
+    where = "free air" if args.ground_height is None else f"{args.ground_height:g} chords above the ground"
+    print(f"{result.name}{' (inverted)' if args.inverted else ''} at {args.alpha:g} deg, {where}, "
+          f"{section.n_panels} panels (inviscid)")
+    print(f"  cl         {result.cl:+.4f}")
+    print(f"  cm c/4     {result.cm_quarter:+.4f}")
+    print(f"  dCp        {result.dcp:.2f}  (Valarezo-Chin stall near 10-14)")
+
+
 #: Every verb: (name, function adding its parser). Extend here.
 VERBS = [
     ("plan", _add_plan),
     ("evaluate", _add_evaluate),
+    ("fit", _add_fit),
+    ("next", _add_next),
+    ("sensitivity", _add_sensitivity),
     ("robust", _add_robust),
+    ("section", _add_section),
 ]
 
 

@@ -1,26 +1,38 @@
 """Running a plan through an evaluator into the results store.
 
-Runs go out through one small executor interface (serial, local processes, or
-later a cluster), and each result is stored by this process as soon as it
-comes back, so a killed or interrupted evaluation keeps every finished run and
-resumes where it stopped.
+Runs go out through one small executor interface (:mod:`doe.executors`: this
+process, local processes, or a Dask cluster), and each result is stored by this
+process as soon as it comes back, so a killed or interrupted evaluation keeps
+every finished run and resumes where it stopped. At most a few tasks per worker
+are in flight at once, so a plan of any size streams through.
+
+What happens to a run that goes wrong
+-------------------------------------
+* The evaluator reports a failure (crash, time limit, bad output): stored as
+  ``failed`` with the reason; the study goes on.
+* The evaluator itself raises (a bug): stored as ``failed`` with the error.
+* The worker process dies: the runs it held are tried again one at a time on a
+  fresh worker; a run that kills its worker again is stored as ``failed``.
+* Ctrl-C: nothing more is started, running cases are stopped, finished runs
+  stay stored, and a line says how to resume.
 """
 from __future__ import annotations
 
 import sys
-from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass
 
 import numpy as np
 from tqdm import tqdm
 
 from .errors import DoeError, ResultsError
+from .evaluators.base import failed
+from .executors import LocalProcesses, WorkerDied, make_executor
 from .results import ResultsStore
 
-__all__ = ["EvaluationSummary", "Interrupted", "evaluate_plan", "BATCH_SIZE"]
+__all__ = ["EvaluationSummary", "Interrupted", "evaluate_plan", "TASKS_PER_WORKER"]
 
-#: Runs handed to an evaluator at once in serial mode (lets the built-in model vectorise).
-BATCH_SIZE = 32
+#: Tasks kept in flight per worker: enough to keep workers busy, few enough to stream.
+TASKS_PER_WORKER = 2
 
 
 class Interrupted(DoeError):
@@ -45,8 +57,8 @@ class EvaluationSummary:
 
     planned: int
     already_done: int
-    ran: int
-    failed: int
+    ran: int = 0
+    failed: int = 0
 
     def line(self, path) -> str:
         return (f"{self.planned} planned runs: {self.already_done} already in {path}, {self.ran} evaluated now"
@@ -67,12 +79,8 @@ def _check_same_points(plan, store: ResultsStore, parameters) -> None:
                                f"{a[bad][0]:g}; this results file belongs to another plan (use another --out)")
 
 
-def _evaluate_chunk(evaluator, run_ids, points):
-    return evaluator.evaluate_many(run_ids, points)
-
-
 def evaluate_plan(plan, evaluator, store_path, parameters, jobs: int = 1, retry_failed: bool = False,
-                  progress: bool = True) -> EvaluationSummary:
+                  progress: bool = True, scheduler: str | None = None, executor=None) -> EvaluationSummary:
     """Evaluate every run of ``plan`` not already in the results store.
 
     Parameters
@@ -89,6 +97,11 @@ def evaluate_plan(plan, evaluator, store_path, parameters, jobs: int = 1, retry_
         Rerun the runs stored as failed (their old rows are removed first).
     progress : bool
         Show a progress bar on standard error.
+    scheduler : str, optional
+        Address of a Dask scheduler (``tcp://host:8786``) or ``"local"``.
+    executor : Executor, optional
+        An executor to use instead of the one ``jobs``/``scheduler`` name (it is
+        not closed here).
 
     Returns
     -------
@@ -99,18 +112,18 @@ def evaluate_plan(plan, evaluator, store_path, parameters, jobs: int = 1, retry_
     Interrupted
         On Ctrl-C, after the finished runs are stored.
     """
-    if jobs < 1:
-        raise DoeError(f"--jobs must be at least 1, got {jobs}")
     with ResultsStore(store_path, parameters, evaluator.responses) as store:
         _check_same_points(plan, store, parameters)
         if retry_failed:
             store.drop_failed()
         done = store.done()
         todo = plan[~plan["run_id"].isin(done)]
-        summary = EvaluationSummary(len(plan), len(plan) - len(todo), 0, 0)
+        summary = EvaluationSummary(len(plan), len(plan) - len(todo))
         ids = list(todo["run_id"])
         points = todo[parameters].to_dict("records")
-        bar = tqdm(total=len(ids), desc="evaluating", unit="run", disable=not progress or not ids,
+        if not ids:
+            return summary
+        bar = tqdm(total=len(ids), desc="evaluating", unit="run", disable=not progress,
                    file=sys.stderr, dynamic_ncols=True)
 
         def keep(rid, point, outcome):
@@ -120,31 +133,88 @@ def evaluate_plan(plan, evaluator, store_path, parameters, jobs: int = 1, retry_
             bar.update(1)
             bar.set_postfix(failed=summary.failed, refresh=False)
 
+        own = executor is None
         try:
-            if jobs == 1:
-                for s in range(0, len(ids), BATCH_SIZE):
-                    chunk_ids, chunk_pts = ids[s:s + BATCH_SIZE], points[s:s + BATCH_SIZE]
-                    for rid, pt, out in zip(chunk_ids, chunk_pts, evaluator.evaluate_many(chunk_ids, chunk_pts)):
-                        keep(rid, pt, out)
+            if own:
+                executor = make_executor(jobs, scheduler)
+            if executor is None:
+                _run_here(evaluator, ids, points, keep)
             else:
-                _run_pool(evaluator, ids, points, jobs, keep)
+                _run_on(executor, evaluator, ids, points, keep)
         except KeyboardInterrupt:
             bar.close()
+            if own and executor is not None:
+                executor.close(cancel=True)
+                own = False
             raise Interrupted(f"stopped by the user: {summary.already_done + summary.ran} of {summary.planned} runs "
                               f"are stored in {store.path}; run the same command again to resume") from None
         finally:
             bar.close()
+            if own and executor is not None:
+                executor.close()
     return summary
 
 
-def _run_pool(evaluator, ids, points, jobs, keep) -> None:
-    pool = ProcessPoolExecutor(max_workers=jobs)
-    try:
-        futures = {pool.submit(_evaluate_chunk, evaluator, [rid], [pt]): (rid, pt) for rid, pt in zip(ids, points)}
-        for fut in as_completed(futures):
-            rid, pt = futures[fut]
-            keep(rid, pt, fut.result()[0])
-    except BaseException:
-        pool.shutdown(wait=False, cancel_futures=True)
-        raise
-    pool.shutdown(wait=True)
+def _chunks(evaluator, ids, points):
+    step = max(1, int(getattr(evaluator, "batch_size", 1)))
+    for s in range(0, len(ids), step):
+        yield ids[s:s + step], points[s:s + step]
+
+
+def _run_here(evaluator, ids, points, keep) -> None:
+    for chunk_ids, chunk_pts in _chunks(evaluator, ids, points):
+        for rid, pt, out in zip(chunk_ids, chunk_pts, evaluator.evaluate_many(chunk_ids, chunk_pts)):
+            keep(rid, pt, out)
+
+
+def _run_on(executor, evaluator, ids, points, keep) -> None:
+    window = max(1, executor.workers * TASKS_PER_WORKER)
+    queue = list(_chunks(evaluator, ids, points))[::-1]  # pop() from the end keeps plan order
+    in_flight = {}
+    suspects = []  # runs that were on a worker that died
+    while queue or in_flight:
+        while queue and len(in_flight) < window:
+            chunk = queue.pop()
+            in_flight[executor.submit(evaluator, *chunk)] = chunk
+        for handle, result in executor.wait_any(list(in_flight)):
+            chunk_ids, chunk_pts = in_flight.pop(handle)
+            if isinstance(result, WorkerDied) and isinstance(executor, LocalProcesses):
+                suspects += zip(chunk_ids, chunk_pts)
+            elif isinstance(result, BaseException):
+                for rid, pt in zip(chunk_ids, chunk_pts):
+                    keep(rid, pt, _error_outcome(evaluator, result))
+            else:
+                for rid, pt, out in zip(chunk_ids, chunk_pts, result):
+                    keep(rid, pt, out)
+        if suspects and isinstance(executor, LocalProcesses):
+            # A dead worker breaks the whole local pool: the other runs in flight were lost too.
+            for chunk_ids, chunk_pts in in_flight.values():
+                suspects += zip(chunk_ids, chunk_pts)
+            in_flight.clear()
+            executor.restart()
+    _run_suspects(evaluator, suspects, keep)
+
+
+def _run_suspects(evaluator, suspects, keep) -> None:
+    """Retry, one at a time on a fresh single worker, the runs whose worker died."""
+    for rid, pt in suspects:
+        solo = LocalProcesses(1)
+        try:
+            handle = solo.submit(evaluator, [rid], [pt])
+            (_, result), = solo.wait_any([handle])
+        finally:
+            solo.close(cancel=True)
+        if isinstance(result, BaseException):
+            keep(rid, pt, _error_outcome(evaluator, result, retried=True))
+        else:
+            keep(rid, pt, result[0])
+
+
+
+def _error_outcome(evaluator, exc: BaseException, retried: bool = False):
+    """A failed outcome for a run whose task raised or whose worker died."""
+    if isinstance(exc, WorkerDied):
+        why = f"{exc}" + ("; it was tried again on a fresh worker and died again" if retried else "")
+    else:
+        why = f"the evaluator raised {type(exc).__name__}: {exc}"
+    return failed(evaluator.responses, why, evaluator.kind)

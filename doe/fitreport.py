@@ -37,11 +37,15 @@ Verdict rules, in this order:
 
 1. ``"check the data"`` when a learned noise explains more than half of the
    variance of the runs (:data:`NOISE_SHARE_MAX`), or when one run's
-   standardised residual exceeds :data:`OUTLIER_Z` in magnitude while the
-   median magnitude stays below 1.5 (a single run that disagrees with all
-   the others: a failed case recorded as ok, a typo, a unit slip).
-   Under a correct Gaussian model a residual beyond 5 standard deviations
-   has a probability below 6e-7 per run (normal tail; common practice, no source).
+   standardised residual is at least :data:`OUTLIER_Z` in magnitude and at
+   least :data:`OUTLIER_RATIO` times the median magnitude, and its residual
+   exceeds half (:data:`OUTLIER_SPREAD`) the standard deviation of the runs,
+   so that it matters (a single run that
+   disagrees with all the others: a failed case recorded as ok, a typo, a
+   unit slip). Under a correct Gaussian model the median magnitude is about
+   0.67, so the ratio asks for about 4 standard deviations; the
+   hyperparameters partly adapt to a bad run, which is why the bar is not
+   higher (common practice, no source).
 2. ``"ready"`` when ``q2_loo >= target_q2``.
 3. ``"add runs"`` otherwise.
 """
@@ -49,11 +53,15 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["hyperparameter_statements", "verdict", "response_report", "OUTLIER_Z", "NOISE_SHARE_MAX",
+__all__ = ["hyperparameter_statements", "verdict", "response_report", "OUTLIER_Z", "OUTLIER_RATIO", "OUTLIER_SPREAD", "NOISE_SHARE_MAX",
            "FEW_RUNS_PER_PARAMETER"]
 
-#: Magnitude of a standardised leave-one-out residual that marks a suspicious run.
-OUTLIER_Z = 5.0
+#: Magnitude of a standardised leave-one-out residual that marks a suspicious run...
+OUTLIER_Z = 3.0
+#: ... when it is also this many times the median magnitude.
+OUTLIER_RATIO = 6.0
+#: ... and its residual exceeds this fraction of the standard deviation of the runs (it matters).
+OUTLIER_SPREAD = 0.5
 #: Largest share of the variance a learned noise may explain before the data are questioned.
 NOISE_SHARE_MAX = 0.5
 #: Fewer runs per parameter than this: hyperparameters are poorly determined.
@@ -81,6 +89,8 @@ def hyperparameter_statements(model) -> list:
     from .surrogate import AMPLITUDE_BOUNDS, LENGTH_SCALE_BOUNDS, NOISE_BOUNDS
 
     out = []
+    if model.constant_:
+        return out
     lo, hi = np.log(LENGTH_SCALE_BOUNDS)
     for name, ls in zip(_names(model), np.log(model.length_scales_)):
         if ls >= hi - _AT_BOUND:
@@ -107,31 +117,40 @@ def hyperparameter_statements(model) -> list:
     return out
 
 
-def verdict(q2: float, z: np.ndarray, noise_share: float, target_q2: float) -> tuple:
+def verdict(loo, noise_share: float, target_q2: float, labels=None, constant: bool = False) -> tuple:
     """The verdict on one response and its reason (rules in the module docstring).
 
     Parameters
     ----------
-    q2 : float
-        Leave-one-out predictivity coefficient.
-    z : ndarray
-        Standardised leave-one-out residuals.
+    loo : LooResult
+        Leave-one-out results of the response.
     noise_share : float
         Learned noise variance over the variance of the runs (0 when fixed).
     target_q2 : float
+    labels : list of str, optional
+        A name per residual (run ids), to name a suspicious run.
+    constant : bool
+        The response has the same value at every run.
 
     Returns
     -------
     verdict : {"ready", "add runs", "check the data"}
     reason : str
     """
-    az = np.abs(np.asarray(z, dtype=float))
+    if constant:
+        return "ready", "the response has the same value at every run; the surrogate returns that value"
+    q2 = loo.q2
+    az = np.abs(loo.standardised)
+    spread = float(np.std(loo.observed))
     if noise_share > NOISE_SHARE_MAX:
         return "check the data", (f"the learned noise explains {noise_share:.0%} of the variance of the runs: "
                                   "the parameters hardly explain the response; check the data and the setup")
-    if len(az) and az.max() > OUTLIER_Z and np.median(az) < 1.5:
-        return "check the data", (f"one run is {az.max():.1f} standard deviations from what the other runs "
-                                  "predict there: check that run (failed case, typo, unit)")
+    worst = int(np.argmax(az)) if len(az) else 0
+    if (len(az) and az[worst] >= OUTLIER_Z and az[worst] >= OUTLIER_RATIO * np.median(az)
+            and abs(loo.residual[worst]) > OUTLIER_SPREAD * spread):
+        run = f"run {labels[worst]}" if labels is not None else "one run"
+        return "check the data", (f"{run} is {az[worst]:.1f} standard deviations from what the other runs "
+                                  "predict there, far more than the rest: check that run (failed case, typo, unit)")
     if np.isfinite(q2) and q2 >= target_q2:
         return "ready", f"q2_loo = {q2:.3f} meets the target {target_q2:g}"
     why = f"q2_loo = {q2:.3f} is below the target {target_q2:g}"
@@ -150,7 +169,8 @@ def response_report(model, sset, name: str) -> dict:
     var_y = float(np.var(model.y_)) if len(model.y_) else 0.0
     noise_share = float(model._parts()["noise"] * model.y_std_**2 / var_y) if model.learn_noise_ and var_y > 0 else 0.0
     z = loo.standardised
-    label, reason = verdict(loo.q2, z, noise_share, sset.target_q2)
+    label, reason = verdict(loo, noise_share, sset.target_q2, ["+".join(ids[i] for i in g) for g in model.groups_],
+                            model.constant_)
     from .surrogate import _label
 
     points = [{"run_ids": [ids[i] for i in g], "observed": float(o), "predicted": float(p), "std": float(s)}

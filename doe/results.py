@@ -32,7 +32,7 @@ from .errors import ResultsError, StoreLockedError, where
 from .evaluators.base import Outcome
 from .evaluators.command import safe_run_id
 
-__all__ = ["read_plan", "read_results", "write_plan", "ResultsTable", "ResultsStore",
+__all__ = ["read_plan", "read_points", "read_results", "write_plan", "ResultsTable", "ResultsStore",
            "STATUS_VALUES", "META_COLUMNS"]
 
 STATUS_VALUES = ("ok", "failed")
@@ -62,17 +62,15 @@ def _read_rows(path: Path) -> _Rows:
     if size > MAX_FILE_BYTES:
         raise ResultsError(f"{path}: the file is {size / 2**20:.0f} MiB; the limit is {MAX_FILE_BYTES / 2**20:.0f} MiB")
     raw = path.read_bytes()
-    if b"\x00" in raw:
-        raise ResultsError(f"{path}: holds NUL bytes; is it a text CSV file?")
-    for encoding in ("utf-8-sig", "utf-16") if raw[:2] in (b"\xff\xfe", b"\xfe\xff") else ("utf-8-sig",):
-        try:
-            text = raw.decode(encoding)
-            break
-        except UnicodeDecodeError as exc:
-            bad = exc
-    else:
-        line = raw[: bad.start].count(b"\n") + 1
-        raise ResultsError(f"{where(path, line)}: not UTF-8 text (save the file as UTF-8 CSV)")
+    encoding = "utf-16" if raw[:2] in (b"\xff\xfe", b"\xfe\xff") else "utf-8-sig"
+    try:
+        text = raw.decode(encoding)
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise ResultsError(f"{where(path, line)}: not UTF-8 text (save the file as UTF-8 CSV)") from None
+    if "\x00" in text:
+        raise ResultsError(f"{where(path, text[: text.index(chr(0))].count(chr(10)) + 1)}: holds NUL bytes; "
+                           "is it a text CSV file?")
     lines = text.splitlines()
     if not lines or not lines[0].strip():
         raise ResultsError(f"{path}: empty file, or the first line (the header) is blank")
@@ -188,6 +186,23 @@ def read_plan(path, study) -> pd.DataFrame:
     _check_bounds(study.space, X, rows, accept_outside=False)
     frame = pd.DataFrame(X, columns=study.space.names)
     frame.insert(0, "run_id", ids)
+    return frame
+
+
+def read_points(path, study) -> pd.DataFrame:
+    """Read points to predict at: the parameter columns, ``run_id`` optional.
+
+    Points outside the bounds are kept with a warning (the surrogate then
+    extrapolates). Returns a DataFrame with ``run_id`` (when given) and one
+    float column per parameter, study units.
+    """
+    rows = _read_rows(Path(path))
+    _require_columns(rows, study.space.names, "parameter")
+    X = _matrix(rows, study.space.names, allow_empty=False)
+    _check_bounds(study.space, X, rows, accept_outside=True)
+    frame = pd.DataFrame(X, columns=study.space.names)
+    if "run_id" in rows.header:
+        frame.insert(0, "run_id", _run_ids(rows))
     return frame
 
 

@@ -67,8 +67,8 @@ from .space import LinearConstraint, Parameter, Space
 from .tables import NAME_PATTERN, REQUIRED, Source, Table
 from .vehicle import DRIVES, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle
 
-__all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "ResponseLimit", "RobustSettings",
-           "VehicleSettings", "Study", "load_study", "read_study_text",
+__all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "SensitivitySettings", "ResponseLimit",
+           "RobustSettings", "VehicleSettings", "Study", "load_study", "read_study_text",
            "RESERVED_COLUMNS", "GOALS", "PLAN_METHODS"]
 
 #: Column names a parameter or response may not take.
@@ -174,6 +174,33 @@ class EvaluatorSettings:
     def table(self) -> Table:
         """The options (all keys but ``kind``) as a checked :class:`~doe.tables.Table`."""
         return Table(self.options, self.source or Source(None), "evaluator")
+
+
+@dataclass(frozen=True)
+class SensitivitySettings:
+    """``[sensitivity]``: the question ``doe sensitivity`` asks.
+
+    Attributes
+    ----------
+    distribution : {"uniform", "normal", "truncnormal"}
+        Input distribution: uniform over the bounds, or scatter (one standard
+        deviation = the parameter's tolerance) around ``nominal``.
+    nominal : dict of str to float
+        The setting the scatter is around, study units; a parameter left out
+        sits at the middle of its range.
+    base_samples : int or None
+        Saltelli base sample (a power of two); None chooses it (see doe.sensitivity).
+    second_order : bool
+        Also estimate second-order indices.
+    paths : int
+        Surrogate posterior sample paths for the surrogate's share of the intervals.
+    """
+
+    distribution: str = "uniform"
+    nominal: dict = field(default_factory=dict)
+    base_samples: int | None = None
+    second_order: bool = False
+    paths: int = 64
 
 
 @dataclass(frozen=True)
@@ -296,6 +323,7 @@ class Study:
     plan: PlanSettings = PlanSettings()
     description: str = ""
     fit: FitSettings = FitSettings()
+    sensitivity: SensitivitySettings = SensitivitySettings()
     robust: "RobustSettings | None" = None
     vehicle: "VehicleSettings | None" = None
     track: Track | None = None
@@ -369,8 +397,8 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
         raise StudyError(f"{where(path)}: not valid TOML ({exc})") from exc
     source = Source(path, text)
     top = Table(data, source, "")
-    known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "fit", "robust", "vehicle",
-             "track")
+    known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "fit", "sensitivity", "robust",
+             "vehicle", "track")
     unknown = [k for k in data if k not in known]
     if unknown:
         line = source.line_of(unknown[0]) or source.line_of(None, unknown[0])
@@ -398,11 +426,15 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     plan = _read_plan(_one_table(top, "plan"), len(parameters))
     space = Space(parameters, constraints)
     fit = _read_fit(_one_table(top, "fit"))
-    robust = _read_robust(_one_table(top, "robust"), responses, plan.seed, parameters)
+    sensitivity = _read_sensitivity(_one_table(top, "sensitivity"), parameters)
+    has_goal = any(r.goal != "none" for r in responses)
+    robust = (_read_robust(_one_table(top, "robust"), responses, plan.seed, parameters)
+              if "robust" in data or has_goal else None)
     vehicle = _read_vehicle(_one_table(top, "vehicle"), responses) if "vehicle" in data else None
     track = _read_track(_one_table(top, "track")) if "track" in data else None
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
-                  plan=plan, description=description, fit=fit, robust=robust, vehicle=vehicle, track=track)
+                  plan=plan, description=description, fit=fit, sensitivity=sensitivity, robust=robust,
+                  vehicle=vehicle, track=track)
     from .evaluators import check_settings  # late import: evaluators build on studies
 
     check_settings(study)
@@ -669,3 +701,21 @@ def _read_fit(t: Table) -> FitSettings:
                    check=lambda v: all(isinstance(x, str) for x in v), why="must be a list of strings")
     t.finish()
     return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact))
+
+
+def _read_sensitivity(t: Table, parameters) -> SensitivitySettings:
+    distribution = t.take("distribution", str, default="uniform", choices=("uniform", "normal", "truncnormal"))
+    nominal = t.take("nominal", dict, default={})
+    by_name = {p.name: p for p in parameters}
+    for key, value in nominal.items():
+        if key not in by_name:
+            raise t.error("nominal", f"'{key}' is not a parameter (parameters: {', '.join(by_name)})")
+        p = by_name[key]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not p.low <= value <= p.high:
+            raise t.error("nominal", f"'{key}' must be a number in [{p.low:g}, {p.high:g}] {p.unit}, got {value!r}")
+    base = t.take("base_samples", int, default=None, check=lambda v: v >= 8 and not v & (v - 1),
+                  why="must be a power of two of at least 8")
+    second = t.take("second_order", bool, default=False)
+    paths = t.take("paths", int, default=64, check=lambda v: v >= 8, why="must be at least 8")
+    t.finish()
+    return SensitivitySettings(distribution, {k: float(v) for k, v in nominal.items()}, base, second, paths)

@@ -71,7 +71,7 @@ from . import gppaths
 from .errors import NotFittedError, SurrogateError
 from .fitreport import hyperparameter_statements, response_report
 
-__all__ = ["ResponseSurrogate", "SurrogateSet", "LooResult", "fit_surrogates", "load_surrogates",
+__all__ = ["ResponseSurrogate", "SurrogateSet", "LooResult", "fit_surrogates", "load_surrogates", "prediction_frame",
            "FAMILIES", "TRENDS", "NOISE_MODES", "SELECTIONS", "LENGTH_SCALE_BOUNDS", "NOISE_BOUNDS",
            "DEFAULT_NUGGET", "FORMAT"]
 
@@ -326,7 +326,8 @@ class ResponseSurrogate:
         self.Z_ = X - 0.5
         self.y_mean_ = float(np.mean(y))
         std = float(np.std(y))
-        if std <= 1e-12 * max(1.0, abs(self.y_mean_)):
+        self.constant_ = std <= 1e-12 * max(1.0, abs(self.y_mean_))
+        if self.constant_:
             self.statements_.append("the response has the same value at every run: the surrogate is a constant")
             std = 1.0
         self.y_std_ = std
@@ -545,13 +546,28 @@ class ResponseSurrogate:
         other._refit_fixed(np.vstack([self.X_unit_, X]), np.concatenate([self.y_, y]))
         return other
 
+    def capped(self, max_length_scale: float) -> "ResponseSurrogate":
+        """A copy whose length scales (fractions of each range) are at most ``max_length_scale``.
+
+        Used to score candidate runs without trusting a parameter's apparent
+        irrelevance: a few runs can make a weak effect look absent.
+        """
+        self._check_fitted()
+        other = copy.copy(self)
+        d = self.X_unit_.shape[1]
+        theta = self.theta_.copy()
+        theta[1:1 + d] = np.minimum(theta[1:1 + d], np.log(max_length_scale))
+        other.theta_ = theta
+        other._refit_fixed(self.X_unit_, self.y_)
+        return other
+
     # -- records -----------------------------------------------------------
     def to_record(self) -> dict:
         """Hyperparameters and scaling as plain JSON values (training data go to NPZ)."""
         self._check_fitted()
         return {"family": self.family_, "trend": self.trend_, "learn_noise": bool(self.learn_noise_),
                 "nugget": self.nugget_, "theta": [float(t) for t in self.theta_],
-                "y_mean": self.y_mean_, "y_std": self.y_std_,
+                "y_mean": self.y_mean_, "y_std": self.y_std_, "constant": bool(self.constant_),
                 "log_marginal_likelihood": self.log_marginal_likelihood_,
                 "options": {"kernel": self.kernel, "trend": self.trend, "noise": self.noise,
                             "restarts": int(self.restarts), "nugget": float(self.nugget),
@@ -572,6 +588,7 @@ class ResponseSurrogate:
             model.nugget_ = float(record["nugget"])
             model.theta_ = np.array(record["theta"], dtype=float)
             model.y_mean_, model.y_std_ = float(record["y_mean"]), float(record["y_std"])
+            model.constant_ = bool(record["constant"])
             model.log_marginal_likelihood_ = float(record["log_marginal_likelihood"])
             model.statements_ = [str(s) for s in record["statements"]]
             model.candidates_ = list(record["candidates"])
@@ -684,8 +701,8 @@ class SurrogateSet:
         return {name: response_report(m, self, name) for name, m in self.models.items()}
 
     def accuracy_met(self) -> bool:
-        """Whether every response has ``q2_loo >= target_q2`` (the stopping rule)."""
-        return all(m.loo_.q2 >= self.target_q2 for m in self.models.values())
+        """Whether every response has ``q2_loo >= target_q2`` (the stopping rule; constant responses pass)."""
+        return all(m.constant_ or m.loo_.q2 >= self.target_q2 for m in self.models.values())
 
     # -- save / load -------------------------------------------------------
     def save(self, folder) -> Path:
@@ -794,7 +811,8 @@ def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
     if len(ok) == 0:
         raise SurrogateError(f"{results.path or 'results'}: no ok runs to fit")
     X = study.space.to_unit(results.X())
-    sources = sorted({str(s) for s in ok["source"]} - set(settings["exact_sources"]))
+    given = ok["source"] if "source" in ok.columns else ["recorded"] * len(ok)
+    sources = sorted({str(s) for s in given} - set(settings["exact_sources"]))
     noise, reason = settings["noise"], ""
     if noise == "auto" and sources:
         noise, reason = "learn", f"runs from {', '.join(sources)} are treated as noisy: a noise level is learned"
@@ -826,3 +844,28 @@ def _settings(study, options) -> dict:
         raise SurrogateError(f"unknown surrogate option(s) {sorted(unknown)}; known: {', '.join(base)}")
     base.update(options)
     return base
+
+
+def prediction_frame(sset: SurrogateSet, points):
+    """Predictions as a table: ``run_id`` (if given), the parameters, ``<response>_mean``, ``<response>_std``.
+
+    Parameters
+    ----------
+    sset : SurrogateSet
+    points : DataFrame
+        Parameter columns in study units, ``run_id`` optional.
+
+    Returns
+    -------
+    DataFrame
+        Means and standard deviations in each response's unit; the standard
+        deviation is the surrogate's own uncertainty (no observation noise).
+    """
+    import pandas as pd
+
+    names = sset.space.names
+    out = pd.DataFrame(points[[c for c in ["run_id", *names] if c in points.columns]]).reset_index(drop=True)
+    for name, (mean, std) in sset.predict(points[names].to_numpy(dtype=float)).items():
+        out[f"{name}_mean"] = mean
+        out[f"{name}_std"] = std
+    return out

@@ -64,6 +64,10 @@ class Evaluator(ABC):
     """
 
     kind: str = "base"
+    #: Runs handed to :meth:`evaluate_many` at once in serial mode. Keep 1 for slow
+    #: evaluators (each run is stored as soon as it is done); a fast vectorised
+    #: evaluator may raise it.
+    batch_size: int = 1
 
     def __init__(self, responses):
         self.responses = list(responses)
