@@ -192,3 +192,10 @@ def test_study_responses_lists_what_robust_reads():
     from doe.robust import study_responses
 
     assert study_responses(read_study_text(HEAD + DEMO)) == ["cla_total", "cda_total", "cla_front", "cla_rear"]
+
+
+def test_study_without_goals_has_no_robust_settings_unless_asked():
+    plain = HEAD.replace('goal = "minimize"', 'goal = "none"')
+    assert read_study_text(plain).robust is None
+    with pytest.raises(StudyError, match='goal = "none"'):
+        read_study_text(plain + '\n[robust]\nobjective = "cla_total"\n')
