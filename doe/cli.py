@@ -273,13 +273,14 @@ def _add_robust(sub):
 
 def _cmd_robust(args):
     from .results import read_results
-    from .robust import study_robust, study_tradeoff, write_tradeoff
+    from .robust import only_responses, study_responses, study_robust, study_tradeoff, write_tradeoff
     from .study import load_study
     from .surrogate import fit_surrogates
 
     study = load_study(args.study)
     results = read_results(args.results, study, accept_outside=args.accept_outside)
     sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    sset = only_responses(sset, study_responses(study))
     result = study_robust(study, sset.predict, runs_X=results.X())
     out = args.out or study.default_output / "robust.json"
     _write_json(result.to_dict(), out)
