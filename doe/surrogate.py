@@ -686,6 +686,9 @@ class SurrogateSet:
     target_q2 : float
         The accuracy wanted (``[fit] target_q2``), for verdicts and the stopping rule.
     study_name : str
+    noise_reason : dict of str to str
+        Why a noise level was learned for a response (empty when it was not
+        decided by the runs' sources).
     """
 
     space: object
