@@ -115,10 +115,10 @@ def _cmd_evaluate(args):
     print(f"wrote {out}")
 
 
-def _add_results_options(p):
+def _add_results_options(p, results_required: bool = True):
     """Options shared by the verbs that fit surrogates to a results CSV."""
     p.add_argument("study", type=Path, help="study file (TOML)")
-    p.add_argument("--results", type=Path, required=True, help="results CSV")
+    p.add_argument("--results", type=Path, required=results_required, help="results CSV")
     p.add_argument("--seed", type=int, help="seed (default: the study's [plan] seed)")
     p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
 
@@ -204,12 +204,145 @@ def _cmd_next(args):
     print(f"wrote {out}")
 
 
+def _add_sensitivity(sub):
+    p = sub.add_parser("sensitivity", help="which knobs matter: Sobol indices with 95 %% intervals",
+                       description="First-order and total Sobol indices per response and parameter, on surrogates "
+                                   "fitted to the results (intervals from the estimator and the surrogate), or "
+                                   "straight from a cheap evaluator with --direct. --screen runs Morris screening "
+                                   "with the evaluator instead. Writes the sensitivity (or screening) JSON and "
+                                   "prints a ranked statement per response.")
+    _add_results_options(p, results_required=False)
+    p.add_argument("--surrogate", type=Path, metavar="FOLDER", help="use surrogates saved by 'doe fit' instead of fitting")
+    p.add_argument("--direct", action="store_true", help="call the study's evaluator (cheap ones only), no surrogate")
+    p.add_argument("--around", nargs="+", metavar="SETTING",
+                   help="scatter (tolerances) around 'nominal' or a setting NAME=VALUE ... instead of the bounds")
+    p.add_argument("--second-order", action="store_true", help="also estimate second-order indices")
+    p.add_argument("--base-samples", type=int, metavar="N", help="Saltelli base sample, a power of two (default: chosen)")
+    p.add_argument("--max-evaluations", type=int, metavar="K",
+                   help="--direct: at most K evaluator calls while the base sample grows (default 20000)")
+    p.add_argument("--screen", action="store_true", help="Morris screening with the evaluator (many parameters)")
+    p.add_argument("--trajectories", type=int, default=20, help="Morris trajectories with --screen (default 20)")
+    p.add_argument("--out", type=Path, help="JSON to write (default: reports/<study name>/sensitivity.json "
+                                            "or screening.json)")
+    p.set_defaults(func=_cmd_sensitivity)
+
+
+def _cmd_sensitivity(args):
+    from . import sensitivity_study as ss
+    from .results import read_results
+    from .study import load_study
+
+    study = load_study(args.study)
+    if args.screen:
+        screening = ss.study_screening(study, trajectories=args.trajectories, seed=args.seed)
+        out = args.out or study.default_output / "screening.json"
+        _write_json(screening.to_json(), out)
+        print(f"inert for every response: {', '.join(screening.inert) or 'none'}")
+        print(f"wrote {out}")
+        return
+    surrogates = None
+    if args.surrogate is not None:
+        from .surrogate import load_surrogates
+
+        surrogates = load_surrogates(args.surrogate, study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside) if args.results else None
+    result = ss.study_sensitivity(study, results, direct=args.direct, around=ss.parse_around(args.around, study),
+                                  second_order=args.second_order or None, base_samples=args.base_samples,
+                                  seed=args.seed, surrogates=surrogates, max_evaluations=args.max_evaluations)
+    data = ss.study_sensitivity_json(study, result)
+    out = args.out or study.default_output / "sensitivity.json"
+    _write_json(data, out)
+    for name, info in data["_meta"]["responses"].items():
+        print(f"{name}: {info['statement']}")
+    print(f"wrote {out}")
+
+
+def _add_robust(sub):
+    p = sub.add_parser("robust", help="settings that stay good under setup scatter; downforce-drag trade-off",
+                       description="Fit the surrogates to the results, then find the nominal optimum of the study's "
+                                   "[robust] objective and the robust optimum under setup scatter (each parameter's "
+                                   "tolerance as one standard deviation), with limit probabilities, a fragility map "
+                                   "and, with [vehicle], what each point is worth on track. Writes the robust JSON "
+                                   "and a trade-off CSV of the non-dominated settings.")
+    _add_results_options(p)
+    p.add_argument("--out", type=Path, help="robust JSON (default: reports/<study name>/robust.json)")
+    p.add_argument("--tradeoff-out", type=Path, metavar="CSV",
+                   help="trade-off CSV (default: tradeoff.csv beside the robust JSON)")
+    p.set_defaults(func=_cmd_robust)
+
+
+def _cmd_robust(args):
+    from .results import read_results
+    from .robust import study_robust, study_tradeoff, write_tradeoff
+    from .study import load_study
+    from .surrogate import fit_surrogates
+
+    study = load_study(args.study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    result = study_robust(study, sset.predict, runs_X=results.X())
+    out = args.out or study.default_output / "robust.json"
+    _write_json(result.to_dict(), out)
+    for label, point in (("nominal", result.nominal), ("robust", result.robust)):
+        _say(point.summary(label, result.objective, result.unit))
+    print(f"wrote {out}")
+    if len(study.robust.tradeoff) >= 2:
+        target = args.tradeoff_out or out.with_name("tradeoff.csv")
+        table = study_tradeoff(study, sset.predict)
+        write_tradeoff(table, target)
+        _say(f"trade-off: {len(table)} non-dominated settings of {', '.join(study.robust.tradeoff)}")
+        print(f"wrote {target}")
+
+
+def _add_section(sub):
+    p = sub.add_parser("section", help="lift, moment and pressures of one aerofoil section",
+                       description="Potential-flow lift, quarter-chord moment and pressure distribution of an "
+                                   "isolated section (a NACA 4-digit section or a coordinate file), in free air "
+                                   "or near the ground. Inviscid: real sections have about 10-15 % less lift "
+                                   "slope, and stall.")
+    what = p.add_mutually_exclusive_group(required=True)
+    what.add_argument("--naca", metavar="XXXX", help="NACA 4-digit designation, e.g. 4412")
+    what.add_argument("--coords", type=Path, metavar="FILE",
+                      help="text file of x y pairs, trailing edge round the leading edge and back")
+    p.add_argument("--alpha", type=float, required=True, help="angle of attack, degrees")
+    p.add_argument("--ground-height", type=float, help="quarter-chord height above the ground, chords")
+    p.add_argument("--inverted", action="store_true", help="turn the section upside down (downforce)")
+    p.add_argument("--panels", type=int, default=None, help="panels on the section (default 70)")
+    p.add_argument("--open-te", action="store_true", help="NACA: the published finite trailing edge")
+    p.add_argument("--json", action="store_true", help="print JSON (with the pressure distribution)")
+    p.set_defaults(func=_cmd_section)
+
+
+def _cmd_section(args):
+    from .aero.section_analysis import analyse_section
+    from .aero.sections import DEFAULT_SECTION_PANELS, naca4, parse_naca, read_coords
+
+    panels = args.panels or DEFAULT_SECTION_PANELS
+    if args.naca is not None:
+        section = naca4(*parse_naca(args.naca), n_panels=panels, closed_te=not args.open_te)
+    else:
+        section = read_coords(args.coords, n_panels=panels)
+    result = analyse_section(section, args.alpha, args.ground_height, args.inverted)
+    if args.json:
+        print(json.dumps(result.to_dict(), indent=2, allow_nan=False))
+        return
+    where = "free air" if args.ground_height is None else f"{args.ground_height:g} chords above the ground"
+    print(f"{result.name}{' (inverted)' if args.inverted else ''} at {args.alpha:g} deg, {where}, "
+          f"{section.n_panels} panels (inviscid)")
+    print(f"  cl         {result.cl:+.4f}")
+    print(f"  cm c/4     {result.cm_quarter:+.4f}")
+    print(f"  dCp        {result.dcp:.2f}  (Valarezo-Chin stall near 10-14)")
+
+
 #: Every verb: (name, function adding its parser). Extend here.
 VERBS = [
     ("plan", _add_plan),
     ("evaluate", _add_evaluate),
     ("fit", _add_fit),
     ("next", _add_next),
+    ("sensitivity", _add_sensitivity),
+    ("robust", _add_robust),
+    ("section", _add_section),
 ]
 
 

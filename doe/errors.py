@@ -18,6 +18,8 @@ __all__ = [
     "SurrogateError",
     "NotFittedError",
     "StoreLockedError",
+    "SensitivityError",
+    "AeroError",
     "where",
 ]
 
@@ -52,6 +54,14 @@ class NotFittedError(SurrogateError):
 
 class StoreLockedError(DoeError):
     """Another process is writing to the same results store."""
+
+
+class SensitivityError(DoeError):
+    """A sensitivity analysis cannot be run as asked (bad distribution, failed runs, ...)."""
+
+
+class AeroError(DoeError):
+    """The built-in aerodynamic model cannot be set up as asked (bad section file, clashing geometry, ...)."""
 
 
 def where(path, line=None, key=None, column=None) -> str:

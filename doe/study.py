@@ -29,6 +29,31 @@ Minimal example::
     [plan]
     runs = 40
     seed = 1
+
+Optional tables for robust settings and vehicle figures (see
+``studies/demo_vehicle.toml`` for a full example):
+
+``[robust]``
+    ``objective`` (a response with a goal; default the first), ``k`` (robust
+    value = mean -/+ k std, default 1), ``probability`` (each limit must hold
+    with this chance, default 0.9), ``samples`` (Monte-Carlo draws of setup
+    scatter, default 256), ``seed`` (default ``[plan] seed``), ``limits`` (list
+    of ``{ response = "...", max = x, min = y }``, either bound optional),
+    ``tradeoff`` (responses of the trade-off set; default those with a goal),
+    ``targets`` (``{ response = value }`` for trade-off responses with goal none),
+    ``baseline`` (``{ parameter = value, ... }``: the setting run now, to compare with).
+``[vehicle]``
+    ``mass_kg``, ``tyre_mu``, ``power_kw`` (at the wheels), ``wheelbase_m``,
+    ``cg_to_front_axle_m`` (required); ``rolling_resistance`` (-, default
+    0.012), ``drive`` (front | rear | all), ``brake_limit_g``,
+    ``air_density_kg_m3`` (default 1.225); ``cla_response``/``cda_response``
+    (default cla_total/cda_total), ``front_share_response`` or
+    ``aero_front_share`` (front share of the aero load, -); ``speeds_kph`` and
+    ``radii_m`` of the tables.
+``[track]``
+    ``name`` and ``[[track.segments]]``, each ``kind = "straight"`` with
+    ``length_m``, or ``kind = "corner"`` with ``radius_m`` and one of
+    ``angle_deg`` or ``length_m`` (arc). The lap closes on itself.
 """
 from __future__ import annotations
 
@@ -39,9 +64,11 @@ from pathlib import Path
 
 from .errors import StudyError, where
 from .space import LinearConstraint, Parameter, Space
-from .tables import NAME_PATTERN, Source, Table
+from .tables import NAME_PATTERN, REQUIRED, Source, Table
+from .vehicle import DRIVES, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle
 
-__all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "Study", "load_study", "read_study_text",
+__all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "SensitivitySettings", "ResponseLimit",
+           "RobustSettings", "VehicleSettings", "Study", "load_study", "read_study_text",
            "RESERVED_COLUMNS", "GOALS", "PLAN_METHODS"]
 
 #: Column names a parameter or response may not take.
@@ -155,6 +182,121 @@ class EvaluatorSettings:
 
 
 @dataclass(frozen=True)
+class SensitivitySettings:
+    """``[sensitivity]``: the question ``doe sensitivity`` asks.
+
+    Attributes
+    ----------
+    distribution : {"uniform", "normal", "truncnormal"}
+        Input distribution: uniform over the bounds, or scatter (one standard
+        deviation = the parameter's tolerance) around ``nominal``.
+    nominal : dict of str to float
+        The setting the scatter is around, study units; a parameter left out
+        sits at the middle of its range.
+    base_samples : int or None
+        Saltelli base sample (a power of two); None chooses it (see doe.sensitivity).
+    second_order : bool
+        Also estimate second-order indices.
+    paths : int
+        Surrogate posterior sample paths for the surrogate's share of the intervals.
+    """
+
+    distribution: str = "uniform"
+    nominal: dict = field(default_factory=dict)
+    base_samples: int | None = None
+    second_order: bool = False
+    paths: int = 64
+
+
+@dataclass(frozen=True)
+class ResponseLimit:
+    """One limit of ``[robust] limits``: ``min <= response <= max`` (in the response's unit)."""
+
+    response: str
+    max: float | None = None
+    min: float | None = None
+
+    def describe(self) -> str:
+        """``"0.3 <= balance_front <= 0.5"``."""
+        left = f"{self.min:g} <= " if self.min is not None else ""
+        right = f" <= {self.max:g}" if self.max is not None else ""
+        return f"{left}{self.response}{right}"
+
+
+@dataclass(frozen=True)
+class RobustSettings:
+    """``[robust]``: what the robust search looks for (see :mod:`doe.robust`).
+
+    Attributes
+    ----------
+    objective : str
+        Response to optimise, in the direction of its ``goal``.
+    goal : {"minimize", "maximize"}
+        The objective's goal.
+    k : float
+        Robust score is mean - k * std (maximize) or mean + k * std (minimize), -.
+    probability : float
+        Chance, under setup scatter and surrogate error, that each limit holds at
+        the robust point, -.
+    limits : tuple of ResponseLimit
+    samples : int
+        Monte-Carlo draws of setup scatter per candidate point.
+    seed : int
+        Seed of the draws and of the global search.
+    tradeoff : tuple of str
+        Responses of the trade-off (non-dominated) set.
+    targets : dict of str to float
+        For trade-off responses with goal ``none``: the value aimed at (distance to it is minimised).
+    baseline : dict of str to float or None
+        The setting the car runs now, one value per parameter (its unit), to compare with.
+    """
+
+    objective: str
+    goal: str
+    k: float = 1.0
+    probability: float = 0.9
+    limits: tuple = ()
+    samples: int = 256
+    seed: int = 0
+    tradeoff: tuple = ()
+    targets: dict = field(default_factory=dict)
+    baseline: dict | None = None
+
+
+@dataclass(frozen=True)
+class VehicleSettings:
+    """``[vehicle]``: the car, and which responses give its CLA, CDA and aero balance.
+
+    Attributes
+    ----------
+    car : doe.vehicle.Vehicle
+    cla_response, cda_response : str
+        Responses holding CLA and CDA of the whole car, m^2 (CLA negative for
+        downforce); ``cla_response`` is None when the axle responses are given.
+    cla_front_response, cla_rear_response : str or None
+        Responses holding the CLA at each axle, m^2 (both or neither).
+    front_share_response : str or None
+        Response holding the front share of the aero load (-); None uses ``aero_front_share``.
+    aero_front_share : float
+        Fixed front share of the aero load when no response gives it, -.
+    speeds_kph : tuple of float
+        Speeds of the force tables, km/h.
+    radii_m : tuple of float
+        Radii of the corner-speed tables, m.
+    """
+
+    car: Vehicle
+    cla_response: str | None = "cla_total"
+    cda_response: str = "cda_total"
+    cla_front_response: str | None = None
+    cla_rear_response: str | None = None
+    front_share_response: str | None = None
+    aero_front_share: float = 0.5
+    speeds_kph: tuple = (100.0, 150.0, 200.0)
+    radii_m: tuple = (25.0, 50.0, 100.0, 200.0)
+
+
+@dataclass(frozen=True)
 class Study:
     """A validated study.
 
@@ -169,6 +311,13 @@ class Study:
     evaluator : EvaluatorSettings
     plan : PlanSettings
     description : str
+    robust : RobustSettings or None
+        ``[robust]``: goals of the robust search (None for a study built in
+        memory without one; :func:`read_study_text` always sets it).
+    vehicle : VehicleSettings or None
+        ``[vehicle]``: the car the aero numbers are translated for (optional).
+    track : doe.vehicle.Track or None
+        ``[track]``: the lap for lap-time estimates (optional).
     """
 
     name: str
@@ -179,6 +328,10 @@ class Study:
     plan: PlanSettings = PlanSettings()
     description: str = ""
     fit: FitSettings = FitSettings()
+    sensitivity: SensitivitySettings = SensitivitySettings()
+    robust: "RobustSettings | None" = None
+    vehicle: "VehicleSettings | None" = None
+    track: Track | None = None
 
     @property
     def folder(self) -> Path:
@@ -249,7 +402,8 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
         raise StudyError(f"{where(path)}: not valid TOML ({exc})") from exc
     source = Source(path, text)
     top = Table(data, source, "")
-    known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "fit")
+    known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "fit", "sensitivity", "robust",
+             "vehicle", "track")
     unknown = [k for k in data if k not in known]
     if unknown:
         line = source.line_of(unknown[0]) or source.line_of(None, unknown[0])
@@ -277,8 +431,15 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     plan = _read_plan(_one_table(top, "plan"), len(parameters))
     space = Space(parameters, constraints)
     fit = _read_fit(_one_table(top, "fit"))
+    sensitivity = _read_sensitivity(_one_table(top, "sensitivity"), parameters)
+    has_goal = any(r.goal != "none" for r in responses)
+    robust = (_read_robust(_one_table(top, "robust"), responses, plan.seed, parameters)
+              if "robust" in data or has_goal else None)
+    vehicle = _read_vehicle(_one_table(top, "vehicle"), responses) if "vehicle" in data else None
+    track = _read_track(_one_table(top, "track")) if "track" in data else None
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
-                  plan=plan, description=description, fit=fit)
+                  plan=plan, description=description, fit=fit, sensitivity=sensitivity, robust=robust,
+                  vehicle=vehicle, track=track)
     from .evaluators import check_settings  # late import: evaluators build on studies
 
     check_settings(study)
@@ -316,7 +477,8 @@ def _array(top: Table, key: str, required: bool = False) -> list:
                          f"'{key}' must be written as [[{key}]] tables")
     if required and not value:
         raise StudyError(f"{where(top.source.path)}: [[{key}]] is empty (at least one is needed)")
-    return [Table(v, top.source, key, i) for i, v in enumerate(value)]
+    label = f"{top.name}.{key}" if top.name else key
+    return [Table(v, top.source, label, i) for i, v in enumerate(value)]
 
 
 def _no_repeats(items, key: str, source: Source) -> None:
@@ -404,6 +566,134 @@ def _read_plan(t: Table, dim: int) -> PlanSettings:
     return PlanSettings(runs=runs, seed=seed, method=method)
 
 
+def _response_name(t: Table, key: str, responses, default=REQUIRED) -> str | None:
+    names = [r.name for r in responses]
+    value = t.take(key, str, default=default)
+    if value is not None and value not in names:
+        raise t.error(key, f"'{value}' is not a response (responses: {', '.join(names)})")
+    return value
+
+
+def _numbers(t: Table, key: str, default: tuple) -> tuple:
+    values = t.take(key, list, default=list(default))
+    if not values or not all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) and v > 0
+                             for v in values):
+        raise t.error(key, "must be a non-empty list of positive numbers")
+    return tuple(float(v) for v in values)
+
+
+def _read_baseline(t: Table, parameters) -> dict | None:
+    values = t.take("baseline", dict, default=None)
+    if values is None:
+        return None
+    names = [p.name for p in parameters]
+    for name, value in values.items():
+        if name not in names or isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise t.error("baseline", f"'{name}' must be a parameter ({', '.join(names)}) with a number as its value")
+    for p in parameters:
+        if p.name not in values:
+            raise t.error("baseline", f"give a value for every parameter; '{p.name}' is missing")
+        if not p.low <= values[p.name] <= p.high:
+            raise t.error("baseline", f"{p.name} = {values[p.name]:g} is outside [{p.low:g}, {p.high:g}] {p.unit}")
+    return {n: float(values[n]) for n in names}
+
+
+def _read_robust(t: Table, responses, plan_seed: int, parameters) -> RobustSettings:
+    goals = {r.name: r.goal for r in responses}
+    first = next((r.name for r in responses if r.goal != "none"), responses[0].name)
+    objective = _response_name(t, "objective", responses, default=first)
+    if goals[objective] == "none":
+        raise t.error("objective", f"response '{objective}' has goal = \"none\"; give it goal = \"minimize\" "
+                                   "or \"maximize\" in [[responses]]")
+    k = t.take("k", float, default=1.0, check=lambda v: v >= 0, why="must be >= 0")
+    prob = t.take("probability", float, default=0.9, check=lambda v: 0 < v < 1, why="must be between 0 and 1")
+    samples = t.take("samples", int, default=256, check=lambda v: 16 <= v <= 65536, why="must be 16 to 65536")
+    seed = t.take("seed", int, default=plan_seed, check=lambda v: 0 <= v < 2**63, why="must be between 0 and 2^63-1")
+    limits = []
+    for lt in _array(t, "limits"):
+        name = _response_name(lt, "response", responses)
+        hi, lo = lt.take("max", float, default=None), lt.take("min", float, default=None)
+        lt.finish()
+        if hi is None and lo is None:
+            raise lt.error(None, "give 'max', 'min' or both")
+        if hi is not None and lo is not None and not lo < hi:
+            raise lt.error("max", f"must be greater than min ({hi:g} <= {lo:g})")
+        limits.append(ResponseLimit(name, hi, lo))
+    with_goal = tuple(r.name for r in responses if r.goal != "none")
+    tradeoff = tuple(t.take("tradeoff", list, default=list(with_goal)))
+    targets = t.take("targets", dict, default={})
+    for name in tradeoff:
+        if name not in goals:
+            raise t.error("tradeoff", f"'{name}' is not a response (responses: {', '.join(goals)})")
+        if goals[name] == "none" and name not in targets:
+            raise t.error("tradeoff", f"'{name}' has goal = \"none\"; give its aim in targets = {{ {name} = ... }}")
+    for name, value in targets.items():
+        if name not in tradeoff or isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise t.error("targets", f"'{name}' must be a trade-off response with a number as its target")
+    baseline = _read_baseline(t, parameters)
+    t.finish()
+    return RobustSettings(objective, goals[objective], k, prob, tuple(limits), samples, seed, tradeoff,
+                          {n: float(v) for n, v in targets.items()}, baseline)
+
+
+def _read_vehicle(t: Table, responses) -> VehicleSettings:
+    positive = dict(check=lambda v: v > 0, why="must be > 0")
+    car = dict(mass_kg=t.take("mass_kg", float, **positive), tyre_mu=t.take("tyre_mu", float, **positive),
+               power_kw=t.take("power_kw", float, **positive),
+               wheelbase_m=t.take("wheelbase_m", float, **positive),
+               cg_to_front_axle_m=t.take("cg_to_front_axle_m", float, check=lambda v: v >= 0, why="must be >= 0"),
+               rolling_resistance=t.take("rolling_resistance", float, default=0.012,
+                                         check=lambda v: v >= 0, why="must be >= 0"),
+               drive=t.take("drive", str, default="front", choices=DRIVES),
+               brake_limit_g=t.take("brake_limit_g", float, default=None, **positive),
+               air_density_kg_m3=t.take("air_density_kg_m3", float, default=RHO_SEA_LEVEL, **positive))
+    if car["cg_to_front_axle_m"] > car["wheelbase_m"]:
+        raise t.error("cg_to_front_axle_m", "is longer than wheelbase_m")
+    front = _response_name(t, "cla_front_response", responses, default=None)
+    rear = _response_name(t, "cla_rear_response", responses, default=None)
+    if (front is None) != (rear is None):
+        raise t.error("cla_front_response" if front is None else "cla_rear_response",
+                      "give both cla_front_response and cla_rear_response, or neither")
+    if front is not None:
+        for key in ("cla_response", "front_share_response", "aero_front_share"):
+            if t.has(key):
+                raise t.error(key, "leave it out: cla_front_response and cla_rear_response give the aero load")
+    settings = VehicleSettings(
+        car=Vehicle(**car),
+        cla_response=_response_name(t, "cla_response", responses, default=None if front else "cla_total"),
+        cda_response=_response_name(t, "cda_response", responses, default="cda_total"),
+        cla_front_response=front, cla_rear_response=rear,
+        front_share_response=_response_name(t, "front_share_response", responses, default=None),
+        aero_front_share=t.take("aero_front_share", float, default=0.5),
+        speeds_kph=_numbers(t, "speeds_kph", VehicleSettings.speeds_kph),
+        radii_m=_numbers(t, "radii_m", VehicleSettings.radii_m))
+    t.finish()
+    return settings
+
+
+def _read_track(t: Table) -> Track:
+    name = t.take("name", str, default="")
+    segments = []
+    for st in _array(t, "segments", required=True):
+        kind = st.take("kind", str, choices=SEGMENT_KINDS)
+        positive = dict(default=None, check=lambda v: v > 0, why="must be > 0")
+        length, radius = st.take("length_m", float, **positive), st.take("radius_m", float, **positive)
+        angle = st.take("angle_deg", float, **positive)
+        st.finish()
+        if kind == "straight":
+            if length is None or radius is not None or angle is not None:
+                raise st.error(None, "a straight takes length_m only")
+            segments.append(Segment("straight", length))
+        else:
+            if radius is None or (length is None) == (angle is None):
+                raise st.error(None, "a corner takes radius_m and one of length_m (arc) or angle_deg")
+            segments.append(Segment.corner(radius, angle_deg=angle, length_m=length))
+    t.finish()
+    if not any(s.kind == "corner" for s in segments):
+        raise t.error("segments", "a lap needs at least one corner")
+    return Track(tuple(segments), name)
+
+
 def _read_fit(t: Table) -> FitSettings:
     kernel = t.take("kernel", str, default="auto", choices=("auto", "sqexp", "matern52", "matern32"))
     trend = t.take("trend", str, default="auto", choices=("auto", "constant", "linear"))
@@ -417,3 +707,21 @@ def _read_fit(t: Table) -> FitSettings:
     prior = t.take("length_scale_prior", float, default=1.5, check=lambda v: 0 <= v <= 10, why="must be in [0, 10]")
     t.finish()
     return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact), prior)
+
+
+def _read_sensitivity(t: Table, parameters) -> SensitivitySettings:
+    distribution = t.take("distribution", str, default="uniform", choices=("uniform", "normal", "truncnormal"))
+    nominal = t.take("nominal", dict, default={})
+    by_name = {p.name: p for p in parameters}
+    for key, value in nominal.items():
+        if key not in by_name:
+            raise t.error("nominal", f"'{key}' is not a parameter (parameters: {', '.join(by_name)})")
+        p = by_name[key]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not p.low <= value <= p.high:
+            raise t.error("nominal", f"'{key}' must be a number in [{p.low:g}, {p.high:g}] {p.unit}, got {value!r}")
+    base = t.take("base_samples", int, default=None, check=lambda v: v >= 8 and not v & (v - 1),
+                  why="must be a power of two of at least 8")
+    second = t.take("second_order", bool, default=False)
+    paths = t.take("paths", int, default=64, check=lambda v: v >= 8, why="must be at least 8")
+    t.finish()
+    return SensitivitySettings(distribution, {k: float(v) for k, v in nominal.items()}, base, second, paths)

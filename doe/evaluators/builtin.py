@@ -1,0 +1,220 @@
+"""The ``builtin`` evaluator: the low-order rear-package model of :mod:`doe.aero`.
+
+A thin adapter: it reads the ``[evaluator]`` settings, maps study parameters
+to the model's inputs by name (converting units) and turns the model's outputs
+into :class:`~doe.evaluators.base.Outcome` objects. The physics, its
+assumptions and its limits are in :mod:`doe.aero.model`: a low-order model for
+ranking and planning, not for certifying loads.
+
+Study parameters must be model inputs (see :data:`doe.aero.DESIGN_INPUTS`):
+
+=============== ========= ===================================================
+name            units     meaning
+=============== ========= ===================================================
+flap_angle      deg, rad  hatch flap angle up from the rear-window line
+flap_chord      mm, m     hatch flap length (0: no flap)
+wing_height     mm, m     wing leading edge above the hatch edge
+wing_aoa        deg, rad  wing angle of attack (trailing edge up = downforce)
+wing_camber     %, -      NACA 4-digit camber, % chord ("-": fraction)
+wing_thickness  %, -      NACA 4-digit thickness, % chord
+wing_overhang   mm, m     wing leading edge behind the hatch edge
+=============== ========= ===================================================
+
+Responses must be model outputs (:data:`doe.aero.OUTPUTS`), in their units.
+
+Study keys (all optional; defaults in brackets)::
+
+    [evaluator]
+    kind = "builtin"
+    chord = 0.24             # wing chord, m                       [0.24]
+    span = 1.30              # wing span, m                        [1.30]
+    endplate_height = 0.15   # m (0: none)                         [0.15]
+    camber_position = 0.4    # NACA camber position, chords        [0.4]
+    speed = 40.0             # m/s                                 [40]
+    density = 1.225          # kg/m^3 (ISO 2533 sea level)         [1.225]
+    temperature = 288.15     # K, for the viscosity                [288.15]
+    wing_panels = 60         # panels on the wing section          [60]
+    body_panels = 100        # panels on the body without the flap [100]
+    flap_panels = 8          # panels on the flap                  [8]
+    wing = true              # false: the car and flap alone       [true]
+    ground = true            # false: free air (no ground image)   [true]
+    flap_chord = 60.0        # any design input not varied, in model units (mm, deg, % chord)
+
+    [evaluator.car]          # the invented hatchback: see doe.aero.CarGeometry
+    wheelbase = 2.55
+    roof_height = 1.44
+    ...
+
+    [evaluator.coefficients] # empirical coefficients: see doe.aero.Coefficients
+    body_3d_factor = 0.30
+    ...
+"""
+from __future__ import annotations
+
+import time
+from dataclasses import fields
+
+import numpy as np
+
+from ..aero.car import CarGeometry
+from ..aero.model import DESIGN_INPUTS, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
+from ..errors import AeroError
+from .base import Evaluator, Outcome, failed
+
+__all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings"]
+
+_UNIT_ALIASES = {"m^2": {"m^2", "m2", "m²"}, "-": {"-", "", "1"}, "N": {"n"}}
+
+
+def _positive(v):
+    return v > 0
+
+
+def read_builtin_settings(study) -> tuple[ModelSettings, dict]:
+    """Read and check the ``[evaluator]`` table of a builtin study.
+
+    Returns
+    -------
+    settings : ModelSettings
+    conversion : dict
+        Study parameter name -> multiplier from the study's unit to the model's.
+
+    Raises
+    ------
+    StudyError
+        On an unknown key, a bad value, an unknown parameter or response, or a unit the model cannot convert.
+    """
+    t = study.evaluator.table()
+    kw = {}
+    for key in ("chord", "span", "speed", "density", "temperature"):
+        kw[key] = t.take(key, float, default=getattr(ModelSettings, key), check=_positive, why="must be > 0")
+    kw["endplate_height"] = t.take("endplate_height", float, default=ModelSettings.endplate_height,
+                                   check=lambda v: v >= 0, why="must be >= 0 m")
+    kw["camber_position"] = t.take("camber_position", float, default=ModelSettings.camber_position,
+                                   check=lambda v: 0.1 <= v <= 0.9, why="must be 0.1 to 0.9 chords")
+    for key, low in (("wing_panels", 20), ("body_panels", 40), ("flap_panels", 2)):
+        kw[key] = t.take(key, int, default=getattr(ModelSettings, key), check=lambda v, lo=low: v >= lo,
+                         why=f"must be at least {low}")
+    kw["has_wing"] = t.take("wing", bool, default=True)
+    kw["ground"] = t.take("ground", bool, default=True)
+    names = study.space.names
+    fixed = {}
+    for name, d in DESIGN_INPUTS.items():
+        if t.has(name) and name in names:
+            raise t.error(name, f"'{name}' is a study parameter; do not also fix it here")
+        value = t.take(name, float, default=None)
+        if value is not None:
+            if not d.low <= value <= d.high:
+                raise t.error(name, f"{value:g} {d.unit} is outside the model's range {d.low:g} to {d.high:g}")
+            fixed[name] = value
+    kw["fixed"] = fixed
+    kw["car"] = _read_dataclass(t, "car", CarGeometry)
+    kw["coefficients"] = _read_dataclass(t, "coefficients", Coefficients)
+    t.finish()
+    try:
+        settings = ModelSettings(**kw)
+    except AeroError as exc:
+        raise t.error(None, str(exc)) from exc
+    return settings, _conversions(study, t)
+
+
+def _read_dataclass(t, key, cls):
+    sub = t.sub(key)
+    if sub is None:
+        return cls()
+    values = {}
+    for f in fields(cls):
+        v = sub.take(f.name, float, default=None)
+        if v is not None:
+            values[f.name] = v
+    sub.finish()
+    try:
+        return cls(**values)
+    except AeroError as exc:
+        raise sub.error(None, str(exc)) from exc
+
+
+def _conversions(study, t) -> dict:
+    conv = {}
+    for p in study.space.parameters:
+        d = DESIGN_INPUTS.get(p.name)
+        if d is None:
+            raise t.error(None, f"parameter '{p.name}' is not an input of the builtin model "
+                                f"(known inputs: {', '.join(DESIGN_INPUTS)})")
+        factor = d.units.get(p.unit)
+        if factor is None:
+            raise t.error(None, f"parameter '{p.name}' has unit '{p.unit}'; the builtin model accepts "
+                                f"{', '.join(repr(u) for u in d.units)}")
+        lo, hi = p.low * factor, p.high * factor
+        if lo < d.low or hi > d.high:
+            raise t.error(None, f"parameter '{p.name}' spans {lo:g} to {hi:g} {d.unit}; the model accepts "
+                                f"{d.low:g} to {d.high:g} {d.unit}")
+        conv[p.name] = factor
+    for r in study.responses:
+        if r.name not in OUTPUTS:
+            raise t.error(None, f"response '{r.name}' is not an output of the builtin model "
+                                f"(outputs: {', '.join(OUTPUTS)})")
+        unit = OUTPUTS[r.name][0]
+        if r.unit.strip().lower() not in {u.lower() for u in _UNIT_ALIASES.get(unit, {unit})} | {unit.lower()}:
+            raise t.error(None, f"response '{r.name}' has unit '{r.unit}'; the builtin model gives it in '{unit}'")
+    return conv
+
+
+def check_builtin_settings(study) -> None:
+    """Validate a builtin study's ``[evaluator]`` options (called when the study is loaded)."""
+    read_builtin_settings(study)
+
+
+class BuiltinEvaluator(Evaluator):
+    """Evaluate runs with :class:`doe.aero.RearPackageModel` (vectorised in :meth:`evaluate_many`).
+
+    Parameters
+    ----------
+    settings : ModelSettings
+    conversion : dict
+        Study parameter -> factor to the model's unit.
+    responses : list of str
+    """
+
+    kind = "builtin"
+
+    def __init__(self, settings: ModelSettings, conversion: dict, responses):
+        super().__init__(responses)
+        self.model = RearPackageModel(settings)
+        self.conversion = dict(conversion)
+
+    @classmethod
+    def from_study(cls, study) -> "BuiltinEvaluator":
+        """Build from a study's ``[evaluator]`` table."""
+        settings, conv = read_builtin_settings(study)
+        return cls(settings, conv, study.response_names)
+
+    def evaluate(self, run_id: str, point: dict) -> Outcome:
+        return self.evaluate_many([run_id], [point])[0]
+
+    def evaluate_many(self, run_ids, points) -> list:
+        start = time.monotonic()
+        try:
+            inputs = {name: np.array([float(p[name]) * f for p in points]) for name, f in self.conversion.items()}
+        except (KeyError, TypeError, ValueError) as exc:
+            return [failed(self.responses, f"point is missing or has a bad value: {exc}", self.kind)
+                    for _ in points]
+        try:
+            result = self.model.evaluate(inputs)
+        except AeroError as exc:
+            return [failed(self.responses, str(exc), self.kind) for _ in points]
+        each = (time.monotonic() - start) / max(len(points), 1)
+        out = []
+        for i in range(len(points)):
+            if not result.ok[i]:
+                out.append(failed(self.responses, result.messages[i], self.kind, each))
+                continue
+            values = {r: float(result.values[r][i]) for r in self.responses}
+            bad = [r for r, v in values.items() if not np.isfinite(v)]
+            if bad:
+                out.append(failed(self.responses, f"{bad[0]} is not defined here (e.g. balance with no net "
+                                                  "vertical load)", self.kind, each))
+            else:
+                out.append(Outcome(values, "ok", "", self.kind, each))
+        return out
+

@@ -1,0 +1,385 @@
+"""Assembling the study report: numbers from the study's files, figures, plain words, HTML.
+
+The report reads what the earlier steps wrote (plan quality, results, fit,
+sensitivity, robust and trade-off files, proposed runs) and writes a
+self-contained folder::
+
+    <folder>/index.html     the report (opens offline)
+    <folder>/*.png          its figures
+    <folder>/data/          copies of the files every number came from
+
+Every number in the page is taken from those files (or, for curves and maps,
+from the saved surrogate), so a reader can check any figure against its source.
+"""
+from __future__ import annotations
+
+import math
+import shutil
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+
+import numpy as np
+from jinja2 import Environment, FileSystemLoader, select_autoescape
+from markupsafe import Markup, escape
+
+from . import figures as F
+from .style import PALETTE
+
+__all__ = ["ReportInputs", "build_report", "CAUTIONS", "MODEL_LIMITS", "fmt"]
+
+#: The cautions every report carries (README carries the same).
+CAUTIONS = (
+    "Aero changes alter high-speed handling: more rear downforce moves the balance. Try any new setting "
+    "progressively, at a safe venue, with the driver told what changed.",
+    "Wing mounts, flaps and the bodywork they fix to must carry the loads (the forces in this report, plus "
+    "vibration and kerb strikes, with a margin): have them designed and checked by someone qualified.",
+    "The class's technical regulations and its scrutineers decide what is legal, not this report; the rules "
+    "in the study are only as good as their reading of the regulations.",
+    "A low-order model and a surrogate are no substitute for validated testing and licensed engineering "
+    "judgement; use this report to rank and plan, not to certify loads.",
+)
+
+#: The built-in model's limits, listed when its numbers are used.
+MODEL_LIMITS = (
+    "The built-in model is two-dimensional potential flow with separation fixed at the body's trailing edge, "
+    "corrected to three dimensions by lifting-line theory: no yaw, no cooling flow, no rotating wheels, no "
+    "underbody detail; stall is estimated, not computed.",
+)
+
+GOAL_WORDS = {"minimize": "as low as possible", "maximize": "as high as possible", "none": "watched, no goal"}
+
+
+def fmt(value, digits: int = 4) -> str:
+    """A number with ``digits`` significant digits; '–' for missing values."""
+    if value is None:
+        return "–"
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    if not math.isfinite(v):
+        return "–"
+    return f"{v:.{digits}g}"
+
+
+@dataclass
+class ReportInputs:
+    """What a report is built from; every part but the study and results is optional.
+
+    Attributes
+    ----------
+    study : Study
+    results : ResultsTable
+    plan_quality : dict, optional
+        The plan's ``.quality.json`` record.
+    surrogates : SurrogateSet, optional
+        For main-effect curves and maps.
+    fit : dict, optional
+        ``fit.json``.
+    sensitivity : dict, optional
+        Sensitivity JSON.
+    robust : dict, optional
+        Robust JSON.
+    tradeoff : DataFrame, optional
+        The trade-off CSV.
+    next_plan : DataFrame, optional
+        Proposed runs (``run_id`` and parameters).
+    next_reasons : dict, optional
+        ``{run_id: why}`` for the proposed runs.
+    files : dict of str to Path
+        Files to copy into ``data/`` with a one-line description each: ``{name: (path, description)}``.
+    """
+
+    study: object
+    results: object
+    plan_quality: dict | None = None
+    surrogates: object = None
+    fit: dict | None = None
+    sensitivity: dict | None = None
+    robust: dict | None = None
+    tradeoff: object = None
+    next_plan: object = None
+    next_reasons: dict | None = None
+    files: dict = field(default_factory=dict)
+
+
+def _figure_html(fig) -> Markup:
+    if fig is None:
+        return Markup("")
+    return Markup(f'<figure><img src="{escape(fig.file)}" alt="{escape(fig.title)}" loading="lazy">'
+                  f'<figcaption><b>{escape(fig.title)}.</b> {escape(fig.caption)}</figcaption></figure>')
+
+
+def _verdict_class(verdict: str) -> str:
+    v = (verdict or "").lower()
+    if v.startswith("ready"):
+        return "verdict-ready"
+    if "run" in v:
+        return "verdict-more"
+    return "verdict-check"
+
+
+def _objective(study, inputs) -> str | None:
+    if inputs.robust:
+        return inputs.robust.get("objective", {}).get("response")
+    for r in study.responses:
+        if r.goal != "none":
+            return r.name
+    return study.responses[0].name
+
+
+# ---------------------------------------------------------------------------
+def _sensitivity_blocks(study, data: dict, folder: Path) -> list:
+    blocks = []
+    for r in study.responses:
+        rec = data.get(r.name)
+        if not isinstance(rec, dict):
+            continue
+        params = [p for p in study.space.parameters if isinstance(rec.get(p.name), dict)]
+        rows = [{"name": p.name, **{k: rec[p.name].get(k) for k in ("S1", "S1_conf", "ST", "ST_conf")}}
+                for p in params]
+        rows.sort(key=lambda row: -(row["ST"] or 0.0))
+        unresolved = rec.get("unresolved") or []
+        words = rec.get("statement") or _rank_words(r.name, rows)
+        blocks.append({"response": r.name, "unit": r.unit, "rows": rows, "words": words,
+                       "unresolved": "; ".join(" vs ".join(pair) if isinstance(pair, (list, tuple)) else str(pair)
+                                               for pair in unresolved),
+                       "figure": F.sobol_bars(r.name, r.unit, rec, params, folder)})
+    return blocks
+
+
+def _rank_words(response: str, rows: list) -> str:
+    """A short ranked sentence from Sobol rows (used when the sensitivity file has no statement)."""
+    parts = []
+    for row in rows[:3]:
+        st = row["ST"] or 0.0
+        parts.append(f"{row['name']} takes part in about {100 * st:.0f} % (± {100 * (row['ST_conf'] or 0):.0f})")
+    return f"Of the variation in {response}, " + "; ".join(parts) + "."
+
+
+def _robust_block(study, rob: dict) -> dict:
+    obj = rob.get("objective", {})
+    name, unit = obj.get("response", "?"), obj.get("unit", "")
+    nominal, robust = rob.get("nominal", {}), rob.get("robust", {})
+    columns = ["best on paper (nominal)", "best under setup scatter (robust)"]
+    rows = []
+    for p in study.space.parameters:
+        rows.append([p.label(), fmt(nominal.get("point", {}).get(p.name)), fmt(robust.get("point", {}).get(p.name))])
+    rows.append([f"{name} at the setting [{unit}]", fmt(nominal.get("value_at_point")), fmt(robust.get("value_at_point"))])
+    rows.append([f"{name} under scatter, mean ± std [{unit}]",
+                 f"{fmt(nominal.get('mean'))} ± {fmt(nominal.get('std'), 2)}",
+                 f"{fmt(robust.get('mean'))} ± {fmt(robust.get('std'), 2)}"])
+    rows.append([f"surrogate uncertainty at the setting [{unit}]", fmt(nominal.get("model_std"), 2),
+                 fmt(robust.get("model_std"), 2)])
+    lim_n = {lim["response"]: lim for lim in nominal.get("limits", [])}
+    for lim in robust.get("limits", []):
+        n = lim_n.get(lim["response"], {})
+        rows.append([f"chance that the {lim['response']} limit holds [-]", fmt(n.get("probability"), 3),
+                     fmt(lim.get("probability"), 3)])
+    flags = []
+    for label, rec in (("nominal", nominal), ("robust", robust)):
+        if rec.get("flag"):
+            flags.append(f"Check the {label} setting before trusting it: {rec.get('flag_reason', '')} "
+                         f"({len(rec.get('confirm_runs', []))} confirming runs are listed in robust.json).")
+    frag = []
+    items = sorted(robust.get("fragility", {}).items(), key=lambda kv: kv[1].get("rank", 99))
+    for pname, fr in items:
+        frag.append([pname, f"{fmt(fr.get('drop_per_unit'), 3)} {fr.get('per_unit', '')}",
+                     f"{fmt(fr.get('drop'), 3)} {unit} over ±{fmt(fr.get('step'), 3)} {fr.get('unit', '')}"])
+    k = obj.get("k", 1)
+    text = (f"The robust setting is the one whose {name} stays best when every knob is off by its setup scatter "
+            f"(the study's tolerances, one standard deviation): it optimises the mean {'+' if obj.get('goal') == 'minimize' else '−'} "
+            f"{fmt(k, 3)} standard deviations under that scatter. The nominal setting is the best on paper, "
+            "with every knob exactly where it should be.")
+    return {"columns": columns, "rows": rows, "flags": flags, "fragility": frag, "text": text,
+            "name": name, "unit": unit}
+
+
+def _vehicle_block(rob: dict, folder: Path):
+    nv, rv = (rob.get("nominal") or {}).get("vehicle"), (rob.get("robust") or {}).get("vehicle")
+    if not nv or not rv:
+        return None, []
+    columns = ["nominal", "robust", "robust − nominal"]
+    rows = [["CLA (negative = downforce) [m^2]", fmt(nv["cla_m2"]), fmt(rv["cla_m2"]), fmt(rv["cla_m2"] - nv["cla_m2"], 3)],
+            ["CDA [m^2]", fmt(nv["cda_m2"]), fmt(rv["cda_m2"]), fmt(rv["cda_m2"] - nv["cda_m2"], 3)],
+            ["front share of the aero load [-]", fmt(nv["aero_front_share"], 3), fmt(rv["aero_front_share"], 3),
+             fmt(rv["aero_front_share"] - nv["aero_front_share"], 2)]]
+    for i, s in enumerate(nv["speeds_kph"]):
+        rows.append([f"downforce at {fmt(s, 3)} km/h [N]", fmt(nv["downforce_n"][i]), fmt(rv["downforce_n"][i]),
+                     fmt(rv["downforce_n"][i] - nv["downforce_n"][i], 3)])
+        rows.append([f"drag at {fmt(s, 3)} km/h [N]", fmt(nv["drag_n"][i]), fmt(rv["drag_n"][i]),
+                     fmt(rv["drag_n"][i] - nv["drag_n"][i], 3)])
+    for i, r in enumerate(nv["radii_m"]):
+        rows.append([f"corner speed, {fmt(r, 3)} m radius [km/h]", fmt(nv["corner_speed_kph"][i]),
+                     fmt(rv["corner_speed_kph"][i]), fmt(rv["corner_speed_kph"][i] - nv["corner_speed_kph"][i], 3)])
+    rows.append(["top speed [km/h]", fmt(nv["top_speed_kph"]), fmt(rv["top_speed_kph"]),
+                 fmt((rv["top_speed_kph"] or 0) - (nv["top_speed_kph"] or 0), 3)])
+    figs = []
+    if nv.get("lap_time_s") is not None and rv.get("lap_time_s") is not None:
+        d = rv["lap_time_s"] - nv["lap_time_s"]
+        rows.append(["lap time [s]", fmt(nv["lap_time_s"], 5), fmt(rv["lap_time_s"], 5), fmt(d, 3)])
+        figs.append(F.vehicle_bars(["nominal", "robust"], [nv["lap_time_s"], rv["lap_time_s"]], "s", "lap time",
+                                   "lap_time.png", folder,
+                                   "Estimated lap time of the two settings on the study's track (quasi-steady point "
+                                   "mass with braking and traction limits; shorter is better)."))
+    text = ("What the two settings mean on this car: forces at a few speeds, corner speeds, top speed and lap time, "
+            "from the vehicle and track data in the study (quasi-steady estimates, for comparing settings).")
+    return {"columns": columns, "rows": rows, "text": text}, figs
+
+
+def _glance(study, inputs, blocks, robust, vehicle) -> list:
+    res = inputs.results
+    lines = [f"Studied: {study.space.dim} knobs ({', '.join(p.name for p in study.space.parameters)}) with "
+             f"{len(res.ok)} runs that worked" + (f" ({len(res.failed)} failed)" if len(res.failed) else "") + "."]
+    obj = _objective(study, inputs)
+    for b in blocks:
+        if b["response"] == obj or len(blocks) <= 2:
+            lines.append(f"What drives {b['response']}: {b['words']}")
+    if robust:
+        rb = inputs.robust["robust"]
+        where = ", ".join(f"{p.name} {fmt(rb['point'].get(p.name), 3)} {p.unit}" for p in study.space.parameters)
+        lines.append(f"What to set: {where}. There {robust['name']} is {fmt(rb.get('mean'))} ± "
+                     f"{fmt(rb.get('std'), 2)} {robust['unit']} under setup scatter.")
+    if inputs.fit:
+        ready = [n for n, r in inputs.fit.items() if str(r.get("verdict", "")).lower().startswith("ready")]
+        other = [n for n in inputs.fit if n not in ready]
+        text = f"How sure: the maps of {', '.join(ready) or 'no response'} are ready"
+        if other:
+            text += f"; {', '.join(other)} need{'s' if len(other) == 1 else ''} more runs or a check of the data"
+        lines.append(text + ".")
+    if vehicle:
+        nv, rv = inputs.robust["nominal"]["vehicle"], inputs.robust["robust"]["vehicle"]
+        if nv.get("lap_time_s") is not None:
+            d = rv["lap_time_s"] - nv["lap_time_s"]
+            lines.append(f"What it is worth: the robust setting laps in {fmt(rv['lap_time_s'], 5)} s, "
+                         f"{fmt(abs(d), 2)} s {'slower' if d > 0 else 'faster'} than the nominal best on paper, "
+                         "and keeps that when the setup is a little off.")
+    if inputs.next_plan is not None and len(inputs.next_plan):
+        lines.append(f"Next: {len(inputs.next_plan)} more runs are proposed below to sharpen the maps.")
+    return lines
+
+
+def build_report(inputs: ReportInputs, folder) -> Path:
+    """Write the report folder and return the path of ``index.html``.
+
+    Parameters
+    ----------
+    inputs : ReportInputs
+    folder : str or Path
+        Created when missing; its figures and ``index.html`` are replaced.
+    """
+    from .. import __version__
+
+    study = inputs.study
+    folder = Path(folder)
+    (folder / "data").mkdir(parents=True, exist_ok=True)
+    frame = inputs.results.frame
+    figs = {"plan": F.plan_pairs(study, frame, folder), "loo": [], "effects": [], "tradeoff": [], "vehicle": []}
+    if inputs.fit:
+        figs["loo"] = [F.loo_scatter(n, r, folder) for n, r in inputs.fit.items()]
+    blocks = _sensitivity_blocks(study, inputs.sensitivity, folder) if inputs.sensitivity else []
+    robust = _robust_block(study, inputs.robust) if inputs.robust else None
+    vehicle, figs["vehicle"] = _vehicle_block(inputs.robust, folder) if inputs.robust else (None, [])
+    pick = inputs.robust["robust"]["point"] if inputs.robust else None
+    if inputs.surrogates is not None:
+        figs["effects"] = _effect_figures(study, inputs, blocks, pick, folder)
+    if inputs.tradeoff is not None and robust is not None:
+        figs["tradeoff"] = _tradeoff_figures(study, inputs, folder)
+    failed = [(row["run_id"], row.get("message", "") or "no value") for _, row in inputs.results.failed.iterrows()]
+    data_files = []
+    for name, (path, description) in inputs.files.items():
+        if path is not None and Path(path).exists():
+            shutil.copyfile(path, folder / "data" / name)
+            data_files.append((name, description))
+    pq = inputs.plan_quality or {}
+    env = Environment(loader=FileSystemLoader(Path(__file__).parent / "templates"),
+                      autoescape=select_autoescape(["html", "j2"]))
+    sections = [("question", "The question"), ("runs", "The runs"), ("trust", "How far to trust the maps"),
+                ("knobs", "Which knobs matter"), ("moves", "How the responses move"),
+                ("setting", "The recommended setting"), ("worth", "What it is worth"), ("next", "What to run next"),
+                ("limits", "Limits and cautions"), ("files", "Files")]
+    html = env.get_template("report.html.j2").render(
+        study=study, made=f"{datetime.now(timezone.utc):%Y-%m-%d %H:%M} UTC", version=__version__,
+        results={"summary": inputs.results.summary()}, sections=sections,
+        glance=_glance(study, inputs, blocks, robust, vehicle), cautions=CAUTIONS,
+        limits=MODEL_LIMITS if study.evaluator.kind == "builtin" else (),
+        question=_question(study), goal_words=GOAL_WORDS, runs_text=_runs_text(inputs),
+        plan_quality=pq.get("quality"), plan_quality_method=_plan_method(pq), figs=figs, failed_runs=failed,
+        fit=inputs.fit, target_q2=next(iter(inputs.fit.values())).get("target_q2") if inputs.fit else None,
+        sensitivity=blocks, robust=robust, vehicle=vehicle, next_runs=_next_block(study, inputs),
+        data_files=data_files, fmt=fmt, figure=_figure_html, verdict_class=_verdict_class)
+    out = folder / "index.html"
+    tmp = folder / "index.html.tmp"
+    tmp.write_text(html, encoding="utf-8")
+    tmp.replace(out)
+    return out
+
+
+def _question(study) -> str:
+    goals = [f"{r.name} {GOAL_WORDS[r.goal]}" for r in study.responses if r.goal != "none"]
+    return (f"{study.description or study.name}. The study varies {study.space.dim} knobs within the ranges below"
+            + (f" and wants {', '.join(goals)}" if goals else "") + ".")
+
+
+def _runs_text(inputs) -> str:
+    res = inputs.results
+    sources = sorted(set(res.frame.get("source", []))) if "source" in res.frame else []
+    return (f"{len(res.frame)} runs were recorded ({len(res.ok)} ok, {len(res.failed)} failed)"
+            + (f", from: {', '.join(s for s in sources if s)}" if sources else "") + ". Failed runs are listed, "
+            "never used in a fit.")
+
+
+def _plan_method(pq: dict) -> str:
+    m = pq.get("method", "")
+    return {"lhs": "Latin hypercube optimised for space filling", "sobol": "scrambled Sobol' points",
+            "augment": "an earlier plan with runs added"}.get(m, m)
+
+
+def _strongest_two(study, blocks, response):
+    for b in blocks:
+        if b["response"] == response and len(b["rows"]) >= 2:
+            return b["rows"][0]["name"], b["rows"][1]["name"]
+    names = study.space.names
+    return (names[0], names[1]) if len(names) >= 2 else (None, None)
+
+
+def _effect_figures(study, inputs, blocks, pick, folder) -> list:
+    sset = inputs.surrogates
+    figs = []
+    fixed = np.array([pick[n] for n in study.space.names]) if pick else (study.space.lower + study.space.upper) / 2
+    for r in study.responses:
+        if r.name not in sset.responses:
+            continue
+        figs.append(F.main_effects(r.name, r.unit, sset.predict, study.space, folder))
+        px, py = _strongest_two(study, blocks, r.name)
+        if px and py:
+            figs.append(F.response_map(r.name, r.unit, sset.predict, study.space, px, py, fixed,
+                                       inputs.results.frame, folder, pick=pick))
+    return figs
+
+
+def _tradeoff_figures(study, inputs, folder) -> list:
+    frame = inputs.tradeoff
+    resp = [r for r in study.response_names if r in frame.columns]
+    if len(resp) < 2:
+        return []
+    rx, ry = resp[0], resp[1]
+    points = []
+    if inputs.surrogates is not None:
+        for label, colour, key in (("nominal", PALETTE["nominal"], "nominal"), ("robust", PALETTE["pick"], "robust")):
+            x = np.array([[inputs.robust[key]["point"][n] for n in study.space.names]])
+            pred = inputs.surrogates.predict(x)
+            points.append((label, colour, (float(pred[rx][0][0]), float(pred[ry][0][0]))))
+    return [F.tradeoff_plot(frame, rx, study.response(rx).unit, ry, study.response(ry).unit, folder, points)]
+
+
+def _next_block(study, inputs):
+    plan = inputs.next_plan
+    if plan is None or not len(plan):
+        return None
+    reasons = inputs.next_reasons or {}
+    rows = [[row["run_id"], *(fmt(row[n]) for n in study.space.names), reasons.get(row["run_id"], "")]
+            for _, row in plan.iterrows()]
+    return {"rows": rows, "text": f"{len(rows)} runs that would sharpen the maps most, inside the bounds and rules "
+                                  "(doe next); add them to the plan and evaluate them."}
