@@ -155,7 +155,8 @@ def verdict(loo, noise_share: float, target_q2: float, labels=None, constant: bo
             and abs(loo.residual[worst]) > OUTLIER_SPREAD * spread):
         run = f"run {labels[worst]}" if labels is not None else "one run"
         return "check the data", (f"{run} is {az[worst]:.1f} standard deviations from what the other runs "
-                                  "predict there, far more than the rest: check that run (failed case, typo, unit)")
+                                  "predict there, far more than the rest: check that run (a failed case, a typo or unit slip, "
+                                  "or a real jump such as a stall that a smooth surrogate cannot follow)")
     if np.isfinite(q2) and q2 >= target_q2:
         return "ready", f"q2_loo = {q2:.3f} meets the target {target_q2:g}"
     why = f"q2_loo = {q2:.3f} is below the target {target_q2:g}"
