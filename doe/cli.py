@@ -273,13 +273,14 @@ def _add_robust(sub):
 
 def _cmd_robust(args):
     from .results import read_results
-    from .robust import study_robust, study_tradeoff, write_tradeoff
+    from .robust import only_responses, study_responses, study_robust, study_tradeoff, write_tradeoff
     from .study import load_study
     from .surrogate import fit_surrogates
 
     study = load_study(args.study)
     results = read_results(args.results, study, accept_outside=args.accept_outside)
     sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    sset = only_responses(sset, study_responses(study))
     result = study_robust(study, sset.predict, runs_X=results.X())
     out = args.out or study.default_output / "robust.json"
     _write_json(result.to_dict(), out)
@@ -334,6 +335,57 @@ def _cmd_section(args):
     print(f"  dCp        {result.dcp:.2f}  (Valarezo-Chin stall near 10-14)")
 
 
+def _add_report(sub):
+    p = sub.add_parser("report", help="fit, analyse and write the study report from results",
+                       description="From a results CSV: fit the surrogates, Sobol sensitivity, robust settings, "
+                                   "trade-off and next runs (each reused when its file is newer than the results), "
+                                   "then the report folder: index.html, PNG figures and the files it was built from.")
+    p.add_argument("study", type=Path, help="study file (TOML)")
+    p.add_argument("--results", type=Path, required=True, help="results CSV")
+    p.add_argument("--out", type=Path, help="study output folder (default: reports/<study name>); "
+                                            "the report goes to its report/ subfolder")
+    p.add_argument("--next-runs", type=int, default=None, help="runs to propose for the next round (default 4; 0: none)")
+    p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
+    p.set_defaults(func=_cmd_report)
+
+
+def _cmd_report(args):
+    from .pipeline import NEXT_RUNS_DEFAULT, StudyFiles, analyse_and_report
+    from .study import load_study
+
+    study = load_study(args.study)
+    files = StudyFiles(args.out or study.default_output)
+    k = NEXT_RUNS_DEFAULT if args.next_runs is None else args.next_runs
+    index = analyse_and_report(study, args.results, files, next_runs=k, accept_outside=args.accept_outside)
+    print(f"wrote {index}")
+
+
+def _add_run(sub):
+    p = sub.add_parser("run", help="the whole study: plan, evaluate, fit, sensitivity, robust, report",
+                       description="Run a whole study into reports/<study name>/: plan, evaluate (resumable), fit "
+                                   "the surrogates, Sobol sensitivity, robust settings and trade-off, next runs, "
+                                   "report. Steps already done are reused; run it again after an interruption.")
+    p.add_argument("study", type=Path, help="study file (TOML)")
+    p.add_argument("--out", type=Path, help="output folder (default: reports/<study name>)")
+    p.add_argument("--jobs", type=int, default=1, help="evaluations at once on local processes (default 1)")
+    p.add_argument("--scheduler", metavar="ADDRESS", help="evaluate on a Dask cluster (see doe evaluate --help)")
+    p.add_argument("--next-runs", type=int, default=None, help="runs to propose for the next round (default 4; 0: none)")
+    p.add_argument("--no-progress", action="store_true", help="no progress bar")
+    p.set_defaults(func=_cmd_run)
+
+
+def _cmd_run(args):
+    from .pipeline import NEXT_RUNS_DEFAULT, run_study
+    from .study import load_study
+
+    study = load_study(args.study)
+    k = NEXT_RUNS_DEFAULT if args.next_runs is None else args.next_runs
+    index = run_study(study, args.out, jobs=args.jobs, scheduler=args.scheduler, progress=not args.no_progress,
+                      next_runs=k)
+    print(f"wrote {index}")
+    print(f"open it in a browser: file://{index.resolve()}")
+
+
 #: Every verb: (name, function adding its parser). Extend here.
 VERBS = [
     ("plan", _add_plan),
@@ -343,6 +395,8 @@ VERBS = [
     ("sensitivity", _add_sensitivity),
     ("robust", _add_robust),
     ("section", _add_section),
+    ("report", _add_report),
+    ("run", _add_run),
 ]
 
 

@@ -81,7 +81,7 @@ def _effect(res: ResponseIndices, i: int, first: bool, what: str, labels: dict) 
     if inter > max(_INTERACTION, s1):
         return f"{text}, mostly through interaction{_partner(res, i, labels)} ({total})"
     if inter > _INTERACTION:
-        return f"{text}, more through interactions ({total})"
+        return f"{text}, and more through interactions ({total})"
     return text
 
 

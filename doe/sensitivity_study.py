@@ -29,7 +29,7 @@ from .screening import ScreeningResult, morris_screening
 from .sensitivity import SobolResult, sobol_indices
 from .sensitivity_report import to_json
 
-__all__ = ["parse_around", "nominal_point", "study_inputs", "surrogate_callables", "evaluator_model", "study_sensitivity",
+__all__ = ["evaluate_points", "parse_around", "nominal_point", "study_inputs", "surrogate_callables", "evaluator_model", "study_sensitivity",
            "study_sensitivity_json", "study_screening", "DIRECT_MAX_EVALUATIONS"]
 
 #: Default bound on evaluator calls of the direct route.
@@ -141,6 +141,29 @@ def evaluator_model(evaluator, names, responses):
 
     model.failures = []
     return model
+
+
+def evaluate_points(study, X, evaluator):
+    """Run an evaluator at points (study units) into an in-memory results table, for route cross-checks.
+
+    Returns
+    -------
+    ResultsTable
+        Run ids ``r0``, ``r1``, ...; failed runs kept with ``status = failed``.
+    """
+    import pandas as pd
+
+    from .results import ResultsTable
+
+    names, ids = study.space.names, [f"r{i}" for i in range(len(X))]
+    outcomes = evaluator.evaluate_many(ids, [dict(zip(names, map(float, x))) for x in X])
+    frame = pd.DataFrame(np.asarray(X, dtype=float), columns=names)
+    frame.insert(0, "run_id", ids)
+    for r in study.response_names:
+        frame[r] = [o.values.get(r, np.nan) if o.status == "ok" else np.nan for o in outcomes]
+    frame["status"] = [o.status for o in outcomes]
+    frame["source"] = [o.source or evaluator.kind for o in outcomes]
+    return ResultsTable(frame, names, study.response_names)
 
 
 def _first_failure(model) -> str:

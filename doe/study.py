@@ -36,8 +36,8 @@ Optional tables for robust settings and vehicle figures (see
 ``[robust]``
     ``objective`` (a response with a goal; default the first), ``k`` (robust
     value = mean -/+ k std, default 1), ``probability`` (each limit must hold
-    with this chance, default 0.9), ``samples`` (Monte-Carlo draws of setup
-    scatter, default 256), ``seed`` (default ``[plan] seed``), ``limits`` (list
+    with this chance, default 0.9), ``samples`` (draws of setup scatter,
+    rounded up to a power of two, default 128), ``seed`` (default ``[plan] seed``), ``limits`` (list
     of ``{ response = "...", max = x, min = y }``, either bound optional),
     ``tradeoff`` (responses of the trade-off set; default those with a goal),
     ``targets`` (``{ response = value }`` for trade-off responses with goal none),
@@ -256,7 +256,7 @@ class RobustSettings:
     k: float = 1.0
     probability: float = 0.9
     limits: tuple = ()
-    samples: int = 256
+    samples: int = 128
     seed: int = 0
     tradeoff: tuple = ()
     targets: dict = field(default_factory=dict)
@@ -607,7 +607,7 @@ def _read_robust(t: Table, responses, plan_seed: int, parameters) -> RobustSetti
                                    "or \"maximize\" in [[responses]]")
     k = t.take("k", float, default=1.0, check=lambda v: v >= 0, why="must be >= 0")
     prob = t.take("probability", float, default=0.9, check=lambda v: 0 < v < 1, why="must be between 0 and 1")
-    samples = t.take("samples", int, default=256, check=lambda v: 16 <= v <= 65536, why="must be 16 to 65536")
+    samples = t.take("samples", int, default=128, check=lambda v: 16 <= v <= 65536, why="must be 16 to 65536")
     seed = t.take("seed", int, default=plan_seed, check=lambda v: 0 <= v < 2**63, why="must be between 0 and 2^63-1")
     limits = []
     for lt in _array(t, "limits"):

@@ -169,7 +169,7 @@ def test_cli_robust_end_to_end(tmp_path):
     from doe.plans import make_plan
 
     study_file = tmp_path / "study.toml"
-    study_file.write_text(HEAD + SNIPPET.replace("samples = 256", "samples = 64"))  # fewer draws: test speed
+    study_file.write_text(HEAD + SNIPPET.replace("samples = 128", "samples = 32"))  # fewer draws: test speed
     frame = make_plan(read_study_text(HEAD + SNIPPET).space, 30, seed=1).frame
     pred = invented_aero(frame[["flap_angle", "wing_height"]].to_numpy())
     for name, (mean, _) in pred.items():
@@ -186,3 +186,16 @@ def test_cli_robust_end_to_end(tmp_path):
     header = (tmp_path / "out" / "tradeoff.csv").read_text().splitlines()[0]
     assert header == "flap_angle,wing_height,cla_total,cla_total_std,cda_total,cda_total_std"
     assert main(["robust", str(study_file), "--results", str(tmp_path / "missing.csv")]) == 2
+
+
+def test_study_responses_lists_what_robust_reads():
+    from doe.robust import study_responses
+
+    assert study_responses(read_study_text(HEAD + DEMO)) == ["cla_total", "cda_total", "cla_front", "cla_rear"]
+
+
+def test_study_without_goals_has_no_robust_settings_unless_asked():
+    plain = HEAD.replace('goal = "minimize"', 'goal = "none"')
+    assert read_study_text(plain).robust is None
+    with pytest.raises(StudyError, match='goal = "none"'):
+        read_study_text(plain + '\n[robust]\nobjective = "cla_total"\n')

@@ -210,7 +210,7 @@ def test_surrogate_share_grows_with_posterior_spread():
     space = f.space()
     inputs = InputDistribution.uniform(space)
     half = []
-    for runs in (60, 200):
+    for runs in (40, 120):
         X = space.from_unit(qmc.LatinHypercube(3, seed=1).random(runs))
         model, paths = fit_reference_gp(space, X, f(X), seed=1)
         res = sobol_indices(model, inputs, paths=paths, base_samples=2**10, n_paths=32, seed=1)["y"]

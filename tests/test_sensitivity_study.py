@@ -11,7 +11,8 @@ from doe.cli import main
 from doe.errors import SensitivityError, StudyError
 from doe.evaluators.base import Evaluator, Outcome
 from doe.screening import morris_screening
-from doe.sensitivity_study import evaluator_model, study_inputs, study_screening, study_sensitivity
+from doe.sensitivity_study import (evaluate_points, evaluator_model, study_inputs, study_screening,
+                                  study_sensitivity)
 from doe.study import read_study_text
 
 # Invented study: Y = x1 + x2 * x3 (a stand-in for a response with one direct knob and one interaction).
@@ -216,23 +217,13 @@ def test_direct_and_surrogate_agree_on_the_builtin_model():
         pytest.skip("the demo study is not in this tree")
     from doe.evaluators import make_evaluator
     from doe.plans import maximin_lhs
-    from doe.results import ResultsTable
     from doe.study import load_study
 
     full = load_study(demo)
     study = dataclasses.replace(full, responses=tuple(r for r in full.responses if r.name == "cla_total"),
                                 fit=dataclasses.replace(full.fit, kernel="sqexp", restarts=1))
     evaluator = make_evaluator(study)
-    X = study.space.from_unit(maximin_lhs(40, study.space.dim, seed=3))
-    names = study.space.names
-    outcomes = evaluator.evaluate_many([f"r{i}" for i in range(len(X))], [dict(zip(names, x)) for x in X])
-    frame = pd.DataFrame(X, columns=names)
-    frame.insert(0, "run_id", [f"r{i}" for i in range(len(X))])
-    for r in study.response_names:
-        frame[r] = [o.values[r] if o.status == "ok" else np.nan for o in outcomes]
-    frame["status"] = ["ok" if o.status == "ok" else "failed" for o in outcomes]
-    frame["source"] = "builtin"
-    results = ResultsTable(frame, names, study.response_names)
+    results = evaluate_points(study, study.space.from_unit(maximin_lhs(40, study.space.dim, seed=3)), evaluator)
     direct = study_sensitivity(study, direct=True, evaluator=evaluator, base_samples=128)
     surrogate = study_sensitivity(study, results, base_samples=1024)
     for r in study.response_names:

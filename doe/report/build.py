@@ -87,6 +87,8 @@ class ReportInputs:
         Proposed runs (``run_id`` and parameters).
     next_reasons : dict, optional
         ``{run_id: why}`` for the proposed runs.
+    next_note : str
+        Why runs were or were not proposed (the stopping rule's sentence).
     files : dict of str to Path
         Files to copy into ``data/`` with a one-line description each: ``{name: (path, description)}``.
     """
@@ -101,6 +103,7 @@ class ReportInputs:
     tradeoff: object = None
     next_plan: object = None
     next_reasons: dict | None = None
+    next_note: str = ""
     files: dict = field(default_factory=dict)
 
 
@@ -132,6 +135,7 @@ def _objective(study, inputs) -> str | None:
 # ---------------------------------------------------------------------------
 def _sensitivity_blocks(study, data: dict, folder: Path) -> list:
     blocks = []
+    meta = (data.get("_meta") or {}).get("responses", {})
     for r in study.responses:
         rec = data.get(r.name)
         if not isinstance(rec, dict):
@@ -140,8 +144,9 @@ def _sensitivity_blocks(study, data: dict, folder: Path) -> list:
         rows = [{"name": p.name, **{k: rec[p.name].get(k) for k in ("S1", "S1_conf", "ST", "ST_conf")}}
                 for p in params]
         rows.sort(key=lambda row: -(row["ST"] or 0.0))
-        unresolved = rec.get("unresolved") or []
-        words = rec.get("statement") or _rank_words(r.name, rows)
+        about = meta.get(r.name, {})
+        unresolved = about.get("unresolved") or []
+        words = about.get("statement") or _rank_words(r.name, rows)
         blocks.append({"response": r.name, "unit": r.unit, "rows": rows, "words": words,
                        "unresolved": "; ".join(" vs ".join(pair) if isinstance(pair, (list, tuple)) else str(pair)
                                                for pair in unresolved),
@@ -158,74 +163,90 @@ def _rank_words(response: str, rows: list) -> str:
     return f"Of the variation in {response}, " + "; ".join(parts) + "."
 
 
+def _settings_compared(rob: dict) -> list:
+    """``[(column label, record)]``: the car as it runs now (when given), the nominal and the robust setting."""
+    out = []
+    if rob.get("baseline"):
+        out.append(("as the car runs now", rob["baseline"]))
+    out.append(("best on paper (nominal)", rob.get("nominal", {})))
+    out.append(("best under setup scatter (robust)", rob.get("robust", {})))
+    return out
+
+
 def _robust_block(study, rob: dict) -> dict:
     obj = rob.get("objective", {})
     name, unit = obj.get("response", "?"), obj.get("unit", "")
-    nominal, robust = rob.get("nominal", {}), rob.get("robust", {})
-    columns = ["best on paper (nominal)", "best under setup scatter (robust)"]
-    rows = []
-    for p in study.space.parameters:
-        rows.append([p.label(), fmt(nominal.get("point", {}).get(p.name)), fmt(robust.get("point", {}).get(p.name))])
-    rows.append([f"{name} at the setting [{unit}]", fmt(nominal.get("value_at_point")), fmt(robust.get("value_at_point"))])
+    cols = _settings_compared(rob)
+    recs = [rec for _, rec in cols]
+    rows = [[p.label(), *(fmt(rec.get("point", {}).get(p.name)) for rec in recs)] for p in study.space.parameters]
+    rows.append([f"{name} at the setting [{unit}]", *(fmt(rec.get("value_at_point")) for rec in recs)])
     rows.append([f"{name} under scatter, mean ± std [{unit}]",
-                 f"{fmt(nominal.get('mean'))} ± {fmt(nominal.get('std'), 2)}",
-                 f"{fmt(robust.get('mean'))} ± {fmt(robust.get('std'), 2)}"])
-    rows.append([f"surrogate uncertainty at the setting [{unit}]", fmt(nominal.get("model_std"), 2),
-                 fmt(robust.get("model_std"), 2)])
-    lim_n = {lim["response"]: lim for lim in nominal.get("limits", [])}
-    for lim in robust.get("limits", []):
-        n = lim_n.get(lim["response"], {})
-        rows.append([f"chance that the {lim['response']} limit holds [-]", fmt(n.get("probability"), 3),
-                     fmt(lim.get("probability"), 3)])
-    flags = []
-    for label, rec in (("nominal", nominal), ("robust", robust)):
-        if rec.get("flag"):
-            flags.append(f"Check the {label} setting before trusting it: {rec.get('flag_reason', '')} "
-                         f"({len(rec.get('confirm_runs', []))} confirming runs are listed in robust.json).")
+                 *(f"{fmt(rec.get('mean'))} ± {fmt(rec.get('std'), 2)}" for rec in recs)])
+    rows.append([f"surrogate uncertainty at the setting [{unit}]", *(fmt(rec.get("model_std"), 2) for rec in recs)])
+    for lim in rob.get("limits", []):
+        label = lim["response"]
+        probs = []
+        for rec in recs:
+            hit = [x for x in rec.get("limits", []) if x.get("response") == label]
+            probs.append(fmt(hit[0].get("probability"), 3) if hit else "–")
+        bound = " ≤ ".join(x for x in (fmt(lim.get("min")) if lim.get("min") is not None else "", label,
+                                        fmt(lim.get("max")) if lim.get("max") is not None else "") if x)
+        rows.append([f"chance that {bound} {lim.get('unit', '')} holds [-]", *probs])
+    flags = [f"Check the {label} setting before trusting it: {rec.get('flag_reason', '')} "
+             f"({len(rec.get('confirm_runs', []))} confirming runs are listed in robust.json)."
+             for label, rec in cols if rec.get("flag")]
     frag = []
-    items = sorted(robust.get("fragility", {}).items(), key=lambda kv: kv[1].get("rank", 99))
-    for pname, fr in items:
+    robust = rob.get("robust", {})
+    for pname, fr in sorted(robust.get("fragility", {}).items(), key=lambda kv: kv[1].get("rank", 99)):
         frag.append([pname, f"{fmt(fr.get('drop_per_unit'), 3)} {fr.get('per_unit', '')}",
                      f"{fmt(fr.get('drop'), 3)} {unit} over ±{fmt(fr.get('step'), 3)} {fr.get('unit', '')}"])
-    k = obj.get("k", 1)
+    sign = "+" if obj.get("goal") == "minimize" else "−"
     text = (f"The robust setting is the one whose {name} stays best when every knob is off by its setup scatter "
-            f"(the study's tolerances, one standard deviation): it optimises the mean {'+' if obj.get('goal') == 'minimize' else '−'} "
-            f"{fmt(k, 3)} standard deviations under that scatter. The nominal setting is the best on paper, "
-            "with every knob exactly where it should be.")
-    return {"columns": columns, "rows": rows, "flags": flags, "fragility": frag, "text": text,
+            f"(the study's tolerances, one standard deviation): it optimises the mean {sign} {fmt(obj.get('k', 1), 3)} "
+            "standard deviations under that scatter. The nominal setting is the best on paper, with every knob "
+            "exactly where it should be.")
+    return {"columns": [label for label, _ in cols], "rows": rows, "flags": flags, "fragility": frag, "text": text,
             "name": name, "unit": unit}
 
 
+def _vehicle_rows(vs: list) -> list:
+    """Rows of the vehicle table for a list of VehicleFigures records, with the last-minus-first change."""
+    def row(label, values, digits=4):
+        change = (values[-1] - values[0]) if None not in (values[0], values[-1]) else None
+        return [label, *(fmt(v, digits) for v in values), fmt(change, 3)]
+
+    first = vs[0]
+    rows = [row("CLA (negative = downforce) [m^2]", [v["cla_m2"] for v in vs]),
+            row("CDA [m^2]", [v["cda_m2"] for v in vs]),
+            row("front share of the aero load [-]", [v["aero_front_share"] for v in vs])]
+    for i, speed in enumerate(first["speeds_kph"]):
+        rows.append(row(f"downforce at {fmt(speed, 3)} km/h [N]", [v["downforce_n"][i] for v in vs]))
+        rows.append(row(f"drag at {fmt(speed, 3)} km/h [N]", [v["drag_n"][i] for v in vs]))
+    for i, radius in enumerate(first["radii_m"]):
+        rows.append(row(f"corner speed, {fmt(radius, 3)} m radius [km/h]", [v["corner_speed_kph"][i] for v in vs]))
+    rows.append(row("top speed [km/h]", [v["top_speed_kph"] for v in vs]))
+    if all(v.get("lap_time_s") is not None for v in vs):
+        rows.append(row("lap time [s]", [v["lap_time_s"] for v in vs], 5))
+    return rows
+
+
 def _vehicle_block(rob: dict, folder: Path):
-    nv, rv = (rob.get("nominal") or {}).get("vehicle"), (rob.get("robust") or {}).get("vehicle")
-    if not nv or not rv:
+    cols = [(label, rec.get("vehicle")) for label, rec in _settings_compared(rob)]
+    cols = [(label, v) for label, v in cols if v]
+    if len(cols) < 2:
         return None, []
-    columns = ["nominal", "robust", "robust − nominal"]
-    rows = [["CLA (negative = downforce) [m^2]", fmt(nv["cla_m2"]), fmt(rv["cla_m2"]), fmt(rv["cla_m2"] - nv["cla_m2"], 3)],
-            ["CDA [m^2]", fmt(nv["cda_m2"]), fmt(rv["cda_m2"]), fmt(rv["cda_m2"] - nv["cda_m2"], 3)],
-            ["front share of the aero load [-]", fmt(nv["aero_front_share"], 3), fmt(rv["aero_front_share"], 3),
-             fmt(rv["aero_front_share"] - nv["aero_front_share"], 2)]]
-    for i, s in enumerate(nv["speeds_kph"]):
-        rows.append([f"downforce at {fmt(s, 3)} km/h [N]", fmt(nv["downforce_n"][i]), fmt(rv["downforce_n"][i]),
-                     fmt(rv["downforce_n"][i] - nv["downforce_n"][i], 3)])
-        rows.append([f"drag at {fmt(s, 3)} km/h [N]", fmt(nv["drag_n"][i]), fmt(rv["drag_n"][i]),
-                     fmt(rv["drag_n"][i] - nv["drag_n"][i], 3)])
-    for i, r in enumerate(nv["radii_m"]):
-        rows.append([f"corner speed, {fmt(r, 3)} m radius [km/h]", fmt(nv["corner_speed_kph"][i]),
-                     fmt(rv["corner_speed_kph"][i]), fmt(rv["corner_speed_kph"][i] - nv["corner_speed_kph"][i], 3)])
-    rows.append(["top speed [km/h]", fmt(nv["top_speed_kph"]), fmt(rv["top_speed_kph"]),
-                 fmt((rv["top_speed_kph"] or 0) - (nv["top_speed_kph"] or 0), 3)])
+    vs = [v for _, v in cols]
     figs = []
-    if nv.get("lap_time_s") is not None and rv.get("lap_time_s") is not None:
-        d = rv["lap_time_s"] - nv["lap_time_s"]
-        rows.append(["lap time [s]", fmt(nv["lap_time_s"], 5), fmt(rv["lap_time_s"], 5), fmt(d, 3)])
-        figs.append(F.vehicle_bars(["nominal", "robust"], [nv["lap_time_s"], rv["lap_time_s"]], "s", "lap time",
-                                   "lap_time.png", folder,
-                                   "Estimated lap time of the two settings on the study's track (quasi-steady point "
+    if all(v.get("lap_time_s") is not None for v in vs):
+        figs.append(F.vehicle_bars([label.split(" (")[0] for label, _ in cols], [v["lap_time_s"] for v in vs], "s",
+                                   "lap time", "lap_time.png", folder,
+                                   "Estimated lap time of each setting on the study's track (quasi-steady point "
                                    "mass with braking and traction limits; shorter is better)."))
-    text = ("What the two settings mean on this car: forces at a few speeds, corner speeds, top speed and lap time, "
-            "from the vehicle and track data in the study (quasi-steady estimates, for comparing settings).")
-    return {"columns": columns, "rows": rows, "text": text}, figs
+    text = ("What the settings mean on this car: forces at a few speeds, corner speeds, top speed and lap time, "
+            "from the vehicle and track data in the study (quasi-steady estimates, for comparing settings). The "
+            "last column is the robust setting minus the " + ("car as it runs now." if len(cols) == 3 else
+                                                              "nominal one."))
+    return {"columns": [label for label, _ in cols] + ["change"], "rows": _vehicle_rows(vs), "text": text}, figs
 
 
 def _glance(study, inputs, blocks, robust, vehicle) -> list:
@@ -252,9 +273,15 @@ def _glance(study, inputs, blocks, robust, vehicle) -> list:
         nv, rv = inputs.robust["nominal"]["vehicle"], inputs.robust["robust"]["vehicle"]
         if nv.get("lap_time_s") is not None:
             d = rv["lap_time_s"] - nv["lap_time_s"]
-            lines.append(f"What it is worth: the robust setting laps in {fmt(rv['lap_time_s'], 5)} s, "
-                         f"{fmt(abs(d), 2)} s {'slower' if d > 0 else 'faster'} than the nominal best on paper, "
-                         "and keeps that when the setup is a little off.")
+            than = ("the same as the nominal best on paper" if abs(d) < 0.005 else
+                    f"{fmt(abs(d), 2)} s {'slower' if d > 0 else 'faster'} than the nominal best on paper")
+            text = f"What it is worth: the robust setting laps in {fmt(rv['lap_time_s'], 5)} s, {than}"
+            base = (inputs.robust.get("baseline") or {}).get("vehicle")
+            if base and base.get("lap_time_s") is not None:
+                gain = base["lap_time_s"] - rv["lap_time_s"]
+                text += (f", and {fmt(abs(gain), 2)} s {'quicker' if gain > 0 else 'slower'} than the car as it "
+                         f"runs now ({fmt(base['lap_time_s'], 5)} s)")
+            lines.append(text + ".")
     if inputs.next_plan is not None and len(inputs.next_plan):
         lines.append(f"Next: {len(inputs.next_plan)} more runs are proposed below to sharpen the maps.")
     return lines
@@ -377,9 +404,10 @@ def _tradeoff_figures(study, inputs, folder) -> list:
 def _next_block(study, inputs):
     plan = inputs.next_plan
     if plan is None or not len(plan):
-        return None
+        return {"rows": [], "text": inputs.next_note or "No further runs were proposed."}
     reasons = inputs.next_reasons or {}
     rows = [[row["run_id"], *(fmt(row[n]) for n in study.space.names), reasons.get(row["run_id"], "")]
             for _, row in plan.iterrows()]
-    return {"rows": rows, "text": f"{len(rows)} runs that would sharpen the maps most, inside the bounds and rules "
-                                  "(doe next); add them to the plan and evaluate them."}
+    return {"rows": rows, "text": f"{inputs.next_note.capitalize()}. " if inputs.next_note else ""
+            f"{len(rows)} runs that would sharpen the maps most, inside the bounds and rules (doe next); add them to "
+            "the plan and evaluate them."}

@@ -142,7 +142,7 @@ def grid_points(space, fixed: np.ndarray, name_x: str, values_x, name_y: str | N
     return X
 
 
-def main_effects(name: str, unit: str, predict, space, folder: Path, n_grid: int = 41, n_avg: int = 256,
+def main_effects(name: str, unit: str, predict, space, folder: Path, n_grid: int = 33, n_avg: int = 96,
                  seed: int = 0) -> Figure:
     """Main-effect curves: the response averaged over the other knobs, as one knob moves.
 
@@ -229,7 +229,7 @@ def tradeoff_plot(frame, rx: str, ux: str, ry: str, uy: str, folder: Path, point
 def vehicle_bars(labels, values, unit: str, title: str, file: str, folder: Path, caption: str) -> Figure:
     """Side-by-side bars of one vehicle figure for a few configurations."""
     fig, ax = new_figure(4.6, 3.0)
-    colours = [PALETTE["muted"], PALETTE["nominal"], PALETTE["pick"]][: len(labels)]
+    colours = [PALETTE["muted"], PALETTE["nominal"], PALETTE["pick"]][-len(labels):]
     ax.bar(labels, values, color=colours)
     lo = min(values)
     hi = max(values)
