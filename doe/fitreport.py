@@ -66,6 +66,8 @@ OUTLIER_SPREAD = 0.5
 NOISE_SHARE_MAX = 0.5
 #: Fewer runs per parameter than this: hyperparameters are poorly determined.
 FEW_RUNS_PER_PARAMETER = 5
+#: A length scale above this many times the range marks a weak effect.
+WEAK_LENGTH_SCALE = 10.0
 _AT_BOUND = np.log(1.05)  # within 5 % of a bound counts as "at the bound"
 
 
@@ -97,6 +99,9 @@ def hyperparameter_statements(model) -> list:
             out.append(f"{name}: length scale at its upper bound ({LENGTH_SCALE_BOUNDS[1]:g} x its range): "
                        f"the response barely changes with {name} beyond a straight-line trend; "
                        "it may not depend on it")
+        elif ls >= np.log(WEAK_LENGTH_SCALE):
+            out.append(f"{name}: length scale {np.exp(ls):.0f} x its range: the response changes little with "
+                       f"{name}, or only along a straight-line trend")
         elif ls <= lo + _AT_BOUND:
             out.append(f"{name}: length scale at its lower bound ({LENGTH_SCALE_BOUNDS[0]:g} x its range): "
                        f"the response seems to change faster with {name} than the runs can resolve; "
@@ -150,7 +155,8 @@ def verdict(loo, noise_share: float, target_q2: float, labels=None, constant: bo
             and abs(loo.residual[worst]) > OUTLIER_SPREAD * spread):
         run = f"run {labels[worst]}" if labels is not None else "one run"
         return "check the data", (f"{run} is {az[worst]:.1f} standard deviations from what the other runs "
-                                  "predict there, far more than the rest: check that run (failed case, typo, unit)")
+                                  "predict there, far more than the rest: check that run (a failed case, a typo or unit slip, "
+                                  "or a real jump such as a stall that a smooth surrogate cannot follow)")
     if np.isfinite(q2) and q2 >= target_q2:
         return "ready", f"q2_loo = {q2:.3f} meets the target {target_q2:g}"
     why = f"q2_loo = {q2:.3f} is below the target {target_q2:g}"

@@ -151,6 +151,10 @@ class FitSettings:
     exact_sources : tuple of str
         Values of the results' ``source`` column that come from a
         deterministic evaluator.
+    length_scale_prior : float
+        Standard deviation (natural log) of the log-normal prior on each
+        length scale, centred on half the parameter's range; 0 for plain
+        maximum likelihood.
     """
 
     kernel: str = "auto"
@@ -161,6 +165,7 @@ class FitSettings:
     selection: str = "loo"
     target_q2: float = 0.9
     exact_sources: tuple = ("builtin", "command")
+    length_scale_prior: float = 1.5
 
 
 @dataclass(frozen=True)
@@ -699,8 +704,9 @@ def _read_fit(t: Table) -> FitSettings:
     target = t.take("target_q2", float, default=0.9, check=lambda v: 0 < v < 1, why="must be in (0, 1)")
     exact = t.take("exact_sources", list, default=["builtin", "command"],
                    check=lambda v: all(isinstance(x, str) for x in v), why="must be a list of strings")
+    prior = t.take("length_scale_prior", float, default=1.5, check=lambda v: 0 <= v <= 10, why="must be in [0, 10]")
     t.finish()
-    return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact))
+    return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact), prior)
 
 
 def _read_sensitivity(t: Table, parameters) -> SensitivitySettings:

@@ -16,11 +16,14 @@ are normalised to mean 0 and standard deviation 1 over the runs. The kernel is
 with one length scale per parameter (anisotropic), ``K_family`` one of
 squared-exponential (``sqexp``), Matern 5/2 (``matern52``) or Matern 3/2
 (``matern32``), and ``trend`` either a constant (``c``) or a linear trend
-(``c (1 + z . z')``, a Bayesian linear regression on the inputs). With
-``kernel = "auto"`` / ``trend = "auto"`` every combination is fitted by
-maximum marginal likelihood (``restarts`` extra starts drawn from the seed)
-and the one with the smallest leave-one-out error is kept
-(``selection = "likelihood"``: the largest marginal likelihood).
+(``c (1 + z . z')``, a Bayesian linear regression on the inputs). Each
+kernel is fitted by maximum marginal likelihood (``restarts`` extra starts
+drawn from the seed) times a weak log-normal prior on each length scale
+(``length_scale_prior``; 0 for plain maximum likelihood). With
+``kernel = "auto"`` the three families are fitted with the first trend, the
+other trend is tried with the best family, and the kernel with the smallest
+leave-one-out error is kept (``selection = "likelihood"``: the largest
+marginal likelihood).
 
 Noise: a learned white-noise term when the data are noisy (recorded CFD,
 tunnel or track data, or replicated points whose values differ); otherwise a
@@ -62,6 +65,7 @@ from pathlib import Path
 
 import numpy as np
 from scipy.linalg import cho_solve, solve_triangular
+from scipy.optimize import minimize
 from sklearn.exceptions import ConvergenceWarning
 from threadpoolctl import threadpool_limits
 from sklearn.gaussian_process import GaussianProcessRegressor
@@ -89,6 +93,8 @@ TREND_BOUNDS = (1e-5, 1e2)
 NOISE_BOUNDS = (1e-8, 1.0)
 #: Fixed nugget of a deterministic evaluator, relative to the response's variance.
 DEFAULT_NUGGET = 1e-6
+#: Standard deviation of the log-normal prior on length scales (natural log; 0: maximum likelihood).
+DEFAULT_LENGTH_SCALE_PRIOR = 1.5
 #: Two points closer than this in every scaled coordinate are the same point.
 DUPLICATE_TOL = 1e-9
 #: Query points predicted at once (bounds memory at CHUNK x runs).
@@ -191,6 +197,9 @@ class ResponseSurrogate:
         Seed of the optimiser starts; same seed, same surrogate.
     names : sequence of str, optional
         Parameter names, used in the plain statements of :attr:`statements_`.
+    length_scale_prior : float
+        Standard deviation (natural log) of the log-normal prior on each
+        length scale, centred on half the range; 0 for maximum likelihood.
 
     Attributes
     ----------
@@ -223,13 +232,14 @@ class ResponseSurrogate:
     """
 
     def __init__(self, kernel="auto", trend="auto", noise="auto", restarts=3, nugget=DEFAULT_NUGGET,
-                 selection="loo", seed=0, names=None):
+                 selection="loo", seed=0, names=None, length_scale_prior=DEFAULT_LENGTH_SCALE_PRIOR):
         self.kernel = kernel
         self.trend = trend
         self.noise = noise
         self.restarts = restarts
         self.nugget = nugget
         self.selection = selection
+        self.length_scale_prior = length_scale_prior
         self.seed = seed
         self.names = names
 
@@ -243,6 +253,9 @@ class ResponseSurrogate:
             raise SurrogateError(f"surrogate option restarts={self.restarts!r} must be a whole number >= 0")
         if not (isinstance(self.nugget, (int, float)) and 0 < self.nugget < 1):
             raise SurrogateError(f"surrogate option nugget={self.nugget!r} must be a number in (0, 1)")
+        if not (isinstance(self.length_scale_prior, (int, float)) and 0 <= self.length_scale_prior <= 10):
+            raise SurrogateError(f"surrogate option length_scale_prior={self.length_scale_prior!r} must be a "
+                                 "number in [0, 10] (0: plain maximum likelihood)")
 
     def _check_fitted(self):
         if not hasattr(self, "gp_"):
@@ -360,7 +373,7 @@ class ResponseSurrogate:
         notes, error = [], ""
         for _ in range(4):
             gp = GaussianProcessRegressor(_build_kernel(family, trend, self.Z_.shape[1], learn), alpha=alpha,
-                                          optimizer="fmin_l_bfgs_b", n_restarts_optimizer=int(self.restarts),
+                                          optimizer=self._optimizer(), n_restarts_optimizer=int(self.restarts),
                                           normalize_y=False, copy_X_train=True, random_state=seed)
             with warnings.catch_warnings(record=True) as caught:
                 warnings.simplefilter("always")
@@ -376,11 +389,41 @@ class ResponseSurrogate:
                              f"{alpha:g} was used (points very close together?)")
             Kinv = cho_solve((gp.L_, True), np.eye(len(self.yn_)))
             loo_n = gp.alpha_ / np.diag(Kinv)
+            gp.log_marginal_likelihood_value_ = float(gp.log_marginal_likelihood(gp.kernel_.theta))  # without prior
             return {"gp": gp, "family": family, "trend": trend, "alpha": alpha, "notes": notes,
                     "lml": float(gp.log_marginal_likelihood_value_), "loo_mse": float(np.mean(loo_n**2)),
                     "error": ""}
         return {"gp": None, "family": family, "trend": trend, "alpha": alpha, "notes": notes,
                 "lml": None, "loo_mse": np.inf, "error": error}
+
+    def _optimizer(self):
+        """L-BFGS-B on minus the log marginal likelihood, plus the length-scale prior when it is set.
+
+        The prior is ``ln(l_k) ~ N(ln 0.5, s^2)`` per parameter (``l_k`` in
+        fractions of its range, ``s = length_scale_prior``), a weakly
+        informative prior that keeps a few runs from declaring a parameter
+        irrelevant (maximum a posteriori estimation, Rasmussen & Williams
+        2006, sec. 5.2). With ``s = 0`` this is plain maximum likelihood.
+        """
+        sd = float(self.length_scale_prior)
+        if sd == 0:
+            return "fmin_l_bfgs_b"
+        d, centre = self.Z_.shape[1], np.log(0.5)
+
+        def optimise(obj_func, theta0, bounds):
+            def objective(theta):
+                value, grad = obj_func(theta)
+                ls = theta[1:1 + d] - centre
+                grad = np.array(grad, dtype=float)
+                grad[1:1 + d] += ls / sd**2
+                return value + float(np.sum(ls**2)) / (2 * sd**2), grad
+
+            res = minimize(objective, theta0, jac=True, bounds=bounds, method="L-BFGS-B")
+            if not res.success:
+                warnings.warn(f"lbfgs failed to converge: {res.message}", ConvergenceWarning)
+            return res.x, res.fun
+
+        return optimise
 
     def _adopt(self, gp, family, trend, alpha):
         """Take a fitted scikit-learn model as this surrogate's state."""
@@ -571,7 +614,8 @@ class ResponseSurrogate:
                 "log_marginal_likelihood": self.log_marginal_likelihood_,
                 "options": {"kernel": self.kernel, "trend": self.trend, "noise": self.noise,
                             "restarts": int(self.restarts), "nugget": float(self.nugget),
-                            "selection": self.selection, "seed": int(self.seed)},
+                            "selection": self.selection, "seed": int(self.seed),
+                            "length_scale_prior": float(self.length_scale_prior)},
                 "statements": list(self.statements_), "candidates": self.candidates_,
                 "groups": [[int(i) for i in g] for g in self.groups_], "fit_seconds": self.fit_seconds_}
 
@@ -642,6 +686,9 @@ class SurrogateSet:
     target_q2 : float
         The accuracy wanted (``[fit] target_q2``), for verdicts and the stopping rule.
     study_name : str
+    noise_reason : dict of str to str
+        Why a noise level was learned for a response (empty when it was not
+        decided by the runs' sources).
     """
 
     space: object
@@ -793,7 +840,8 @@ def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
         Seed of the optimiser restarts.
     **options
         Override ``[fit]`` settings: ``kernel``, ``trend``, ``noise``,
-        ``restarts``, ``nugget``, ``selection``, ``target_q2``.
+        ``restarts``, ``nugget``, ``selection``, ``target_q2``,
+        ``exact_sources``, ``length_scale_prior``.
 
     Returns
     -------
@@ -821,7 +869,8 @@ def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
     for k, resp in enumerate(study.responses):
         model = ResponseSurrogate(kernel=settings["kernel"], trend=settings["trend"], noise=noise,
                                   restarts=settings["restarts"], nugget=settings["nugget"],
-                                  selection=settings["selection"], seed=int(seed) + 1000 * k, names=names)
+                                  selection=settings["selection"], seed=int(seed) + 1000 * k, names=names,
+                                  length_scale_prior=settings["length_scale_prior"])
         try:
             model.fit(X, results.y(resp.name))
         except SurrogateError as exc:
@@ -836,7 +885,8 @@ def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
 def _settings(study, options) -> dict:
     fit = getattr(study, "fit", None)
     base = {"kernel": "auto", "trend": "auto", "noise": "auto", "restarts": 3, "nugget": DEFAULT_NUGGET,
-            "selection": "loo", "target_q2": 0.9, "exact_sources": ("builtin", "command")}
+            "selection": "loo", "target_q2": 0.9, "exact_sources": ("builtin", "command"),
+            "length_scale_prior": DEFAULT_LENGTH_SCALE_PRIOR}
     if fit is not None:
         base.update({k: getattr(fit, k) for k in base})
     unknown = set(options) - set(base)
