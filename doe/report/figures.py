@@ -115,6 +115,7 @@ def sobol_bars(name: str, unit: str, record: dict, parameters, folder: Path) -> 
     ax.barh(y - 0.18, s1[order], height=0.34, color=PALETTE["runs"], xerr=c1[order], ecolor=PALETTE["ink"],
             capsize=3, label="first order (alone)")
     ax.set_yticks(y, [names[i] for i in order])
+    ax.set_ylabel("knob")
     ax.invert_yaxis()
     ax.set_xlim(0, max(1.0, float(np.max(st + ct, initial=0)) * 1.05))
     ax.set_xlabel("share of the variance of " + _label(name, unit) + " [-]")

@@ -1,0 +1,204 @@
+"""The report: built from its files, numbers equal to theirs, every figure labelled with units and captioned,
+and readable in a real browser at phone and desktop widths."""
+from __future__ import annotations
+
+import json
+import re
+import shutil
+import subprocess
+from html import unescape
+from pathlib import Path
+
+import matplotlib.pyplot as plt
+import pandas as pd
+import pytest
+
+from doe.cli import main
+from doe.errors import DoeError
+from doe.report.build import CAUTIONS, fmt
+from doe.report.style import new_figure, save
+
+STUDY = """
+[study]
+name = "rep-test"
+description = "A small analytic study for the report tests"
+
+[[parameters]]
+name = "x1"
+unit = "deg"
+low = 0.0
+high = 10.0
+tolerance = 0.2
+
+[[parameters]]
+name = "x2"
+unit = "mm"
+low = 20.0
+high = 120.0
+tolerance = 2.0
+
+[[responses]]
+name = "y"
+unit = "m^2"
+goal = "minimize"
+
+[[responses]]
+name = "z"
+unit = "m^2"
+goal = "minimize"
+
+[evaluator]
+kind = "recorded"
+file = "results.csv"
+
+[plan]
+seed = 2
+
+[robust]
+samples = 32
+limits = [ { response = "z", max = 0.9 } ]
+"""
+
+
+def _results(path: Path) -> None:
+    # An invented smooth pair of responses on a 5 x 5 grid (test data only).
+    rows = []
+    k = 0
+    for i in range(5):
+        for j in range(5):
+            k += 1
+            x1, x2 = 10 * i / 4, 20 + 100 * j / 4
+            y = -0.2 * (x1 / 10) ** 2 + 0.1 * (x2 / 120) + 0.05 * (x1 / 10) * (x2 / 120)
+            z = 0.6 + 0.02 * x1 / 10 + 0.1 * (x2 / 120) ** 2
+            rows.append((f"r{k:03d}", x1, x2, y, z, "ok", "cfd"))
+    rows.append(("r026", 5.0, 70.0, "", "", "failed", "cfd"))
+    pd.DataFrame(rows, columns=["run_id", "x1", "x2", "y", "z", "status", "source"]).to_csv(path, index=False)
+
+
+@pytest.fixture(scope="module")
+def built(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("report")
+    (folder / "study.toml").write_text(STUDY)
+    _results(folder / "results.csv")
+    code = main(["run", str(folder / "study.toml"), "--out", str(folder / "out"), "--no-progress"])
+    assert code == 0
+    return folder / "out"
+
+
+def _text(html: str) -> str:
+    return unescape(re.sub(r"<[^>]+>", " ", html))
+
+
+def test_report_folder_is_self_contained(built):
+    index = built / "report" / "index.html"
+    html = index.read_text()
+    for src in re.findall(r'<img src="([^"]+)"', html):
+        assert (index.parent / src).exists() and not src.startswith(("http", "/"))
+    assert "http://" not in html and "https://" not in html  # readable offline
+    for name in ("results.csv", "fit.json", "sensitivity.json", "robust.json"):
+        assert (built / "report" / "data" / name).exists()
+
+
+def test_report_numbers_equal_the_files_it_was_built_from(built):
+    text = _text((built / "report" / "index.html").read_text())
+    fit = json.loads((built / "surrogate" / "fit.json").read_text())
+    for name, rec in fit.items():
+        assert fmt(rec["q2_loo"]) in text and f"{fmt(rec['rmse_loo'])} {rec['unit']}" in text
+    sens = json.loads((built / "sensitivity.json").read_text())
+    for r in ("y", "z"):
+        for p in ("x1", "x2"):
+            cell = sens[r][p]
+            assert f"{fmt(cell['S1'])} ± {fmt(cell['S1_conf'])}" in text
+            assert f"{fmt(cell['ST'])} ± {fmt(cell['ST_conf'])}" in text
+        assert sens["_meta"]["responses"][r]["statement"] in text
+    rob = json.loads((built / "robust.json").read_text())
+    for key in ("nominal", "robust"):
+        for p in ("x1", "x2"):
+            assert fmt(rob[key]["point"][p]) in text
+        assert f"{fmt(rob[key]['mean'])} ± {fmt(rob[key]['std'], 2)}" in text
+
+
+def test_report_carries_cautions_and_failed_runs(built):
+    text = _text((built / "report" / "index.html").read_text())
+    for c in CAUTIONS:
+        assert c in text
+    assert "r026" in text  # the failed run is listed
+
+
+def test_every_figure_has_a_caption(built):
+    html = (built / "report" / "index.html").read_text()
+    figures = re.findall(r"<figure>(.*?)</figure>", html, re.S)
+    assert len(figures) >= 6
+    for f in figures:
+        assert "<figcaption>" in f and len(_text(f).split()) > 8
+
+
+def test_unlabelled_figure_is_refused(tmp_path):
+    fig, ax = new_figure()
+    ax.plot([0, 1], [0, 1])
+    ax.set_xlabel("speed")  # no unit
+    ax.set_ylabel("drag [N]")
+    with pytest.raises(DoeError, match="unit"):
+        save(fig, tmp_path / "f.png")
+    plt.close("all")
+
+
+def test_second_run_reuses_everything(built, capsys):
+    folder = built.parent
+    stamp = (built / "robust.json").stat().st_mtime
+    assert main(["run", str(folder / "study.toml"), "--out", str(built), "--no-progress"]) == 0
+    err = capsys.readouterr().err
+    assert "reusing" in err and (built / "robust.json").stat().st_mtime == stamp
+
+
+def _chromium():
+    for name in ("chromium", "chromium-browser", "google-chrome"):
+        path = shutil.which(name)
+        if path:
+            return path
+    return None
+
+
+CHECK_JS = """
+<script>
+window.addEventListener("load", function () {
+  var imgs = Array.prototype.slice.call(document.images);
+  var broken = imgs.filter(function (i) { return !(i.complete && i.naturalWidth > 0); }).map(function (i) { return i.src; });
+  var w = document.documentElement.clientWidth;
+  var wide = [];
+  document.querySelectorAll("main *").forEach(function (e) {
+    if (e.closest(".scroll")) { return; }  // wide tables scroll inside their own box
+    var r = e.getBoundingClientRect();
+    if (r.right > w + 1) { wide.push(e.tagName + ":" + Math.round(r.right)); }
+  });
+  var out = document.createElement("pre");
+  out.id = "check";
+  out.textContent = JSON.stringify({images: imgs.length, broken: broken, wide: wide, width: w,
+                                    scroll: document.documentElement.scrollWidth});
+  document.body.appendChild(out);
+});
+</script>
+"""
+
+
+@pytest.mark.parametrize("width", [390, 1280])
+def test_report_in_a_real_browser(built, tmp_path, width):
+    browser = _chromium()
+    if browser is None:
+        pytest.skip("no Chromium on this machine (.ci/run installs Debian's chromium when it can)")
+    page = built / "report" / f"check_{width}.html"
+    page.write_text((built / "report" / "index.html").read_text().replace("</body>", CHECK_JS + "</body>"))
+    flags = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+             "--disable-background-networking", "--disable-component-update", "--disable-sync",
+             f"--user-data-dir={tmp_path / 'profile'}", f"--window-size={width},900", "--hide-scrollbars",
+             "--virtual-time-budget=10000"]
+    dom = subprocess.run([browser, *flags, "--dump-dom", page.as_uri()], capture_output=True, text=True,
+                         timeout=120).stdout
+    found = re.search(r'<pre id="check">(.*?)</pre>', dom, re.S)
+    assert found, "the check script did not run"
+    check = json.loads(unescape(found.group(1)))
+    assert check["images"] >= 6 and check["broken"] == []      # every figure loads
+    assert check["wide"] == [] and check["scroll"] <= check["width"] + 1  # nothing overflows the page
+    shot = tmp_path / f"shot_{width}.png"
+    subprocess.run([browser, *flags, f"--screenshot={shot}", page.as_uri()], capture_output=True, timeout=120)
+    assert shot.exists() and shot.stat().st_size > 10_000
