@@ -123,6 +123,25 @@ def _add_results_options(p, results_required: bool = True):
     p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
 
 
+def _study_results(args):
+    """The study, its results and the seed, for the verbs that start from a results CSV."""
+    from .results import read_results
+    from .study import load_study
+
+    study = load_study(args.study)
+    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    return study, results, args.seed if args.seed is not None else study.plan.seed
+
+
+def _surrogates(args, study, results, seed):
+    """Surrogates loaded from ``--surrogate`` when given, else fitted to the results."""
+    from .surrogate import fit_surrogates, load_surrogates
+
+    if getattr(args, "surrogate", None):
+        return load_surrogates(args.surrogate, study)
+    return fit_surrogates(study, results, seed=seed)
+
+
 def _add_fit(sub):
     p = sub.add_parser("fit", help="fit a Gaussian-process surrogate per response, with leave-one-out checks",
                        description="Fit one Gaussian-process surrogate per response to the ok runs of a results CSV. "
@@ -138,13 +157,11 @@ def _add_fit(sub):
 
 
 def _cmd_fit(args):
-    from .results import read_points, read_results, write_plan
-    from .study import load_study
-    from .surrogate import fit_surrogates, prediction_frame
+    from .results import read_points, write_plan
+    from .surrogate import prediction_frame
 
-    study = load_study(args.study)
-    results = read_results(args.results, study, accept_outside=args.accept_outside)
-    sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    study, results, seed = _study_results(args)
+    sset = _surrogates(args, study, results, seed)
     out = args.out or study.default_output / "surrogate"
     sset.save(out)
     for name, rep in sset.fit_report().items():
@@ -181,15 +198,11 @@ def _add_next(sub):
 
 def _cmd_next(args):
     from .adaptive import propose_runs
-    from .results import read_plan, read_results, write_plan
-    from .study import load_study
-    from .surrogate import fit_surrogates, load_surrogates
+    from .results import read_plan, write_plan
 
-    study = load_study(args.study)
-    seed = args.seed if args.seed is not None else study.plan.seed
-    results = read_results(args.results, study, accept_outside=args.accept_outside)
+    study, results, seed = _study_results(args)
     pending = read_plan(args.pending, study) if args.pending is not None else None
-    sset = load_surrogates(args.surrogate, study) if args.surrogate else fit_surrogates(study, results, seed=seed)
+    sset = _surrogates(args, study, results, seed)
     taken = list(results.frame["run_id"]) + (list(pending["run_id"]) if pending is not None else [])
     proposal = propose_runs(sset, args.runs, aim=args.aim, criterion=args.criterion, response=args.response,
                             pending=None if pending is None else pending[study.space.names].to_numpy(float),
@@ -272,14 +285,10 @@ def _add_robust(sub):
 
 
 def _cmd_robust(args):
-    from .results import read_results
     from .robust import only_responses, study_responses, study_robust, study_tradeoff, write_tradeoff
-    from .study import load_study
-    from .surrogate import fit_surrogates
 
-    study = load_study(args.study)
-    results = read_results(args.results, study, accept_outside=args.accept_outside)
-    sset = fit_surrogates(study, results, seed=args.seed if args.seed is not None else study.plan.seed)
+    study, results, seed = _study_results(args)
+    sset = _surrogates(args, study, results, seed)
     sset = only_responses(sset, study_responses(study))
     result = study_robust(study, sset.predict, runs_X=results.X())
     out = args.out or study.default_output / "robust.json"
