@@ -37,6 +37,8 @@ __all__ = ["PlanQuality", "Plan", "default_runs", "make_plan", "augment_plan", "
 
 #: Default plan size per parameter (Loeppky, Sacks & Welch 2009 [5]).
 RUNS_PER_PARAMETER = 10
+#: Largest constrained plan made by greedy maximin selection; bigger ones take feasible Sobol' points.
+GREEDY_LIMIT = 1000
 #: Exponent of the Morris-Mitchell criterion (large p approaches plain maximin [2]).
 PHI_P_EXPONENT = 20
 
@@ -283,10 +285,19 @@ def constrained_maximin(space, n: int, seed=None) -> tuple[np.ndarray, list]:
         States that one-run-per-stratum does not hold in general under constraints.
     """
     rng = np.random.default_rng(seed)
-    C = _candidates(space, max(64 * n, 4096), rng)
+    share = f"constraints cut the box ({space.feasible_fraction():.0%} of it is feasible)"
+    if n > GREEDY_LIMIT:
+        # Greedy selection costs n x candidates distance evaluations; for big plans the feasible
+        # points of one scrambled Sobol' sequence, in sequence order, fill the space well enough.
+        C = _candidates(space, int(n / max(space.feasible_fraction(), 1e-3) * 1.2) + 64, rng)
+        if len(C) < n:
+            raise PlanError(f"asked for {n} runs but only {len(C)} candidate points are feasible")
+        return C[:n], [f"{share}: the plan is the feasible part of a scrambled Sobol' sequence (more than "
+                       f"{GREEDY_LIMIT} runs), so the one-run-per-stratum (Latin) property does not hold"]
+    C = _candidates(space, min(max(64 * n, 4096), 65536), rng)
     U = greedy_maximin(C, n, rng=rng)
-    notes = [f"constraints cut the box ({space.feasible_fraction():.0%} of it is feasible): the plan is a maximin "
-             "selection of feasible points, so the one-run-per-stratum (Latin) property does not hold in general"]
+    notes = [f"{share}: the plan is a maximin selection of feasible points, so the one-run-per-stratum (Latin) "
+             "property does not hold in general"]
     return U, notes
 
 
@@ -393,7 +404,7 @@ def augment_plan(space, existing: pd.DataFrame, k: int, seed: int = 0) -> Plan:
         raise PlanError(f"the number of runs to add must be at least 1, got {k}")
     rng = np.random.default_rng(seed)
     U0 = space.to_unit(existing[space.names].to_numpy(dtype=float))
-    C = _candidates(space, max(64 * (len(U0) + k), 4096), rng)
+    C = _candidates(space, min(max(64 * (len(U0) + k), 4096), 65536), rng)
     new = greedy_maximin(C, k, existing=U0, rng=rng)
     U = np.vstack([U0, new])
     ids = _next_ids(list(existing["run_id"]), k)

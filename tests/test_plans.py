@@ -134,3 +134,14 @@ def test_augmentation_keeps_old_runs_and_improves_coverage():
     assert _fill_distance(U_new, grid) < np.mean(rand)
     # No added run coincides with an old one.
     assert more.quality.min_distance > 0.02
+
+
+def test_big_constrained_plan_is_feasible_and_says_how_it_was_made():
+    # Above GREEDY_LIMIT runs a constrained plan is the feasible part of a Sobol' sequence.
+    space = Space((Parameter("h", "mm", 0, 100), Parameter("a", "deg", 0, 20)),
+                  (LinearConstraint("roof", {"h": 1.0, "a": 4.0}, max=120.0, unit="mm"),))
+    plan = make_plan(space, 1500, seed=4)
+    X = plan.frame[space.names].to_numpy()
+    assert len(X) == 1500 and space.feasible(X).all()
+    assert any("Sobol" in n for n in plan.quality.notes)
+    assert plan.quality.min_distance > 0

@@ -187,7 +187,7 @@ def response_map(name: str, unit: str, predict, space, px: str, py: str, fixed, 
     X = grid_points(space, np.asarray(fixed, dtype=float), px, xs, py, ys)
     mean, std = predict(X)[name]
     fig, ax = new_figure(5.6, 4.4)
-    cs = ax.contourf(xs, ys, mean.reshape(n_grid, n_grid), levels=14, cmap="RdYlBu")
+    cs = ax.contourf(xs, ys, mean.reshape(n_grid, n_grid), levels=14, cmap="viridis")
     ax.contour(xs, ys, std.reshape(n_grid, n_grid), levels=4, colors=PALETTE["ink"], linewidths=0.5, alpha=0.5)
     cb = fig.colorbar(cs, ax=ax)
     cb.set_label(_label(name, unit))
@@ -199,7 +199,7 @@ def response_map(name: str, unit: str, predict, space, px: str, py: str, fixed, 
                    label="recommended")
     ax.set_xlabel(a.label())
     ax.set_ylabel(b.label())
-    ax.legend(loc="upper right", fontsize=7.5)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=2, fontsize=7.5)
     file = f"map_{name}_{px}_{py}.png"
     save(fig, folder / file)
     others = [p.name for p in space.parameters if p.name not in (px, py)]
