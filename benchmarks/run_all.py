@@ -8,7 +8,7 @@ Usage::
 
     python benchmarks/run_all.py            # full run (under 20 minutes on 2 cores)
     python benchmarks/run_all.py --quick    # short run for checks (under 3 minutes)
-    python benchmarks/run_all.py --only aero,plans
+    python benchmarks/run_all.py --only aero,plans   # refresh just those sections of the file
 """
 from __future__ import annotations
 
@@ -47,6 +47,23 @@ def _load(path: Path):
     return module
 
 
+def _marked(name: str, section: list) -> list:
+    """A section between markers, so that ``--only`` can later replace just that section."""
+    return [f"<!-- bench:{name} -->", *section, f"<!-- /bench:{name} -->", ""]
+
+
+def _replace_section(text: str, name: str, section: list) -> str:
+    """``text`` with the marked section ``name`` replaced (or added before the total line)."""
+    block = "\n".join(_marked(name, section))
+    start, end = f"<!-- bench:{name} -->", f"<!-- /bench:{name} -->"
+    if start in text and end in text:
+        i, j = text.index(start), text.index(end) + len(end) + 1
+        return text[:i] + block + text[j:]
+    k = text.rfind("Total wall time:")
+    k = len(text) if k < 0 else k
+    return text[:k] + block + "\n" + text[k:]
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="short run for checks")
@@ -62,6 +79,7 @@ def main(argv=None) -> int:
              f"Machine: {_machine()}.", "",
              "Absolute times on a shared machine are noisy; ratios measured in the same run are not. "
              "Seeds are given in each section.", ""]
+    sections = {}
     for path in files:
         name = path.stem.removeprefix("bench_")
         if names and name not in names:
@@ -73,10 +91,20 @@ def main(argv=None) -> int:
         except Exception:  # a broken benchmark is reported, the others still run
             section = [f"## {name}", "", "This benchmark failed:", "", "```",
                        traceback.format_exc(limit=3).strip(), "```"]
-        lines += section + ["", f"_{name}: {time.perf_counter() - t0:.0f} s of wall time._", ""]
-    lines.append(f"Total wall time: {time.perf_counter() - started:.0f} s.")
+        sections[name] = section + ["", f"_{name}: {time.perf_counter() - t0:.0f} s of wall time"
+                                        f"{' (quick mode)' if args.quick else ''}, run on "
+                                        f"{datetime.now(timezone.utc):%Y-%m-%d %H:%M} UTC._"]
     args.out.parent.mkdir(parents=True, exist_ok=True)
-    args.out.write_text("\n".join(lines) + "\n")
+    if names and args.out.exists():  # refresh only the named sections of the existing file
+        text = args.out.read_text()
+        for name, section in sections.items():
+            text = _replace_section(text, name, section)
+        args.out.write_text(text)
+    else:
+        for name, section in sections.items():
+            lines += _marked(name, section)
+        lines.append(f"Total wall time: {time.perf_counter() - started:.0f} s.")
+        args.out.write_text("\n".join(lines) + "\n")
     print(f"wrote {args.out}", file=sys.stderr)
     return 0
 
