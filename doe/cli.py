@@ -31,12 +31,9 @@ def _say(text: str) -> None:
 
 
 def _write_json(data, path: Path) -> None:
-    import os
+    from .results import write_json
 
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(json.dumps(data, indent=2, allow_nan=False) + "\n")
-    os.replace(tmp, path)
+    write_json(data, path)
 
 
 # ---------------------------------------------------------------------------

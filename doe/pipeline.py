@@ -22,7 +22,6 @@ report              ``report/index.html``      all of the above
 from __future__ import annotations
 
 import json
-import os
 import sys
 from dataclasses import dataclass
 from pathlib import Path
@@ -30,6 +29,7 @@ from pathlib import Path
 import pandas as pd
 
 from .errors import DoeError
+from .results import write_json
 
 __all__ = ["StudyFiles", "run_study", "analyse_and_report", "NEXT_RUNS_DEFAULT"]
 
@@ -100,13 +100,6 @@ def _fresh(target: Path, *sources: Path) -> bool:
     return all(not s.exists() or s.stat().st_mtime <= t for s in sources)
 
 
-def _write_json(data, path: Path) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(json.dumps(data, indent=2, allow_nan=False) + "\n")
-    os.replace(tmp, path)
-
-
 def _say(text: str) -> None:
     print(text, file=sys.stderr, flush=True)
 
@@ -160,7 +153,7 @@ def run_study(study, out=None, jobs: int = 1, scheduler: str | None = None, prog
     else:
         made = make_plan(study.space, study.plan.runs, study.plan.seed, study.plan.method)
         write_plan(made.frame, files.plan)
-        _write_json(made.record(), files.plan_quality)
+        write_json(made.record(), files.plan_quality)
         plan = made.frame
         steps("plan", f"{made.quality.summary()} -> {files.plan}")
     evaluator = make_evaluator(study, workspace=files.cases)
@@ -233,7 +226,7 @@ def _sensitivity_step(study, sset, files: StudyFiles, steps):
         return json.loads(files.sensitivity.read_text())
     result = study_sensitivity(study, surrogates=sset)
     data = study_sensitivity_json(study, result)
-    _write_json(data, files.sensitivity)
+    write_json(data, files.sensitivity)
     steps("sensitivity", f"Sobol indices of {len(result.responses)} responses -> {files.sensitivity}")
     return data
 
@@ -250,7 +243,7 @@ def _robust_step(study, sset, results, files: StudyFiles, steps):
     else:
         result = study_robust(study, sset.predict, runs_X=results.X())
         robust = result.to_dict()
-        _write_json(robust, files.robust)
+        write_json(robust, files.robust)
         steps("robust", result.robust.summary("robust", result.objective, result.unit))
     tradeoff = None
     if len(study.robust.tradeoff) >= 2:
@@ -274,7 +267,7 @@ def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
         proposal = propose_runs(sset, k, aim="map", avoid=results.failed[study.space.names].to_numpy(float),
                                 taken_ids=list(results.frame["run_id"]), seed=study.plan.seed)
         write_plan(proposal.frame, files.next)
-        _write_json(proposal.record(), files.next_why)
+        write_json(proposal.record(), files.next_why)
         steps("next runs", f"{len(proposal.frame)} runs proposed ({sentence}) -> {files.next}")
     why = json.loads(files.next_why.read_text()) if files.next_why.exists() else {"runs": []}
     return read_plan(files.next, study), {r["run_id"]: r["reason"] for r in why.get("runs", [])}, sentence

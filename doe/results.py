@@ -32,7 +32,7 @@ from .errors import ResultsError, StoreLockedError, where
 from .evaluators.base import Outcome
 from .evaluators.command import safe_run_id
 
-__all__ = ["read_plan", "read_points", "read_results", "write_plan", "ResultsTable", "ResultsStore",
+__all__ = ["read_plan", "read_points", "read_results", "write_plan", "write_json", "ResultsTable", "ResultsStore",
            "STATUS_VALUES", "META_COLUMNS"]
 
 STATUS_VALUES = ("ok", "failed")
@@ -221,6 +221,17 @@ def write_plan(frame: pd.DataFrame, path, float_format: str = "%.10g") -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
     tmp = path.with_name(path.name + ".tmp")
     frame.to_csv(tmp, index=False, float_format=float_format, lineterminator="\n")
+    os.replace(tmp, path)
+
+
+def write_json(data, path) -> None:
+    """Write ``data`` as indented JSON, atomically (write, then rename); NaN is refused."""
+    import json
+
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_name(path.name + ".tmp")
+    tmp.write_text(json.dumps(data, indent=2, allow_nan=False) + "\n")
     os.replace(tmp, path)
 
 
