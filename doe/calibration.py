@@ -203,7 +203,7 @@ class Calibration:
     dof: int = 0
     evaluations: int = 0
     starts: int = 1
-    seed: int = 0
+    seed: int | None = 0
     elapsed_s: float = 0.0
     notes: list = field(default_factory=list)
 
@@ -359,14 +359,17 @@ class _Problem:
     def unit(self, values: dict) -> np.ndarray:
         return (np.array([values[n] for n in self.names]) - self.low) / self.width
 
-    def predict(self, values: dict) -> tuple[dict, np.ndarray]:
-        """Model values of every response at the data's runs, and which runs the model could evaluate."""
+    def predict(self, values: dict, why: bool = False):
+        """Model values of every response at the data's runs, and which runs the model could evaluate.
+
+        With ``why``, also the model's message per run (why it failed, "" when it did not).
+        """
         co = replace(self.settings.coefficients, **{k: float(v) for k, v in values.items()})
         result = RearPackageModel(replace(self.settings, coefficients=co)).evaluate(self.data.inputs)
         self.evaluations += 1
         out = {r: result.values[r] for r in self.data.observed}
         ok = result.ok & np.all([np.isfinite(v) for v in out.values()], axis=0)
-        return out, ok
+        return (out, ok, result.messages) if why else (out, ok)
 
     def residuals(self, u) -> np.ndarray:
         predicted, ok = self.predict(self.physical(u))
@@ -379,18 +382,15 @@ class _Problem:
     def jacobian(self, u, r0=None, central=False) -> np.ndarray:
         """Finite-difference Jacobian of :meth:`residuals` in unit coordinates (one-sided away from a bound)."""
         u = np.asarray(u, dtype=float)
-        r0 = self.residuals(u) if r0 is None and not central else r0
         J = np.empty((self.n_residuals, len(u)))
         for j in range(len(u)):
-            h = FD_STEP if u[j] + FD_STEP <= 1.0 else -FD_STEP
-            up = u.copy()
-            up[j] += h
-            if central and 0.0 <= u[j] - h <= 1.0:
-                down = u.copy()
-                down[j] -= h
-                J[:, j] = (self.residuals(up) - self.residuals(down)) / (2 * h)
+            step = np.zeros_like(u)
+            step[j] = FD_STEP if u[j] + FD_STEP <= 1.0 else -FD_STEP
+            if central and 0.0 <= u[j] - step[j] <= 1.0:
+                J[:, j] = (self.residuals(u + step) - self.residuals(u - step)) / (2 * step[j])
             else:
-                J[:, j] = (self.residuals(up) - (r0 if r0 is not None else self.residuals(u))) / h
+                r0 = self.residuals(u) if r0 is None else r0
+                J[:, j] = (self.residuals(u + step) - r0) / step[j]
         return J
 
     @property
@@ -566,18 +566,80 @@ def _not_determined(names, j, u, half, width, corr, active) -> str:
     return ("not determined: " + "; ".join(notes)) if notes else ""
 
 
-def _drop_failing(problem: _Problem, start: dict) -> dict:
-    """Leave out runs the model cannot evaluate at the start values; returns run id -> why."""
-    model = RearPackageModel(replace(problem.settings,
-                                     coefficients=replace(problem.settings.coefficients, **start)))
-    result = model.evaluate(problem.data.inputs)
-    problem.evaluations += 1
-    finite = np.all([np.isfinite(result.values[r]) for r in problem.data.observed], axis=0)
-    keep = result.ok & finite
-    excluded = {rid: (result.messages[i] or "a response is not defined there") for i, rid
+def _drop_failing(problem: _Problem) -> dict:
+    """Leave out runs the model cannot evaluate at its current coefficients; returns run id -> why."""
+    _, keep, messages = problem.predict({}, why=True)
+    excluded = {rid: (messages[i] or "a response is not defined there") for i, rid
                 in enumerate(problem.data.run_ids) if not keep[i]}
+    if not keep.any():
+        raise CalibrationError(f"the model cannot evaluate any of the {len(keep)} ok run(s) "
+                               f"(run {problem.data.run_ids[0]}: {next(iter(excluded.values()))})")
     problem.data = problem.data.subset(keep)
     return excluded
+
+
+def _choose(problem: _Problem, screen: bool) -> tuple[_Problem, dict]:
+    """The problem narrowed to the coefficients with an effect (when ``screen``), and those left out with why."""
+    not_fitted = {}
+    if screen:
+        start = {n: getattr(problem.settings.coefficients, n) for n in problem.names}
+        effects = _screen(problem, start)
+        not_fitted = {n: f"no effect on the chosen responses (its whole range moves them by at most "
+                         f"{e:.2g} of their scale)" for n, e in effects.items() if e < EFFECT_MIN}
+        chosen = [n for n in problem.names if n not in not_fitted]
+        if not chosen:
+            raise CalibrationError("no coefficient has any effect on the chosen responses")
+        problem = problem.narrowed(chosen)
+    if problem.n_residuals <= len(problem.names):
+        raise CalibrationError(f"{len(problem.data.run_ids)} usable run(s) x {len(problem.data.observed)} "
+                               f"response(s) = {problem.n_residuals} values cannot determine "
+                               f"{len(problem.names)} coefficient(s); record more runs")
+    not_fitted.update(SWITCHES)
+    return problem, not_fitted
+
+
+@dataclass
+class _Posterior:
+    """The optimum and its Laplace approximation."""
+
+    u: np.ndarray
+    sigma2: float
+    chi2_dof: float
+    dof: int
+    std_error: np.ndarray
+    correlation: np.ndarray
+    active: np.ndarray
+    quantile: float
+
+
+def _solve(problem: _Problem, starts: int, rng, stated: set, progress) -> _Posterior:
+    """Fit (two-stage when some noise is estimated), then the Laplace approximation at the optimum."""
+    start = {n: getattr(problem.settings.coefficients, n) for n in problem.names}
+    u = _fit(problem, start, starts, rng, progress)
+    known = stated == set(problem.data.observed)
+    if not known:
+        problem.scales.update({r: s for r, s in _reweight(problem, u).items() if r not in stated})
+        u = _least_squares(problem, u, progress, "reweighted, ").x
+    r = problem.residuals(u)
+    dof = problem.n_residuals - len(problem.names)
+    chi2_dof = float(r @ r) / dof
+    sigma2 = 1.0 if known else chi2_dof
+    se, corr, active = _laplace(problem.jacobian(u, central=True), sigma2, problem.width)
+    quantile = float(stats.norm.ppf(0.975) if known else stats.t.ppf(0.975, dof))
+    return _Posterior(u, sigma2, chi2_dof, dof, se, corr, active, quantile)
+
+
+def _notes(post: _Posterior, known: bool, excluded: dict) -> list:
+    notes = []
+    if known and post.chi2_dof > 2.0:
+        notes.append(f"the residuals are larger than the stated noise (chi^2 per degree of freedom "
+                     f"{post.chi2_dof:.2g}): the intervals assume the stated noise and are too narrow; "
+                     "model-form error or understated noise")
+    if excluded:
+        notes.append(f"{len(excluded)} run(s) left out: the model cannot evaluate them")
+    notes.append("calibrated coefficients are effective values that also absorb the model's form error; "
+                 "they are not physical measurements")
+    return notes
 
 
 # ---------------------------------------------------------------------------
@@ -606,7 +668,7 @@ def calibrate(settings: ModelSettings, conversion: dict, results, coefficients=N
     starts : int
         Optimiser starts: the current values, then seeded random points.
     seed : int or None
-        Seed of the extra starts (normalised with :func:`numpy.random.default_rng`).
+        Seed of the extra starts (normalised with :func:`numpy.random.default_rng`); same seed, same result.
     units : dict of str to str, optional
         Response -> unit of the recorded values (checked against the model's).
     study_name : str
@@ -634,66 +696,32 @@ def calibrate(settings: ModelSettings, conversion: dict, results, coefficients=N
     t0 = time.monotonic()
     if not isinstance(starts, int) or isinstance(starts, bool) or not 1 <= starts <= 50:
         raise CalibrationError(f"starts must be a whole number from 1 to 50, got {starts!r}")
+    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0):
+        raise CalibrationError(f"seed must be a whole number >= 0 or None, got {seed!r}")
     units = dict(units or {})
     responses = _check_responses(responses, results, units)
     chosen = _check_names(coefficients) if coefficients is not None else list(FITTABLE)
     data = _data(results, conversion, responses)
+    problem = _Problem(settings, data, chosen, {})
+    excluded = _drop_failing(problem)
+    problem.scales = _scales(problem.data, noise)
+    problem, not_fitted = _choose(problem, screen=coefficients is None)
+    stated = set(noise or {})
+    pred0, _ = problem.predict({})
+    post = _solve(problem, starts, np.random.default_rng(seed), stated, progress)
     before = asdict(settings.coefficients)
-    start = {n: before[n] for n in chosen}
-    problem = _Problem(settings, data, chosen, _scales(data, noise))
-    excluded = _drop_failing(problem, start)
-    notes = []
-    not_fitted = {}
-    if coefficients is None:
-        effects = _screen(problem, start)
-        not_fitted = {n: f"no effect on the chosen responses (its whole range moves them by at most "
-                         f"{e:.2g} of their scale)" for n, e in effects.items() if e < EFFECT_MIN}
-        chosen = [n for n in chosen if n not in not_fitted]
-        if not chosen:
-            raise CalibrationError("no coefficient has any effect on the chosen responses")
-        problem = problem.narrowed(chosen)
-    n_res = problem.n_residuals
-    if n_res <= len(chosen):
-        raise CalibrationError(f"{len(problem.data.run_ids)} usable run(s) x {len(responses)} response(s) = "
-                               f"{n_res} values cannot determine {len(chosen)} coefficient(s); record more runs")
-    for name, why in SWITCHES.items():
-        not_fitted.setdefault(name, why)
-    start = {n: before[n] for n in chosen}
-    rng = np.random.default_rng(seed)
-    pred0, _ = problem.predict(start)
-    u = _fit(problem, start, starts, rng, progress)
-    stated = set((noise or {}).keys())
-    known = stated == set(responses)
-    if not known:
-        problem.scales.update({r: s for r, s in _reweight(problem, u).items() if r not in stated})
-        u = _least_squares(problem, u, progress, "reweighted, ").x
-    r_opt = problem.residuals(u)
-    dof = n_res - len(chosen)
-    chi2_dof = float(r_opt @ r_opt) / dof
-    sigma2 = 1.0 if known else chi2_dof
-    if known and chi2_dof > 2.0:
-        notes.append(f"the residuals are larger than the stated noise (chi^2 per degree of freedom "
-                     f"{chi2_dof:.2g}): the intervals assume the stated noise and are too narrow; "
-                     "model-form error or understated noise")
-    J = problem.jacobian(u, central=True)
-    se, corr, active = _laplace(J, sigma2, problem.width)
-    quantile = float(stats.norm.ppf(0.975) if known else stats.t.ppf(0.975, dof))
-    estimates = _estimates(problem, u, before, se, corr, active, quantile)
-    pred1, _ = problem.predict(problem.physical(u))
-    obs = problem.data.observed
-    if excluded:
-        notes.append(f"{len(excluded)} run(s) left out: the model cannot evaluate them")
-    notes.append("calibrated coefficients are effective values that also absorb the model's form error; "
-                 "they are not physical measurements")
+    estimates = _estimates(problem, post.u, before, post.std_error, post.correlation, post.active, post.quantile)
+    pred1, _ = problem.predict(problem.physical(post.u))
+    obs, known = problem.data.observed, stated == set(responses)
     return Calibration(
-        study=study_name, before=before, estimates=estimates, correlation=corr, not_fitted=not_fitted,
+        study=study_name, before=before, estimates=estimates, correlation=post.correlation, not_fitted=not_fitted,
         units={r: units.get(r, OUTPUTS[r][0]) for r in responses}, scales=dict(problem.scales),
         noise="stated" if known else "estimated",
         discrepancy_before={r: Discrepancy.of(obs[r], pred0[r]) for r in responses},
         discrepancy_after={r: Discrepancy.of(obs[r], pred1[r]) for r in responses},
-        runs=list(problem.data.run_ids), excluded=excluded, sigma2=sigma2, chi2_dof=chi2_dof, dof=dof,
-        evaluations=problem.evaluations, starts=starts, seed=0 if seed is None else int(seed),
-        elapsed_s=time.monotonic() - t0, notes=notes)
+        runs=list(problem.data.run_ids), excluded=excluded, sigma2=post.sigma2, chi2_dof=post.chi2_dof,
+        dof=post.dof, evaluations=problem.evaluations, starts=starts, seed=None if seed is None else int(seed), elapsed_s=time.monotonic() - t0,
+        notes=_notes(post, known, excluded))
 
 
 def calibrate_study(study, results, model_study=None, **options) -> Calibration:
