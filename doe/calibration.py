@@ -64,7 +64,7 @@ from .errors import CalibrationError, DoeError, where
 
 __all__ = ["Calibration", "CoefficientEstimate", "Discrepancy", "calibrate", "calibrate_study",
            "builtin_settings_for", "load_calibration", "read_calibrated_coefficients", "FITTABLE", "SWITCHES",
-           "FORMAT", "parse_names", "parse_noise"]
+           "FORMAT", "parse_names", "parse_noise", "synthetic_results"]
 
 #: Value of the JSON key ``format`` of a saved calibration.
 FORMAT = "doe-calibration-1"
@@ -850,3 +850,49 @@ def parse_noise(text: str | None) -> dict | None:
         if not sep or not name.strip():
             raise CalibrationError(f"--noise {item.strip()!r}: write RESPONSE=STD, e.g. cla_total=0.004")
     return out
+
+
+# ---------------------------------------------------------------------------
+def synthetic_results(study, truth: dict, noise: dict | None = None, runs: int | None = None, seed=0):
+    """Invented results of a study's builtin model with some coefficients changed, plus Gaussian noise.
+
+    For checking, before anything is recorded, what a calibration with this
+    plan and these responses can determine (and for tests). The rows are
+    labelled ``source = "invented"``.
+
+    Parameters
+    ----------
+    study : Study
+        Its builtin settings (:func:`builtin_settings_for`), space and responses.
+    truth : dict of str to float
+        Coefficients to change (the invented truth).
+    noise : dict of str to float, optional
+        One standard deviation of Gaussian noise per response, its unit; none when omitted.
+    runs : int, optional
+        Runs of the maximin Latin hypercube (default: the study's plan size).
+    seed : int
+        Seed of the plan and of the noise.
+
+    Returns
+    -------
+    ResultsTable
+    """
+    from .plans import make_plan
+    from .results import ResultsTable
+
+    settings, conversion = builtin_settings_for(study)
+    try:
+        co = replace(settings.coefficients, **truth)
+    except TypeError as exc:
+        raise CalibrationError(f"truth names an unknown coefficient ({exc})") from exc
+    plan = make_plan(study.space, runs if runs is not None else study.plan.runs, seed).frame
+    out = RearPackageModel(replace(settings, coefficients=co)).evaluate(
+        {p: plan[p].to_numpy(float) * f for p, f in conversion.items()})
+    rng = np.random.default_rng(seed)
+    frame = plan.copy()
+    for r in study.response_names:
+        sd = (noise or {}).get(r, 0.0)
+        frame[r] = out.values[r] + (rng.normal(0.0, sd, len(frame)) if sd > 0 else 0.0)
+    frame["status"] = np.where(out.ok, "ok", "failed")
+    frame["source"] = "invented"
+    return ResultsTable(frame, study.space.names, study.response_names)

@@ -11,19 +11,16 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import replace
 
 import numpy as np
-import pandas as pd
 import pytest
 
-from doe.aero.model import COEFFICIENT_RANGES, RearPackageModel
+from doe.aero.model import COEFFICIENT_RANGES
 from doe.calibration import (CORRELATION_LIMIT, builtin_settings_for, calibrate, load_calibration, parse_noise,
-                             read_calibrated_coefficients)
+                             read_calibrated_coefficients, synthetic_results)
 from doe.cli import main
 from doe.errors import CalibrationError, DoeError, StudyError
 from doe.evaluators import make_evaluator
-from doe.plans import make_plan
 from doe.results import ResultsTable, read_results, write_plan
 from doe.study import load_study, read_study_text
 
@@ -82,16 +79,7 @@ def model_study(tmp_path_factory):
 
 def _synthetic(study, truth, noise=None, runs=RUNS, seed=SEED) -> ResultsTable:
     """Results of the builtin model with ``truth`` coefficients at a maximin Latin hypercube, plus noise."""
-    settings, conv = builtin_settings_for(study)
-    plan = make_plan(study.space, runs, seed).frame
-    model = RearPackageModel(replace(settings, coefficients=replace(settings.coefficients, **truth)))
-    out = model.evaluate({p: plan[p].to_numpy() * f for p, f in conv.items()})
-    rng = np.random.default_rng(seed)
-    frame = plan.copy()
-    for r in study.response_names:
-        frame[r] = out.values[r] + (rng.normal(0.0, noise[r], runs) if noise else 0.0)
-    frame["status"], frame["source"] = "ok", "cfd"
-    return ResultsTable(frame, study.space.names, study.response_names)
+    return synthetic_results(study, truth, noise, runs, seed)
 
 
 @pytest.fixture(scope="module")
