@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import time
+from pathlib import Path
 
 import numpy as np
 
@@ -9,44 +10,17 @@ from doe.aero.model import COEFFICIENT_RANGES
 from doe.calibration import builtin_settings_for, calibrate, synthetic_results
 from doe.study import read_study_text
 
-STUDY = """
-[study]
-name = "bench-calibration"
-[[parameters]]
-name = "flap_angle"
-unit = "deg"
-low = 10.0
-high = 40.0
-[[parameters]]
-name = "wing_aoa"
-unit = "deg"
-low = 0.0
-high = 16.0
-[[parameters]]
-name = "wing_height"
-unit = "mm"
-low = 60.0
-high = 200.0
-[[responses]]
-name = "cla_total"
-unit = "m^2"
-[[responses]]
-name = "cda_total"
-unit = "m^2"
-[[responses]]
-name = "cla_front"
-unit = "m^2"
-[evaluator]
-kind = "builtin"
-speed = 44.0
-"""
+ROOT = Path(__file__).resolve().parents[1]
+#: The builtin model behind the invented CFD example (default panels), with cla_front as a third response.
+STUDY = (ROOT / "studies" / "recorded_cfd_model.toml").read_text().replace(
+    "\n[evaluator]\n", '[[responses]]\nname = "cla_front"\nunit = "m^2"\n\n[evaluator]\n')
 #: The invented truth (defaults 0.12, -0.15, 0.88, 0.18) and the stated noise, m^2.
 TRUTH = {"body_3d_factor": 0.16, "base_pressure": -0.20, "viscous_lift_factor": 0.82, "forebody_cd": 0.21}
 NOISE = {"cla_total": 0.004, "cda_total": 0.002, "cla_front": 0.003}
 
 
 def run(quick: bool) -> list[str]:
-    study = read_study_text(STUDY, "bench.toml")
+    study = read_study_text(STUDY, ROOT / "studies" / "bench.toml")
     settings, conversion = builtin_settings_for(study)
     lines = ["## Calibration of the builtin model", "",
              "Invented results of the builtin model (default panels) with the coefficients of the first column "

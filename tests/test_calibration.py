@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -24,34 +25,10 @@ from doe.evaluators import make_evaluator
 from doe.results import ResultsTable, read_results, write_plan
 from doe.study import load_study, read_study_text
 
-HEAD = """
-[study]
-name = "{name}"
-[[parameters]]
-name = "flap_angle"
-unit = "deg"
-low = 10.0
-high = 40.0
-[[parameters]]
-name = "wing_aoa"
-unit = "deg"
-low = 0.0
-high = 16.0
-[[parameters]]
-name = "wing_height"
-unit = "mm"
-low = 60.0
-high = 200.0
-[[responses]]
-name = "cla_total"
-unit = "m^2"
-[[responses]]
-name = "cda_total"
-unit = "m^2"
-[[responses]]
-name = "cla_front"
-unit = "m^2"
-"""
+ROOT = Path(__file__).resolve().parents[1]
+#: The builtin model behind the invented CFD example (three knobs, cla_total and cda_total), plus cla_front.
+SHIPPED = (ROOT / "studies" / "recorded_cfd_model.toml").read_text()
+CLA_FRONT = '[[responses]]\nname = "cla_front"\nunit = "m^2"\n'
 COARSE = """
 [evaluator]
 kind = "builtin"
@@ -60,7 +37,14 @@ wing_panels = 20
 flap_panels = 2
 speed = 44.0
 """
-MODEL_STUDY = HEAD.format(name="t-calib-model") + COARSE
+
+
+def _head(name: str) -> str:
+    """The shipped study's name, parameters and responses (no evaluator), renamed, with cla_front."""
+    return SHIPPED.split("\n[evaluator]\n")[0].replace('"recorded-cfd-model"', f'"{name}"') + CLA_FRONT
+
+
+MODEL_STUDY = _head("t-calib-model") + COARSE
 
 #: The synthetic truth: three coefficients moved well away from their defaults (0.12, -0.15, 0.88).
 TRUTH = {"body_3d_factor": 0.16, "base_pressure": -0.20, "viscous_lift_factor": 0.82}
@@ -228,7 +212,7 @@ def test_parse_noise():
 
 
 def test_recorded_study_without_builtin_model_is_a_clear_error(tmp_path):
-    study = read_study_text(HEAD.format(name="t-rec") + '[evaluator]\nkind = "recorded"\nfile = "r.csv"\n',
+    study = read_study_text(_head("t-rec") + '[evaluator]\nkind = "recorded"\nfile = "r.csv"\n',
                             tmp_path / "rec.toml")
     with pytest.raises(CalibrationError, match=r"add a \[low_fidelity\] table with kind = \"builtin\""):
         builtin_settings_for(study)
@@ -241,7 +225,7 @@ def cli_files(tmp_path_factory, model_study):
     folder = tmp_path_factory.mktemp("calib_cli")
     data = _synthetic(model_study, TRUTH, runs=16)               # noise-free: the calibrated model is the truth
     write_plan(data.frame, folder / "cfd.csv")
-    (folder / "rec.toml").write_text(HEAD.format(name="t-rec") + '[evaluator]\nkind = "recorded"\nfile = "cfd.csv"\n')
+    (folder / "rec.toml").write_text(_head("t-rec") + '[evaluator]\nkind = "recorded"\nfile = "cfd.csv"\n')
     (folder / "model.toml").write_text(MODEL_STUDY)
     out = folder / "out" / "cal.json"
     rc = main(["calibrate", str(folder / "rec.toml"), "--results", str(folder / "cfd.csv"), "--model-study",
