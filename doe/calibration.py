@@ -375,7 +375,9 @@ class _Problem:
         predicted, ok = self.predict(self.physical(u))
         parts = [(self.data.observed[r] - predicted[r]) / self.scales[r] for r in self.data.observed]
         r = np.concatenate(parts)
-        if not ok.all():         # rare: a run the model evaluated at the start fails here; push away from it
+        if not ok.all():
+            # rare: a run the model evaluated at the start has an undefined response here (e.g. a balance
+            # with no net vertical load); a large residual steers the search away from such coefficients
             r = np.where(np.isfinite(r), r, 1e3)
         return r
 
@@ -465,13 +467,12 @@ def _scales(data: _Data, noise: dict | None) -> dict:
 
 def _screen(problem: _Problem, start: dict) -> dict:
     """Largest change of any scaled response over each coefficient's whole range, others at ``start``."""
-    base, _ = problem.predict(start)
     effects = {}
     for name in problem.names:
         lo, hi = COEFFICIENT_RANGES[name]
         ends = [problem.predict({**start, name: v})[0] for v in (lo, hi)]
         effects[name] = max(float(np.nanmax(np.abs(ends[1][r] - ends[0][r]))) / problem.scales[r]
-                            for r in base)
+                            for r in problem.data.observed)
     return effects
 
 

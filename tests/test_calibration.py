@@ -9,6 +9,8 @@ not depend on the panel count: truth and fit use the same model).
 """
 from __future__ import annotations
 
+import contextlib
+import io
 import json
 import math
 from pathlib import Path
@@ -218,6 +220,27 @@ def test_recorded_study_without_builtin_model_is_a_clear_error(tmp_path):
         builtin_settings_for(study)
 
 
+class _WithLowFidelity:
+    """A study with a ``low_fidelity`` table (the attribute builtin_settings_for looks for)."""
+
+    def __init__(self, study, low):
+        self._study, self.low_fidelity = study, low
+
+    def __getattr__(self, name):
+        return getattr(self._study, name)
+
+
+def test_low_fidelity_table_gives_the_builtin_settings(tmp_path):
+    from doe.study import EvaluatorSettings
+    from doe.tables import Source
+
+    study = read_study_text(_head("t-rec") + '[evaluator]\nkind = "recorded"\nfile = "r.csv"\n', tmp_path / "rec.toml")
+    low = EvaluatorSettings("builtin", {"body_panels": 40, "speed": 44.0}, Source(study.path))
+    settings, conversion = builtin_settings_for(_WithLowFidelity(study, low))
+    assert settings.body_panels == 40 and settings.speed == 44.0
+    assert conversion == {"flap_angle": 1.0, "wing_aoa": 1.0, "wing_height": 1.0}
+
+
 # ---------------------------------------------------------------------------
 # the CLI and the calibrated evaluator
 @pytest.fixture(scope="module")
@@ -228,14 +251,18 @@ def cli_files(tmp_path_factory, model_study):
     (folder / "rec.toml").write_text(_head("t-rec") + '[evaluator]\nkind = "recorded"\nfile = "cfd.csv"\n')
     (folder / "model.toml").write_text(MODEL_STUDY)
     out = folder / "out" / "cal.json"
-    rc = main(["calibrate", str(folder / "rec.toml"), "--results", str(folder / "cfd.csv"), "--model-study",
-               str(folder / "model.toml"), "--coefficients", ",".join(TRUTH), "--no-progress", "--out", str(out)])
-    return folder, out, rc
+    err, printed = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stderr(err), contextlib.redirect_stdout(printed):
+        rc = main(["calibrate", str(folder / "rec.toml"), "--results", str(folder / "cfd.csv"), "--model-study",
+                   str(folder / "model.toml"), "--coefficients", ",".join(TRUTH), "--out", str(out)])
+    return folder, out, rc, err.getvalue(), printed.getvalue()
 
 
-def test_cli_writes_the_calibration(cli_files, capsys):
-    folder, out, rc = cli_files
+def test_cli_writes_the_calibration(cli_files, model_study):
+    folder, out, rc, err, printed = cli_files
     assert rc == 0
+    assert "calibrate: iteration 1, cost" in err                 # one progress line per iteration
+    assert "body_3d_factor" in printed and "cla_total [m^2]" in printed and f"wrote {out}" in printed
     data = json.loads(out.read_text())
     for key in ("format", "study", "coefficients", "coefficients_before", "fitted", "correlation", "responses",
                 "runs", "noise", "fit", "notes"):
@@ -246,10 +273,12 @@ def test_cli_writes_the_calibration(cli_files, capsys):
     assert set(data["responses"]["cla_total"]["after"]) == {"bias", "rms", "max_abs", "r2"}
     back = load_calibration(out)
     assert back.to_json() == data
+    co = back.evaluator(model_study).model.settings.coefficients
+    assert co.body_3d_factor == pytest.approx(TRUTH["body_3d_factor"], abs=1e-6)
 
 
 def test_study_with_calibration_evaluates_with_calibrated_coefficients(cli_files):
-    folder, out, _ = cli_files
+    folder, out = cli_files[:2]
     text = MODEL_STUDY.replace('kind = "builtin"', 'kind = "builtin"\ncalibration = "out/cal.json"')
     (folder / "calibrated.toml").write_text(text)
     study = load_study(folder / "calibrated.toml")
@@ -265,7 +294,7 @@ def test_study_with_calibration_evaluates_with_calibrated_coefficients(cli_files
 
 
 def test_explicit_coefficients_win_over_the_calibration(cli_files):
-    folder, _, _ = cli_files
+    folder = cli_files[0]
     text = MODEL_STUDY.replace('kind = "builtin"', 'kind = "builtin"\ncalibration = "out/cal.json"')
     study = read_study_text(text + "[evaluator.coefficients]\nbase_pressure = -0.3\n", folder / "explicit.toml")
     co = make_evaluator(study).model.settings.coefficients
@@ -291,7 +320,7 @@ def test_read_calibrated_coefficients_rejects_unknown_names(tmp_path):
 
 
 def test_cli_error_exits_2(cli_files, capsys):
-    folder, _, _ = cli_files
+    folder = cli_files[0]
     rc = main(["calibrate", str(folder / "rec.toml"), "--results", str(folder / "cfd.csv"), "--no-progress"])
     assert rc == 2
     err = capsys.readouterr().err.strip()
