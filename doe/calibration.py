@@ -518,8 +518,8 @@ def _laplace(J: np.ndarray, sigma2: float, width: np.ndarray) -> tuple[np.ndarra
     """Standard errors (physical units), correlation, and which coefficients have any effect.
 
     Posterior covariance ``sigma^2 (J^T J)^-1`` in unit coordinates, scaled by
-    each range (Laplace approximation with a flat prior [3]_; the linearised
-    covariance of Bates & Watts 1988, ch. 2 [2]_).
+    each range (Laplace approximation with a flat prior, Tierney & Kadane 1986;
+    the linearised covariance of nonlinear regression, Bates & Watts 1988).
     """
     A = J.T @ J
     d = np.diag(A)

@@ -304,7 +304,7 @@ def _cmd_robust(args):
 def _add_calibrate(sub):
     p = sub.add_parser("calibrate", help="fit the builtin model's empirical coefficients to recorded results",
                        description="Fit the builtin model's empirical coefficients (doe.aero.Coefficients) to the ok "
-                                   "runs of a results CSV by bounded least squares, with Laplace (linearised) 95 %% "
+                                   "runs of a results CSV by bounded least squares, with Laplace (linearised) 95 % "
                                    "intervals, correlations, a plain statement of what the data do not determine, "
                                    "and the discrepancy per response before and after. The model's settings come "
                                    "from the study's [evaluator] when it is builtin, else its [low_fidelity] table, "

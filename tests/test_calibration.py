@@ -4,7 +4,7 @@ The check from outside the fit itself is recovery of a known truth: a synthetic 
 the builtin model with some coefficients changed, plus Gaussian noise of stated size; the calibration
 must find the changed values, its Laplace 95 % intervals must cover them, and what it leaves must be
 the noise. Intervals: the linearised (Laplace) posterior of Bates & Watts 1988, Nonlinear Regression
-Analysis and Its Applications, ch. 2. Coarse panels keep every model call cheap (the recovery does
+Analysis and Its Applications. Coarse panels keep every model call cheap (the recovery does
 not depend on the panel count: truth and fit use the same model).
 """
 from __future__ import annotations
