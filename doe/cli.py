@@ -118,6 +118,11 @@ def _add_results_options(p, results_required: bool = True):
     p.add_argument("--results", type=Path, required=results_required, help="results CSV")
     p.add_argument("--seed", type=int, help="seed (default: the study's [plan] seed)")
     p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
+    p.add_argument("--fidelity", choices=("auto", "single", "two"),
+                   help="two: lean on the study's [low_fidelity] cheap model (two-fidelity surrogates); single: "
+                        "the results alone (default: [fit] fidelity, auto = two when [low_fidelity] exists)")
+    p.add_argument("--cheap-results", type=Path, metavar="CSV",
+                   help="results file of the cheap model's runs (made or resumed; default: <results>.low.csv)")
 
 
 def _study_results(args):
@@ -132,11 +137,13 @@ def _study_results(args):
 
 def _surrogates(args, study, results, seed):
     """Surrogates loaded from ``--surrogate`` when given, else fitted to the results."""
-    from .surrogate import fit_surrogates, load_surrogates
+    from .cheapruns import study_surrogates
+    from .surrogate import load_surrogates
 
     if getattr(args, "surrogate", None):
         return load_surrogates(args.surrogate, study)
-    return fit_surrogates(study, results, seed=seed)
+    return study_surrogates(study, results, seed=seed, fidelity=args.fidelity, cheap_path=args.cheap_results,
+                            say=_say)
 
 
 def _add_fit(sub):
@@ -195,6 +202,7 @@ def _add_next(sub):
 
 def _cmd_next(args):
     from .adaptive import propose_runs
+    from .nestedplan import is_two_fidelity, nested_runs
     from .results import read_plan, write_plan
 
     study, results, seed = _study_results(args)
@@ -206,7 +214,15 @@ def _cmd_next(args):
                             avoid=results.failed[study.space.names].to_numpy(float), taken_ids=taken, seed=seed)
     out = args.out or study.default_output / "next.csv"
     write_plan(proposal.frame, out)
-    _write_json(proposal.record(), out.with_suffix(".why.json"))
+    record = proposal.record()
+    if is_two_fidelity(sset):
+        cheap, savings = nested_runs(study, sset, proposal, seed)
+        write_plan(cheap, out.with_suffix(".cheap.csv"))
+        record["two_fidelity"] = {**savings, "cheap_plan": str(out.with_suffix(".cheap.csv"))}
+        _say(f"note: {savings['statement']}")
+        _say(f"note: {savings['cheap_fit']}")
+        print(f"wrote {out.with_suffix('.cheap.csv')} (the cheap runs at the proposed points: a nested plan)")
+    _write_json(record, out.with_suffix(".why.json"))
     for note in proposal.notes:
         _say(f"note: {note}")
     for pick in proposal.picks:
@@ -250,12 +266,10 @@ def _cmd_sensitivity(args):
         print(f"inert for every response: {', '.join(screening.inert) or 'none'}")
         print(f"wrote {out}")
         return
-    surrogates = None
-    if args.surrogate is not None:
-        from .surrogate import load_surrogates
-
-        surrogates = load_surrogates(args.surrogate, study)
     results = read_results(args.results, study, accept_outside=args.accept_outside) if args.results else None
+    surrogates = None
+    if args.surrogate is not None or (results is not None and not args.direct):
+        surrogates = _surrogates(args, study, results, args.seed if args.seed is not None else study.plan.seed)
     result = ss.study_sensitivity(study, results, direct=args.direct, around=ss.parse_around(args.around, study),
                                   second_order=args.second_order or None, base_samples=args.base_samples,
                                   seed=args.seed, surrogates=surrogates, max_evaluations=args.max_evaluations)
@@ -352,6 +366,11 @@ def _add_report(sub):
                                             "the report goes to its report/ subfolder")
     p.add_argument("--next-runs", type=int, default=None, help="runs to propose for the next round (default 4; 0: none)")
     p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
+    p.add_argument("--fidelity", choices=("auto", "single", "two"),
+                   help="two: lean on the study's [low_fidelity] cheap model (two-fidelity surrogates); single: "
+                        "the results alone (default: [fit] fidelity, auto = two when [low_fidelity] exists)")
+    p.add_argument("--cheap-results", type=Path, metavar="CSV",
+                   help="results file of the cheap model's runs (made or resumed; default: <results>.low.csv)")
     p.set_defaults(func=_cmd_report)
 
 
@@ -362,7 +381,8 @@ def _cmd_report(args):
     study = load_study(args.study)
     files = StudyFiles(args.out or study.default_output)
     k = NEXT_RUNS_DEFAULT if args.next_runs is None else args.next_runs
-    index = analyse_and_report(study, args.results, files, next_runs=k, accept_outside=args.accept_outside)
+    index = analyse_and_report(study, args.results, files, next_runs=k, accept_outside=args.accept_outside,
+                               fidelity=args.fidelity, cheap_path=args.cheap_results)
     print(f"wrote {index}")
 
 

@@ -31,6 +31,16 @@ Keys of each response (units in brackets):
                                ``chosen``
 ``log_marginal_likelihood``    of the kept kernel, normalised data [-]
 ``fit_seconds``                wall time of the fit [s]
+``fidelity``                   ``"single"`` (the runs alone) or ``"two"`` (the runs as the expensive
+                               level over a cheap model, :mod:`doe.twofidelity`); for ``"two"`` the
+                               kernel, length scales and noise above are the discrepancy's, and the
+                               leave-one-out figures are over the expensive runs
+``two_fidelity``               only when ``fidelity`` is ``"two"``: ``rho`` (scale of the cheap model
+                               [-]), ``cheap_runs``, ``cheap_q2_loo`` (the cheap runs' own fit [-]),
+                               ``cheap_kernel``, ``single_fidelity_q2_loo`` (the expensive runs fitted
+                               alone [-], for comparison), ``nested_points`` (expensive points with a
+                               cheap run at the same point), ``rho_profile`` (each ``rho`` tried and
+                               the discrepancy's log marginal likelihood [-])
 =============================  ===============================================================
 
 Verdict rules, in this order:
@@ -181,6 +191,9 @@ def response_report(model, sset, name: str) -> dict:
 
     points = [{"run_ids": [ids[i] for i in g], "observed": float(o), "predicted": float(p), "std": float(s)}
               for g, o, p, s in zip(model.groups_, loo.observed, loo.predicted, loo.std)]
+    extra = {"fidelity": getattr(model, "fidelity", "single")}
+    if extra["fidelity"] == "two":
+        extra["two_fidelity"] = model.two_fidelity_record()
     return {
         "unit": sset.units[name],
         "q2_loo": _num(loo.q2), "rmse_loo": _num(loo.rmse),
@@ -201,6 +214,7 @@ def response_report(model, sset, name: str) -> dict:
         "candidates": model.candidates_,
         "log_marginal_likelihood": _num(model.log_marginal_likelihood_),
         "fit_seconds": float(model.fit_seconds_),
+        **extra,
     }
 
 

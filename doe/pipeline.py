@@ -11,7 +11,8 @@ step                file                       made from
 ==================  =========================  ==================================
 plan                ``plan.csv`` (+ quality)   the study file
 evaluate            ``results.csv``            the plan (resumes run by run)
-fit                 ``surrogate/fit.json``     the results
+fit                 ``surrogate/fit.json``     the results (and, with two fidelities,
+                                               ``cheap_results.csv``: the cheap runs)
 sensitivity         ``sensitivity.json``       the surrogates
 robust, trade-off   ``robust.json``,           the surrogates
                     ``tradeoff.csv``
@@ -54,6 +55,10 @@ class StudyFiles:
     @property
     def results(self) -> Path:
         return self.root / "results.csv"
+
+    @property
+    def cheap_results(self) -> Path:
+        return self.root / "cheap_results.csv"
 
     @property
     def cases(self) -> Path:
@@ -164,10 +169,13 @@ def run_study(study, out=None, jobs: int = 1, scheduler: str | None = None, prog
 
 
 def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_runs: int = NEXT_RUNS_DEFAULT,
-                       accept_outside: bool = False) -> Path:
+                       accept_outside: bool = False, fidelity: str | None = None, cheap_path=None) -> Path:
     """Fit, sensitivity, robust settings, next runs and the report from a results CSV.
 
     Steps whose file is newer than its inputs are reused. Returns the report's ``index.html``.
+    ``fidelity`` overrides ``[fit] fidelity``; ``cheap_path`` is the cheap
+    runs' results file of a two-fidelity fit (default ``cheap_results.csv``
+    in the output folder).
     """
     from .report import ReportInputs, build_report
     from .results import read_results
@@ -177,7 +185,7 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
     results = read_results(results_path, study, accept_outside=accept_outside)
     if len(results.ok) < 3:
         raise DoeError(f"{results_path}: only {len(results.ok)} runs worked; a surrogate needs at least 3")
-    sset = _fit_step(study, results, results_path, files, steps)
+    sset = _fit_step(study, results, results_path, files, steps, fidelity, cheap_path)
     sensitivity = _sensitivity_step(study, sset, files, steps)
     robust, tradeoff = _robust_step(study, sset, results, files, steps)
     next_plan, reasons, next_note = _next_step(study, sset, results, files, next_runs, steps)
@@ -187,6 +195,8 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
         "plan.csv": (files.plan, "the plan: run_id and one column per parameter (study units)"),
         "plan.quality.json": (files.plan_quality, "space-filling figures of the plan (unit cube)"),
         "results.csv": (results_path, "every run: parameters, responses (their units), status, source, message"),
+        "cheap_results.csv": (files.cheap_results, "runs of the cheap [low_fidelity] model (same columns), when "
+                                                   "the fit uses two fidelities"),
         "fit.json": (files.fit, "surrogate accuracy per response: q2_loo (-), rmse_loo (response unit), verdict"),
         "sensitivity.json": (files.sensitivity, "Sobol indices per response and parameter, 95 % half-widths"),
         "robust.json": (files.robust, "nominal and robust settings, spreads, limit probabilities, fragility"),
@@ -203,14 +213,17 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
     return index
 
 
-def _fit_step(study, results, results_path: Path, files: StudyFiles, steps):
-    from .surrogate import fit_surrogates, load_surrogates
+def _fit_step(study, results, results_path: Path, files: StudyFiles, steps, fidelity=None, cheap_path=None):
+    from .cheapruns import study_surrogates, wants_two_fidelity
+    from .surrogate import load_surrogates
 
-    if _fresh(files.fit, results_path, study.path or results_path):
+    two = wants_two_fidelity(study, fidelity)
+    cheap_path = Path(cheap_path) if cheap_path is not None else files.cheap_results
+    if _fresh(files.fit, results_path, study.path or results_path, cheap_path) and (not two or cheap_path.exists()):
         sset = load_surrogates(files.surrogate, study)
         steps("fit", f"reusing {files.surrogate}")
         return sset
-    sset = fit_surrogates(study, results, seed=study.plan.seed)
+    sset = study_surrogates(study, results, seed=study.plan.seed, fidelity=fidelity, cheap_path=cheap_path, say=_say)
     sset.save(files.surrogate)
     verdicts = ", ".join(f"{n} {r['verdict']} (q2 {r['q2_loo'] if r['q2_loo'] is None else round(r['q2_loo'], 3)})"
                          for n, r in sset.fit_report().items())

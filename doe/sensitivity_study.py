@@ -250,9 +250,9 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
     if surrogates is None:
         if results is None:
             raise SensitivityError(f"{study.name}: the surrogate route needs results (or use the direct route)")
-        from .surrogate import fit_surrogates
+        from .cheapruns import study_surrogates
 
-        surrogates = fit_surrogates(study, results, seed=seed)
+        surrogates = study_surrogates(study, results, seed=seed, progress=False)
     model, paths = surrogate_callables(surrogates)
     return sobol_indices(model, inputs, paths=paths, n_paths=cfg.paths, **options)
 

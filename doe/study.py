@@ -68,7 +68,7 @@ from .tables import NAME_PATTERN, REQUIRED, Source, Table
 from .vehicle import DRIVES, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle
 
 __all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "SensitivitySettings", "ResponseLimit",
-           "RobustSettings", "VehicleSettings", "Study", "load_study", "read_study_text",
+           "RobustSettings", "VehicleSettings", "LowFidelitySettings", "Study", "load_study", "read_study_text",
            "RESERVED_COLUMNS", "GOALS", "PLAN_METHODS"]
 
 #: Column names a parameter or response may not take.
@@ -155,6 +155,11 @@ class FitSettings:
         Standard deviation (natural log) of the log-normal prior on each
         length scale, centred on half the parameter's range; 0 for plain
         maximum likelihood.
+    fidelity : {"auto", "single", "two"}
+        ``two``: a two-fidelity surrogate per response (the results are the
+        expensive level, the ``[low_fidelity]`` model the cheap one, see
+        :mod:`doe.twofidelity`); ``single``: the results alone; ``auto``:
+        ``two`` when the study has a ``[low_fidelity]`` table.
     """
 
     kernel: str = "auto"
@@ -166,6 +171,7 @@ class FitSettings:
     target_q2: float = 0.9
     exact_sources: tuple = ("builtin", "command")
     length_scale_prior: float = 1.5
+    fidelity: str = "auto"
 
 
 @dataclass(frozen=True)
@@ -175,10 +181,42 @@ class EvaluatorSettings:
     kind: str
     options: dict = field(default_factory=dict)
     source: Source | None = field(default=None, compare=False, repr=False)
+    table_name: str = "evaluator"
 
     def table(self) -> Table:
         """The options (all keys but ``kind``) as a checked :class:`~doe.tables.Table`."""
-        return Table(self.options, self.source or Source(None), "evaluator")
+        return Table(self.options, self.source or Source(None), self.table_name)
+
+
+@dataclass(frozen=True)
+class LowFidelitySettings:
+    """``[low_fidelity]``: the cheap model behind a two-fidelity surrogate (see :mod:`doe.twofidelity`).
+
+    Attributes
+    ----------
+    evaluator : EvaluatorSettings
+        ``kind`` (``builtin`` or ``command``) and its options, the same keys
+        as in ``[evaluator]``.
+    runs : int or None
+        Cheap runs spread over the space, besides one at every expensive run
+        (a nested plan); None: :data:`LOW_RUNS_PER_PARAMETER` per parameter,
+        at most :data:`LOW_RUNS_MAX`.
+    seed : int
+        Seed of the cheap runs' plan.
+    """
+
+    evaluator: EvaluatorSettings
+    runs: int | None = None
+    seed: int = 0
+
+    def runs_for(self, dim: int) -> int:
+        """The number of spread cheap runs for ``dim`` parameters."""
+        return self.runs if self.runs is not None else min(LOW_RUNS_PER_PARAMETER * dim, LOW_RUNS_MAX)
+
+
+#: Default cheap runs per parameter of ``[low_fidelity]``, and their cap (a GP fit grows as runs^2 to runs^3).
+LOW_RUNS_PER_PARAMETER = 30
+LOW_RUNS_MAX = 300
 
 
 @dataclass(frozen=True)
@@ -318,6 +356,8 @@ class Study:
         ``[vehicle]``: the car the aero numbers are translated for (optional).
     track : doe.vehicle.Track or None
         ``[track]``: the lap for lap-time estimates (optional).
+    low_fidelity : LowFidelitySettings or None
+        ``[low_fidelity]``: a cheap model of the same responses (optional).
     """
 
     name: str
@@ -332,6 +372,13 @@ class Study:
     robust: "RobustSettings | None" = None
     vehicle: "VehicleSettings | None" = None
     track: Track | None = None
+    low_fidelity: LowFidelitySettings | None = None
+
+    def with_evaluator(self, evaluator: EvaluatorSettings) -> "Study":
+        """The same study with another evaluator (how the ``[low_fidelity]`` model is built and checked)."""
+        from dataclasses import replace
+
+        return replace(self, evaluator=evaluator)
 
     @property
     def folder(self) -> Path:
@@ -403,7 +450,7 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     source = Source(path, text)
     top = Table(data, source, "")
     known = ("study", "parameters", "constraints", "responses", "evaluator", "plan", "fit", "sensitivity", "robust",
-             "vehicle", "track")
+             "vehicle", "track", "low_fidelity")
     unknown = [k for k in data if k not in known]
     if unknown:
         line = source.line_of(unknown[0]) or source.line_of(None, unknown[0])
@@ -437,12 +484,18 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
               if "robust" in data or has_goal else None)
     vehicle = _read_vehicle(_one_table(top, "vehicle"), responses) if "vehicle" in data else None
     track = _read_track(_one_table(top, "track")) if "track" in data else None
+    low = _read_low_fidelity(_one_table(top, "low_fidelity"), plan.seed) if "low_fidelity" in data else None
+    if fit.fidelity == "two" and low is None:
+        raise StudyError(f"{where(path, source.line_of('fidelity'))}: [fit] fidelity = \"two\" needs a "
+                         "[low_fidelity] table (the cheap model)")
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
                   plan=plan, description=description, fit=fit, sensitivity=sensitivity, robust=robust,
-                  vehicle=vehicle, track=track)
+                  vehicle=vehicle, track=track, low_fidelity=low)
     from .evaluators import check_settings  # late import: evaluators build on studies
 
     check_settings(study)
+    if low is not None:
+        check_settings(study.with_evaluator(low.evaluator))
     return study
 
 
@@ -556,6 +609,14 @@ def _read_response(t: Table) -> Response:
 def _read_evaluator(t: Table) -> EvaluatorSettings:
     kind = t.take("kind", str, choices=EVALUATOR_KINDS)
     return EvaluatorSettings(kind=kind, options=t.rest(), source=t.source)
+
+
+def _read_low_fidelity(t: Table, seed: int) -> LowFidelitySettings:
+    kind = t.take("kind", str, choices=("builtin", "command"))
+    runs = t.take("runs", int, default=None, check=lambda v: 3 <= v <= 5000, why="must be between 3 and 5000")
+    seed = t.take("seed", int, default=seed, check=lambda v: 0 <= v < 2**63, why="must be between 0 and 2^63-1")
+    return LowFidelitySettings(EvaluatorSettings(kind=kind, options=t.rest(), source=t.source,
+                                                 table_name="low_fidelity"), runs, seed)
 
 
 def _read_plan(t: Table, dim: int) -> PlanSettings:
@@ -705,8 +766,9 @@ def _read_fit(t: Table) -> FitSettings:
     exact = t.take("exact_sources", list, default=["builtin", "command"],
                    check=lambda v: all(isinstance(x, str) for x in v), why="must be a list of strings")
     prior = t.take("length_scale_prior", float, default=1.5, check=lambda v: 0 <= v <= 10, why="must be in [0, 10]")
+    fidelity = t.take("fidelity", str, default="auto", choices=("auto", "single", "two"))
     t.finish()
-    return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact), prior)
+    return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact), prior, fidelity)
 
 
 def _read_sensitivity(t: Table, parameters) -> SensitivitySettings:

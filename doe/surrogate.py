@@ -605,6 +605,11 @@ class ResponseSurrogate:
         return other
 
     # -- records -----------------------------------------------------------
+    def to_arrays(self) -> dict:
+        """Training data for the NPZ file: ``X`` (unit cube) and ``y`` (response unit)."""
+        self._check_fitted()
+        return {"X": self.X_unit_, "y": self.y_}
+
     def to_record(self) -> dict:
         """Hyperparameters and scaling as plain JSON values (training data go to NPZ)."""
         self._check_fitted()
@@ -768,9 +773,8 @@ class SurrogateSet:
                                      "noise_reason": self.noise_reason.get(name, ""), **m.to_record()}
                               for name, m in self.models.items()}}
         arrays = {}
-        for i, (name, m) in enumerate(self.models.items()):
-            arrays[f"X{i}"] = m.X_unit_
-            arrays[f"y{i}"] = m.y_
+        for i, m in enumerate(self.models.values()):
+            arrays.update({f"{key}{i}": value for key, value in m.to_arrays().items()})
         _atomic_write(folder / "model.json", json.dumps(meta, indent=1, allow_nan=False))
         tmp = folder / "data.tmp.npz"
         np.savez(tmp, **arrays)
@@ -821,13 +825,19 @@ def load_surrogates(folder, study) -> SurrogateSet:
     for i, (name, rec) in enumerate(meta["responses"].items()):
         if f"X{i}" not in arrays or f"y{i}" not in arrays:
             raise SurrogateError(f"{folder}/data.npz: training data of '{name}' are missing")
-        models[name] = ResponseSurrogate.from_record(rec, arrays[f"X{i}"], arrays[f"y{i}"], study.space.names)
+        if rec.get("fidelity") == "two":
+            from .twofidelity import TwoFidelitySurrogate
+
+            mine = {k[:-len(str(i))]: v for k, v in arrays.items() if k.endswith(str(i)) and k[:-len(str(i))].isalpha()}
+            models[name] = TwoFidelitySurrogate.from_record(rec, mine, study.space.names)
+        else:
+            models[name] = ResponseSurrogate.from_record(rec, arrays[f"X{i}"], arrays[f"y{i}"], study.space.names)
         units[name], goals[name], reasons[name] = rec["unit"], rec["goal"], rec.get("noise_reason", "")
     return SurrogateSet(study.space, models, units, goals, list(meta["run_ids"]), float(meta["target_q2"]),
                         str(meta["study"]), reasons)
 
 
-def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
+def fit_surrogates(study, results, seed=0, low_results=None, **options) -> SurrogateSet:
     """Fit one surrogate per response of a study to its ok runs.
 
     Parameters
@@ -838,14 +848,25 @@ def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
         Only ``status == "ok"`` rows are used.
     seed : int
         Seed of the optimiser restarts.
+    low_results : ResultsTable, optional
+        Cheap runs of the study's low-fidelity model (``[low_fidelity]``).
+        With them (and ``fidelity`` not ``"single"``) each response gets a
+        :class:`doe.twofidelity.TwoFidelitySurrogate`: ``results`` are the
+        expensive level.
     **options
         Override ``[fit]`` settings: ``kernel``, ``trend``, ``noise``,
         ``restarts``, ``nugget``, ``selection``, ``target_q2``,
-        ``exact_sources``, ``length_scale_prior``.
+        ``exact_sources``, ``length_scale_prior``, ``fidelity``.
 
     Returns
     -------
     SurrogateSet
+
+    Raises
+    ------
+    SurrogateError
+        No ok runs, a response that cannot be fitted, or ``fidelity = "two"``
+        without cheap runs.
 
     Notes
     -----
@@ -858,6 +879,7 @@ def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
     ok = results.ok
     if len(ok) == 0:
         raise SurrogateError(f"{results.path or 'results'}: no ok runs to fit")
+    two = _two_fidelity(settings["fidelity"], low_results)
     X = study.space.to_unit(results.X())
     given = ok["source"] if "source" in ok.columns else ["recorded"] * len(ok)
     sources = sorted({str(s) for s in given} - set(settings["exact_sources"]))
@@ -867,12 +889,19 @@ def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
     models, reasons = {}, {}
     names = study.space.names
     for k, resp in enumerate(study.responses):
-        model = ResponseSurrogate(kernel=settings["kernel"], trend=settings["trend"], noise=noise,
-                                  restarts=settings["restarts"], nugget=settings["nugget"],
-                                  selection=settings["selection"], seed=int(seed) + 1000 * k, names=names,
-                                  length_scale_prior=settings["length_scale_prior"])
+        options = dict(kernel=settings["kernel"], trend=settings["trend"], noise=noise,
+                       restarts=settings["restarts"], nugget=settings["nugget"], selection=settings["selection"],
+                       seed=int(seed) + 1000 * k, names=names, length_scale_prior=settings["length_scale_prior"])
         try:
-            model.fit(X, results.y(resp.name))
+            if two:
+                from .twofidelity import TwoFidelitySurrogate
+
+                cheap = low_results.ok[np.isfinite(low_results.ok[resp.name].to_numpy(float))]
+                model = TwoFidelitySurrogate(**options).fit(study.space.to_unit(cheap[names].to_numpy(float)),
+                                                            cheap[resp.name].to_numpy(float),
+                                                            X, results.y(resp.name))
+            else:
+                model = ResponseSurrogate(**options).fit(X, results.y(resp.name))
         except SurrogateError as exc:
             raise SurrogateError(f"response '{resp.name}': {exc}") from exc
         models[resp.name] = model
@@ -882,11 +911,21 @@ def fit_surrogates(study, results, seed=0, **options) -> SurrogateSet:
                         study.name, reasons)
 
 
+def _two_fidelity(fidelity: str, low_results) -> bool:
+    """Whether to fit two fidelities (``[fit] fidelity``: auto, single or two)."""
+    if fidelity not in ("auto", "single", "two"):
+        raise SurrogateError(f"fidelity={fidelity!r} is not one of auto, single, two")
+    if fidelity == "two" and (low_results is None or len(low_results.ok) == 0):
+        raise SurrogateError("a two-fidelity fit needs cheap runs: add a [low_fidelity] table to the study "
+                             "(or give them with --low-results)")
+    return fidelity != "single" and low_results is not None and len(low_results.ok) > 0
+
+
 def _settings(study, options) -> dict:
     fit = getattr(study, "fit", None)
     base = {"kernel": "auto", "trend": "auto", "noise": "auto", "restarts": 3, "nugget": DEFAULT_NUGGET,
             "selection": "loo", "target_q2": 0.9, "exact_sources": ("builtin", "command"),
-            "length_scale_prior": DEFAULT_LENGTH_SCALE_PRIOR}
+            "length_scale_prior": DEFAULT_LENGTH_SCALE_PRIOR, "fidelity": "auto"}
     if fit is not None:
         base.update({k: getattr(fit, k) for k in base})
     unknown = set(options) - set(base)
