@@ -93,7 +93,7 @@ def _finite(U, *ys):
 def _two_fidelity_default(seed, **fit):
     from doe.twofidelity import TwoFidelitySurrogate
 
-    return TwoFidelitySurrogate(seed=seed, **fit)
+    return TwoFidelitySurrogate(seed=seed, compare=False, **fit)   # the comparison is made here
 
 
 def runs_to_target(high, low, d, *, n_low, steps, seeds, target=TARGET, n_test=1000, report_at=(),

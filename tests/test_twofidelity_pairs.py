@@ -19,6 +19,9 @@ from scipy.optimize import minimize_scalar
 
 from doe import testfunctions as tf
 from doe.errors import DoeError
+from doe.plans import maximin_lhs
+from doe.surrogate import ResponseSurrogate
+from doe.twofidelity import TwoFidelitySurrogate
 
 RNG_POINTS = np.random.default_rng(20130101).random((25, 8))  # interior points of the unit cube
 
@@ -153,3 +156,77 @@ def test_pairs_share_a_domain_and_unknown_names_fail():
         tf.get_pair("nope")
     with pytest.raises(DoeError, match="shape"):
         tf.currin_low(np.zeros((3, 3)))
+
+
+# --- the two-fidelity surrogate on the published pairs ---------------------------------------
+FAST = dict(kernel="sqexp", trend="constant", restarts=1)   # the same settings for both surrogates
+
+
+def _rmse(model, U, y):
+    return float(np.sqrt(np.mean((model.predict(U) - y) ** 2)))
+
+
+def test_forrester_published_design_recovers_rho_and_beats_high_only():
+    # Forrester, Sobester & Keane 2007, one-variable example: cheap runs at x = 0, 0.1, ..., 1 and
+    # expensive ones at x = 0, 0.4, 0.6, 1 (design as remembered: (memory)). The cheap function is
+    # exactly 0.5 f_high + 10 (x - 0.5) - 5, so high = 2 low - 20 (x - 0.5) + 10: rho = 2 exactly and the
+    # discrepancy is linear.
+    high, low = tf.get_pair("forrester")
+    XL = np.linspace(0, 1, 11)[:, None]
+    XH = np.array([[0.0], [0.4], [0.6], [1.0]])
+    Ut = np.linspace(0, 1, 1001)[:, None]
+    yt = high(Ut)
+    for seed in (0, 1, 2):
+        two = TwoFidelitySurrogate(seed=seed, compare=False).fit(XL, low(XL), XH, high(XH))
+        one = ResponseSurrogate(seed=seed).fit(XH, high(XH))
+        assert two.nested_.all()                         # the expensive points were found among the cheap ones
+        # measured (2026-12-02): rho = 1.9999 for seeds 0-2; 0.02: the likelihood peak is this narrow
+        assert two.rho_ == pytest.approx(2.0, abs=0.02)
+        # measured: RMSE 0.055 with the cheap runs against 5.56 without (std of f on [0, 1] is 4.4),
+        # the same for seeds 0-2; asserted with ~5x headroom on each side
+        assert _rmse(two, Ut, yt) < 0.3
+        assert _rmse(two, Ut, yt) < 0.05 * _rmse(one, Ut, yt)
+
+
+@pytest.mark.xfail(strict=True, reason="the rho search (9-point grid, then Brent around the best grid point) "
+                   "misses the narrow likelihood peak near rho = 2 for these 4-run Latin hypercubes; "
+                   "reported to the lead, remove this mark once fixed")
+def test_forrester_random_designs_find_the_likelihood_peak():
+    # Same exact relation (rho = 2, Forrester et al. 2007). Measured: rho found 0.98, 0.84, 1.07, -0.36
+    # (seeds 1-4) while the discrepancy's log likelihood at rho ~ 1.99 is higher in every case
+    # (-6.1 vs -7.3, -5.8 vs -7.8, -5.5 vs -6.2, -4.5 vs -6.4); held-out q2 0.68, 0.63, 0.65, -0.84.
+    high, low = tf.get_pair("forrester")
+    for seed in (1, 2, 3, 4):
+        Uh = maximin_lhs(4, 1, seed=10_000 * seed + 4)
+        XL = np.vstack([maximin_lhs(11, 1, seed=seed), Uh])
+        two = TwoFidelitySurrogate(seed=seed, compare=False, **FAST).fit(XL, low(XL), Uh, high(Uh))
+        assert two.rho_ == pytest.approx(2.0, abs=0.05)
+
+
+@pytest.mark.parametrize("name, n_low, n_high, worst_ratio, median_ratio", [
+    # measured (2026-12-02, seeds 0-3, 1000 uniform test points): RMSE with / without the cheap runs
+    # Currin 0.20, 0.07, 0.11, 0.09 (RMSE 0.15-0.21 against 1.0-2.1; std of f 2.57);
+    # Park 0.36, 0.30, 0.29, 0.35 (RMSE 0.13-0.17 against 0.43-0.49; std of f 4.61).
+    # Bounds: about 2x the worst measured ratio for each seed and 1.5-2x the median.
+    ("currin", 40, 8, 0.4, 0.2),
+    ("park", 60, 10, 0.6, 0.45),
+])
+def test_cheap_runs_cut_the_error_at_equal_expensive_runs(name, n_low, n_high, worst_ratio, median_ratio):
+    # Pairs of Xiong, Qian & Wu 2013 (Technometrics 55:37), as given by Surjanovic & Bingham's VLSE.
+    # Nested plan: the cheap model is also run at every expensive point (looked up by exact match).
+    high, low = tf.get_pair(name)
+    d = high.dim
+    Ut = np.random.default_rng(99).random((1000, d))
+    yt = high.on_unit(Ut)
+    ratios = []
+    for seed in range(4):
+        Uh = maximin_lhs(n_high, d, seed=100 + seed)
+        XL = np.vstack([maximin_lhs(n_low, d, seed=seed), Uh])
+        two = TwoFidelitySurrogate(seed=seed, compare=False, **FAST).fit(XL, low.on_unit(XL), Uh, high.on_unit(Uh))
+        one = ResponseSurrogate(seed=seed, **FAST).fit(Uh, high.on_unit(Uh))
+        assert two.nested_.all()
+        ratios.append(_rmse(two, Ut, yt) / _rmse(one, Ut, yt))
+        # measured q2 with the cheap runs: >= 0.993 (Currin), >= 0.998 (Park)
+        assert 1 - _rmse(two, Ut, yt) ** 2 / np.var(yt) > 0.98
+    assert max(ratios) < worst_ratio
+    assert np.median(ratios) < median_ratio
