@@ -31,7 +31,7 @@ from __future__ import annotations
 import sys
 import time
 import zlib
-from dataclasses import dataclass, field
+from typing import NamedTuple
 from pathlib import Path
 
 import numpy as np
@@ -50,9 +50,11 @@ FIT = dict(kernel="sqexp", trend="constant", restarts=1)
 METHODS = ("high only", "with low")
 
 
-@dataclass
-class TargetResult:
+class TargetResult(NamedTuple):
     """What :func:`runs_to_target` measured.
+
+    (Named tuples, not dataclasses: ``run_all`` loads benchmark files without
+    registering them in ``sys.modules``, which dataclasses need.)
 
     Attributes
     ----------
@@ -65,13 +67,15 @@ class TargetResult:
     n_low : int
         Cheap runs besides those at the expensive points.
     seconds : float
+    steps : list of int
+        The sizes tried.
     """
 
     needed: dict
     q2: dict
     n_low: int
-    seconds: float = 0.0
-    steps: list = field(default_factory=list)
+    seconds: float
+    steps: list
 
     def median(self, method: str) -> float:
         return float(np.median(self.needed[method]))
@@ -167,8 +171,7 @@ def runs_to_target(high, low, d, *, n_low, steps, seeds, target=TARGET, n_test=1
 
 # ---------------------------------------------------------------------------
 # the cases
-@dataclass
-class Case:
+class Case(NamedTuple):
     """A high/low pair on the unit cube with its benchmark settings."""
 
     name: str
@@ -225,20 +228,26 @@ def _aero_cases(responses, steps, report_at, low_per_input):
         return high, low
 
     d = len(AERO_INPUTS)
-    return [Case(f"built-in model: {r}", d, *pair(r), low_per_input * d, steps, report_at, n_test=300,
-                 note="invented expensive model") for r in responses]
+    return [Case(f"built-in model: {r}", d, *pair(r), low_per_input * d, steps, report_at, n_test=300)
+            for r in responses]
 
 
 def _cases(quick):
+    # report_at keeps fitting past the target up to that size: kept at or below the high-only need, so
+    # that it costs few extra fits (the two-fidelity fit searches rho with ~20 small fits)
     steps_small = (3, 4, 5, 6, 8, 10, 12, 16)
     cases = [_pair_case("forrester", 0, steps_small, (4,), n_low=11,
-                        note="11 cheap runs as in Forrester et al. 2007 (memory)"),
-             _pair_case("currin", 50, (3, 4, 6, 8, 10, 12, 16, 20, 24, 32, 40), (6, 10))]
+                        note="11 cheap runs as in Forrester et al. 2007 (memory), here on a Latin hypercube. With "
+                             "4 expensive runs the rho search of doe.twofidelity often stops at a lower likelihood "
+                             "than that near the exact rho = 2 (strict xfail in tests/test_twofidelity_pairs.py); "
+                             "on the paper's evenly spaced plan (expensive runs at 0, 0.4, 0.6, 1) it finds "
+                             "rho = 2.000 and a held-out q2 of 0.9998"),
+             _pair_case("currin", 50, (3, 4, 6, 8, 10, 12, 16, 20, 24, 32, 40), (6,) if quick else (6, 10))]
     if not quick:
-        cases += [_pair_case("park", 40, (4, 6, 8, 10, 12, 16, 20, 24, 32, 40), (8, 16)),
-                  _pair_case("borehole", 20, (3, 4, 6, 8, 10, 12, 16, 20, 24, 32), (6, 10))]
+        cases += [_pair_case("park", 40, (4, 6, 8, 10, 12, 16, 20, 24, 32, 40), (8,)),
+                  _pair_case("borehole", 20, (3, 4, 6, 8, 10, 12, 16, 20, 24, 32), (6,))]
     cases += _aero_cases(("cla_total",) if quick else ("cla_total", "cda_total"),
-                         (3, 4, 6, 8, 10, 12, 16, 20, 24, 32, 40), (8, 16), 20)
+                         (3, 4, 6, 8, 10, 12, 16, 20, 24, 32, 40), (8,), 20)
     return cases
 
 
