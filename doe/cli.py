@@ -315,6 +315,45 @@ def _cmd_robust(args):
         print(f"wrote {target}")
 
 
+def _add_calibrate(sub):
+    p = sub.add_parser("calibrate", help="fit the builtin model's empirical coefficients to recorded results",
+                       description="Fit the builtin model's empirical coefficients (doe.aero.Coefficients) to the ok "
+                                   "runs of a results CSV by bounded least squares, with Laplace (linearised) 95 % "
+                                   "intervals, correlations, a plain statement of what the data do not determine, "
+                                   "and the discrepancy per response before and after. The model's settings come "
+                                   "from the study's [evaluator] when it is builtin, else its [low_fidelity] table, "
+                                   "else --model-study. Writes the calibration JSON; a builtin study uses it with "
+                                   "[evaluator] calibration = \"calibration.json\".")
+    _add_results_options(p)
+    p.add_argument("--coefficients", metavar="A,B", help="coefficients to fit (default: every one the responses "
+                                                         "are sensitive to)")
+    p.add_argument("--responses", metavar="A,B", help="responses to match (default: the study's)")
+    p.add_argument("--noise", metavar="R=STD,...", help="stated noise (one standard deviation, the response's unit) "
+                                                       "per response; default: estimated from the residuals")
+    p.add_argument("--model-study", type=Path, metavar="OTHER_TOML", help="a builtin study giving the model's settings")
+    p.add_argument("--starts", type=int, default=1, help="optimiser starts: current values, then seeded random (default 1)")
+    p.add_argument("--no-progress", action="store_true", help="no progress lines")
+    p.add_argument("--out", type=Path, help="calibration JSON (default: reports/<study name>/calibration.json)")
+    p.set_defaults(func=_cmd_calibrate)
+
+
+def _cmd_calibrate(args):
+    from .calibration import calibrate_study, parse_names, parse_noise
+    from .study import load_study
+
+    study, results, seed = _study_results(args)
+    model = load_study(args.model_study) if args.model_study is not None else None
+    calibration = calibrate_study(study, results, model, coefficients=parse_names(args.coefficients, "--coefficients"),
+                                  responses=parse_names(args.responses, "--responses"), noise=parse_noise(args.noise),
+                                  starts=args.starts, seed=seed, progress=None if args.no_progress else _say)
+    out = calibration.save(args.out or study.default_output / "calibration.json")
+    for line in calibration.table():
+        print(line)
+    for note in calibration.notes:
+        _say(f"note: {note}")
+    print(f"wrote {out}")
+
+
 def _add_section(sub):
     p = sub.add_parser("section", help="lift, moment and pressures of one aerofoil section",
                        description="Potential-flow lift, quarter-chord moment and pressure distribution of an "
@@ -420,6 +459,7 @@ VERBS = [
     ("next", _add_next),
     ("sensitivity", _add_sensitivity),
     ("robust", _add_robust),
+    ("calibrate", _add_calibrate),
     ("section", _add_section),
     ("report", _add_report),
     ("run", _add_run),

@@ -20,6 +20,7 @@ __all__ = [
     "StoreLockedError",
     "SensitivityError",
     "AeroError",
+    "CalibrationError",
     "where",
 ]
 
@@ -62,6 +63,10 @@ class SensitivityError(DoeError):
 
 class AeroError(DoeError):
     """The built-in aerodynamic model cannot be set up as asked (bad section file, clashing geometry, ...)."""
+
+
+class CalibrationError(DoeError):
+    """A calibration cannot be run or read as asked (unknown coefficient, too few runs, bad file, ...)."""
 
 
 def where(path, line=None, key=None, column=None) -> str:

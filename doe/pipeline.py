@@ -16,7 +16,9 @@ fit                 ``surrogate/fit.json``     the results (and, with two fideli
 sensitivity         ``sensitivity.json``       the surrogates
 robust, trade-off   ``robust.json``,           the surrogates
                     ``tradeoff.csv``
-next runs           ``next.csv`` (+ why)       the surrogates
+next runs           ``next.csv`` (+ why, and   the surrogates
+                    ``next.cheap.csv`` with
+                    two fidelities)
 report              ``report/index.html``      all of the above
 ==================  =========================  ==================================
 """
@@ -91,6 +93,10 @@ class StudyFiles:
     @property
     def next_why(self) -> Path:
         return self.root / "next.why.json"
+
+    @property
+    def next_cheap(self) -> Path:
+        return self.root / "next.cheap.csv"
 
     @property
     def report(self) -> Path:
@@ -202,7 +208,9 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
         "robust.json": (files.robust, "nominal and robust settings, spreads, limit probabilities, fragility"),
         "tradeoff.csv": (files.tradeoff, "non-dominated settings: parameters, response means and stds"),
         "next.csv": (files.next, "proposed next runs: run_id and parameters (study units)"),
-        "next.why.json": (files.next_why, "why each proposed run was picked"),
+        "next.why.json": (files.next_why, "why each proposed run was picked (and, with two fidelities, the "
+                                          "expensive runs the cheap model is expected to save)"),
+        "next.cheap.csv": (files.next_cheap, "cheap-model runs at the proposed points (a nested plan)"),
     }
     inputs = ReportInputs(study=study, results=results, plan_quality=quality, surrogates=sset,
                           fit=json.loads(files.fit.read_text()), sensitivity=sensitivity, robust=robust,
@@ -268,6 +276,7 @@ def _robust_step(study, sset, results, files: StudyFiles, steps):
 
 def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
     from .adaptive import accuracy_status, propose_runs
+    from .nestedplan import is_two_fidelity, nested_runs
     from .results import read_plan, write_plan
 
     met, sentence = accuracy_status(sset)
@@ -280,7 +289,17 @@ def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
         proposal = propose_runs(sset, k, aim="map", avoid=results.failed[study.space.names].to_numpy(float),
                                 taken_ids=list(results.frame["run_id"]), seed=study.plan.seed)
         write_plan(proposal.frame, files.next)
-        write_json(proposal.record(), files.next_why)
-        steps("next runs", f"{len(proposal.frame)} runs proposed ({sentence}) -> {files.next}")
+        record = proposal.record()
+        extra = ""
+        if is_two_fidelity(sset):
+            cheap, savings = nested_runs(study, sset, proposal, study.plan.seed)
+            write_plan(cheap, files.next_cheap)
+            record["two_fidelity"] = {**savings, "cheap_plan": str(files.next_cheap)}
+            extra = f"; cheap runs at the same points -> {files.next_cheap}; {savings['statement']}"
+        write_json(record, files.next_why)
+        steps("next runs", f"{len(proposal.frame)} runs proposed ({sentence}) -> {files.next}{extra}")
     why = json.loads(files.next_why.read_text()) if files.next_why.exists() else {"runs": []}
+    if "two_fidelity" in why:
+        sentence += (f". Each proposed run also needs a cheap-model run at the same point (next.cheap.csv); "
+                     f"{why['two_fidelity']['statement']}")
     return read_plan(files.next, study), {r["run_id"]: r["reason"] for r in why.get("runs", [])}, sentence

@@ -48,6 +48,11 @@ Study keys (all optional; defaults in brackets)::
     [evaluator.coefficients] # empirical coefficients: see doe.aero.Coefficients
     body_3d_factor = 0.30
     ...
+
+A calibration written by ``doe calibrate`` (see :mod:`doe.calibration`) gives
+the coefficients' defaults with ``calibration = "calibration.json"`` in
+``[evaluator]`` (relative to the study file); coefficients written in
+``[evaluator.coefficients]`` still win.
 """
 from __future__ import annotations
 
@@ -58,10 +63,10 @@ import numpy as np
 
 from ..aero.car import CarGeometry
 from ..aero.model import DESIGN_INPUTS, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
-from ..errors import AeroError
+from ..errors import AeroError, DoeError
 from .base import Evaluator, Outcome, failed
 
-__all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings"]
+__all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings", "same_output_unit"]
 
 _UNIT_ALIASES = {"m^2": {"m^2", "m2", "m²"}, "-": {"-", "", "1"}, "N": {"n"}}
 
@@ -70,8 +75,15 @@ def _positive(v):
     return v > 0
 
 
-def read_builtin_settings(study) -> tuple[ModelSettings, dict]:
+def read_builtin_settings(study, evaluator=None) -> tuple[ModelSettings, dict]:
     """Read and check the ``[evaluator]`` table of a builtin study.
+
+    Parameters
+    ----------
+    study : Study
+    evaluator : EvaluatorSettings, optional
+        The table of builtin settings to read (default ``study.evaluator``;
+        another table of the same keys, such as a low-fidelity model's).
 
     Returns
     -------
@@ -84,7 +96,7 @@ def read_builtin_settings(study) -> tuple[ModelSettings, dict]:
     StudyError
         On an unknown key, a bad value, an unknown parameter or response, or a unit the model cannot convert.
     """
-    t = study.evaluator.table()
+    t = (evaluator or study.evaluator).table()
     kw = {}
     for key in ("chord", "span", "speed", "density", "temperature"):
         kw[key] = t.take(key, float, default=getattr(ModelSettings, key), check=_positive, why="must be > 0")
@@ -109,7 +121,7 @@ def read_builtin_settings(study) -> tuple[ModelSettings, dict]:
             fixed[name] = value
     kw["fixed"] = fixed
     kw["car"] = _read_dataclass(t, "car", CarGeometry)
-    kw["coefficients"] = _read_dataclass(t, "coefficients", Coefficients)
+    kw["coefficients"] = _read_dataclass(t, "coefficients", Coefficients, _calibrated(study, t))
     t.finish()
     try:
         settings = ModelSettings(**kw)
@@ -118,11 +130,24 @@ def read_builtin_settings(study) -> tuple[ModelSettings, dict]:
     return settings, _conversions(study, t)
 
 
-def _read_dataclass(t, key, cls):
+def _calibrated(study, t) -> dict:
+    """Coefficients of the calibration file named by ``calibration`` (empty when none is named)."""
+    name = t.take("calibration", str, default=None)
+    if name is None:
+        return {}
+    from ..calibration import read_calibrated_coefficients
+
+    try:
+        return read_calibrated_coefficients(study.resolve(name))
+    except DoeError as exc:
+        raise t.error("calibration", str(exc)) from exc
+
+
+def _read_dataclass(t, key, cls, defaults=None):
     sub = t.sub(key)
     if sub is None:
-        return cls()
-    values = {}
+        return cls(**(defaults or {}))
+    values = dict(defaults or {})
     for f in fields(cls):
         v = sub.take(f.name, float, default=None)
         if v is not None:
@@ -155,9 +180,15 @@ def _conversions(study, t) -> dict:
             raise t.error(None, f"response '{r.name}' is not an output of the builtin model "
                                 f"(outputs: {', '.join(OUTPUTS)})")
         unit = OUTPUTS[r.name][0]
-        if r.unit.strip().lower() not in {u.lower() for u in _UNIT_ALIASES.get(unit, {unit})} | {unit.lower()}:
+        if not same_output_unit(r.unit, unit):
             raise t.error(None, f"response '{r.name}' has unit '{r.unit}'; the builtin model gives it in '{unit}'")
     return conv
+
+
+def same_output_unit(unit: str, model_unit: str) -> bool:
+    """Whether a response's ``unit`` names the model output's ``model_unit`` (``m2`` is ``m^2``, ...)."""
+    accepted = {u.lower() for u in _UNIT_ALIASES.get(model_unit, {model_unit})} | {model_unit.lower()}
+    return unit.strip().lower() in accepted
 
 
 def check_builtin_settings(study) -> None:
