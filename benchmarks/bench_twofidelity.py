@@ -237,11 +237,8 @@ def _cases(quick):
     # that it costs few extra fits (the two-fidelity fit searches rho with ~20 small fits)
     steps_small = (3, 4, 5, 6, 8, 10, 12, 16)
     cases = [_pair_case("forrester", 0, steps_small, (4,), n_low=11,
-                        note="11 cheap runs as in Forrester et al. 2007 (memory), here on a Latin hypercube. With "
-                             "4 expensive runs the rho search of doe.twofidelity often stops at a lower likelihood "
-                             "than that near the exact rho = 2 (strict xfail in tests/test_twofidelity_pairs.py); "
-                             "on the paper's evenly spaced plan (expensive runs at 0, 0.4, 0.6, 1) it finds "
-                             "rho = 2.000 and a held-out q2 of 0.9998"),
+                        note="11 cheap runs as in Forrester et al. 2007 (memory), here on a Latin hypercube; the exact "
+                             "relation gives rho = 2"),
              _pair_case("currin", 50, (3, 4, 6, 8, 10, 12, 16, 20, 24, 32, 40), (6,) if quick else (6, 10))]
     if not quick:
         cases += [_pair_case("park", 40, (4, 6, 8, 10, 12, 16, 20, 24, 32, 40), (8,)),
