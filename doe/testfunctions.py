@@ -15,7 +15,15 @@ name                      d     use
 ``borehole``              8     surrogate accuracy (a smooth physical model)
 ``ishigami``              3     Sobol indices (analytic: :func:`ishigami_indices`)
 ``g_function``            any   Sobol indices (analytic: :func:`g_function_indices`)
+``forrester`` (+ low)     1     two-fidelity surrogates (Forrester et al. 2007)
+``currin`` (+ low)        2     two-fidelity surrogates (Xiong, Qian & Wu 2013)
+``park`` (+ low)          4     two-fidelity surrogates (Xiong, Qian & Wu 2013)
+``borehole`` (+ low)      8     two-fidelity surrogates (Xiong, Qian & Wu 2013)
 ========================  ====  ===========================================
+
+The two-fidelity pairs (an expensive "high" function and a cheap,
+approximate "low" one on the same domain) are listed in :data:`PAIRS`;
+:func:`get_pair` returns both as :class:`TestFunction` objects.
 
 Definitions and domains follow Surjanovic & Bingham's Virtual Library of
 Simulation Experiments, which restates the original papers cited in each
@@ -37,7 +45,8 @@ from .errors import DoeError
 from .space import Parameter, Space
 
 __all__ = ["TestFunction", "branin", "hartmann3", "hartmann6", "borehole", "ishigami", "g_function",
-           "ishigami_indices", "g_function_indices", "TEST_FUNCTIONS", "get"]
+           "ishigami_indices", "g_function_indices", "forrester", "forrester_low", "currin", "currin_low",
+           "park", "park_low", "borehole_low", "TEST_FUNCTIONS", "PAIRS", "get", "get_pair"]
 
 
 def _points(X, d: int, name: str) -> np.ndarray:
@@ -166,10 +175,15 @@ def borehole(X) -> np.ndarray:
     and analysis of computer experiments: use of derivatives in surface
     prediction. Technometrics 35(3), 243-255.
     """
-    X = _points(X, 8, "borehole")
+    return _borehole_flow(_points(X, 8, "borehole"), 2 * math.pi, 1.0)
+
+
+def _borehole_flow(X, scale: float, constant: float) -> np.ndarray:
+    # f = scale T_u (H_u - H_l) / (ln(r/r_w) [constant + 2 L T_u / (ln(r/r_w) r_w^2 K_w) + T_u / T_l]);
+    # scale = 2 pi, constant = 1 is the borehole function, scale = 5, constant = 1.5 its low-fidelity form
     rw, r, tu, hu, tl, hl, length, kw = X.T
     log_ratio = np.log(r / rw)
-    return 2 * math.pi * tu * (hu - hl) / (log_ratio * (1 + 2 * length * tu / (log_ratio * rw**2 * kw) + tu / tl))
+    return scale * tu * (hu - hl) / (log_ratio * (constant + 2 * length * tu / (log_ratio * rw**2 * kw) + tu / tl))
 
 
 def ishigami(X, a: float = 7.0, b: float = 0.1) -> np.ndarray:
@@ -282,6 +296,194 @@ def g_function_indices(a=G_WEIGHTS) -> dict:
 
 
 # ---------------------------------------------------------------------------
+# two-fidelity pairs
+
+
+def forrester(X) -> np.ndarray:
+    """Forrester et al. one-dimensional function on ``[0, 1]``: ``(6 x - 2)^2 sin(12 x - 4)``.
+
+    The expensive ("high") member of the pair; :func:`forrester_low` is the
+    cheap one. Its global minimum on ``[0, 1]`` is about ``-6.0207`` near
+    ``x = 0.7572``.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 1)
+        Points, dimensionless.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Forrester, A. I. J., Sobester, A. and Keane, A. J. (2007). Multi-fidelity
+    optimization via surrogate modelling. Proc. R. Soc. A 463, 3251-3269.
+    doi:10.1098/rspa.2007.1900
+    """
+    x = _points(X, 1, "forrester")[:, 0]
+    return (6 * x - 2) ** 2 * np.sin(12 * x - 4)
+
+
+def forrester_low(X, A: float = 0.5, B: float = 10.0, C: float = -5.0) -> np.ndarray:
+    """Low-fidelity Forrester function on ``[0, 1]``: ``A f(x) + B (x - 0.5) + C``.
+
+    ``f`` is :func:`forrester`; ``A = 0.5, B = 10, C = -5`` as in Forrester,
+    Sobester & Keane (2007), so the cheap function is a scaled, tilted and
+    shifted copy of the expensive one.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 1)
+    A, B, C : float
+        Scale, slope and offset of the approximation.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Forrester, A. I. J., Sobester, A. and Keane, A. J. (2007). Proc. R. Soc. A 463, 3251-3269.
+    """
+    x = _points(X, 1, "forrester_low")[:, 0]
+    return A * forrester(x[:, None]) + B * (x - 0.5) + C
+
+
+def _currin(x1, x2) -> np.ndarray:
+    # f = [1 - exp(-1 / (2 x2))] (2300 x1^3 + 1900 x1^2 + 2092 x1 + 60) / (100 x1^3 + 500 x1^2 + 4 x1 + 20);
+    # at x2 = 0 the exponential term is exp(-inf) = 0
+    with np.errstate(divide="ignore"):
+        decay = 1 - np.exp(-1 / (2 * x2))
+    return decay * (2300 * x1**3 + 1900 * x1**2 + 2092 * x1 + 60) / (100 * x1**3 + 500 * x1**2 + 4 * x1 + 20)
+
+
+def currin(X) -> np.ndarray:
+    """Currin et al. exponential function on ``[0, 1]^2``.
+
+    ``f = [1 - exp(-1 / (2 x2))] (2300 x1^3 + 1900 x1^2 + 2092 x1 + 60) / (100 x1^3 + 500 x1^2 + 4 x1 + 20)``
+
+    The expensive member of the Currin pair (:func:`currin_low` is the cheap one).
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 2)
+        Points, dimensionless.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Currin, C., Mitchell, T., Morris, M. and Ylvisaker, D. (1991). Bayesian
+    prediction of deterministic functions, with applications to the design and
+    analysis of computer experiments. J. Am. Stat. Assoc. 86(416), 953-963.
+    """
+    X = _points(X, 2, "currin")
+    return _currin(X[:, 0], X[:, 1])
+
+
+def currin_low(X) -> np.ndarray:
+    """Low-fidelity Currin function: the mean of :func:`currin` at four shifted points.
+
+    ``f_low(x1, x2) = [f(x1 + h, x2 + h) + f(x1 + h, m) + f(x1 - h, x2 + h) + f(x1 - h, m)] / 4``
+    with ``h = 1/20`` and ``m = max(0, x2 - h)``, on ``[0, 1]^2``.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 2)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Xiong, S., Qian, P. Z. G. and Wu, C. F. J. (2013). Sequential design and
+    analysis of high-accuracy and low-accuracy computer codes. Technometrics
+    55(1), 37-46.
+    """
+    X = _points(X, 2, "currin_low")
+    x1, x2, h = X[:, 0], X[:, 1], 1 / 20
+    lower = np.maximum(0.0, x2 - h)
+    return (_currin(x1 + h, x2 + h) + _currin(x1 + h, lower) + _currin(x1 - h, x2 + h) + _currin(x1 - h, lower)) / 4
+
+
+def park(X) -> np.ndarray:
+    """Park (1991) function 1 on ``[0, 1]^4``.
+
+    ``f = (x1 / 2) [sqrt(1 + (x2 + x3^2) x4 / x1^2) - 1] + (x1 + 3 x4) exp(1 + sin x3)``
+
+    The first term is evaluated in the equal form ``[sqrt(x1^2 + (x2 + x3^2) x4) - x1] / 2``,
+    which stays finite at ``x1 = 0``. The expensive member of the Park pair
+    (:func:`park_low` is the cheap one).
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 4)
+        Points, dimensionless.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Park, J.-S. (1991). Tuning complex computer codes to data and optimal
+    designs. PhD thesis, University of Illinois at Urbana-Champaign.
+    Cox, D. D., Park, J.-S. and Singer, C. E. (2001). A statistical method for
+    tuning a computer code to a data base. Comput. Stat. Data Anal. 37(1), 77-92.
+    """
+    x1, x2, x3, x4 = _points(X, 4, "park").T
+    return (np.sqrt(x1**2 + (x2 + x3**2) * x4) - x1) / 2 + (x1 + 3 * x4) * np.exp(1 + np.sin(x3))
+
+
+def park_low(X) -> np.ndarray:
+    """Low-fidelity Park function on ``[0, 1]^4``: ``(1 + sin(x1) / 10) f(x) - 2 x1 + x2^2 + x3^2 + 1/2``.
+
+    ``f`` is :func:`park`.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 4)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+
+    References
+    ----------
+    Xiong, S., Qian, P. Z. G. and Wu, C. F. J. (2013). Technometrics 55(1), 37-46.
+    """
+    X = _points(X, 4, "park_low")
+    x1, x2, x3 = X[:, 0], X[:, 1], X[:, 2]
+    return (1 + np.sin(x1) / 10) * park(X) - 2 * x1 + x2**2 + x3**2 + 0.5
+
+
+def borehole_low(X) -> np.ndarray:
+    """Low-fidelity borehole function, in m^3/yr, on the domain of :func:`borehole`.
+
+    ``f = 5 T_u (H_u - H_l) / (ln(r / r_w) [1.5 + 2 L T_u / (ln(r / r_w) r_w^2 K_w) + T_u / T_l])``
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 8)
+        Columns as in :func:`borehole`.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Approximate flow rate, m^3/yr.
+
+    References
+    ----------
+    Xiong, S., Qian, P. Z. G. and Wu, C. F. J. (2013). Technometrics 55(1), 37-46.
+    """
+    return _borehole_flow(_points(X, 8, "borehole_low"), 5.0, 1.5)
+
+
+# ---------------------------------------------------------------------------
 @dataclass(frozen=True)
 class TestFunction:
     """A test function with its domain, input names and known optimum.
@@ -364,6 +566,32 @@ TEST_FUNCTIONS = {
     "g_function": TestFunction("g_function", g_function, tuple(f"x{i}" for i in range(1, 9)), (0.0,) * 8, (1.0,) * 8,
                                minimum=0.0, reference="Saltelli & Sobol' 1995; " + _VLSE),
 }
+_FSK = "Forrester, Sobester & Keane 2007, Proc. R. Soc. A 463:3251"
+_XQW = "Xiong, Qian & Wu 2013, Technometrics 55:37"
+TEST_FUNCTIONS.update({
+    "forrester": TestFunction("forrester", forrester, ("x",), (0.0,), (1.0,), minimum=-6.02074, argmin=(0.757249,),
+                              reference=_FSK),
+    "forrester_low": TestFunction("forrester_low", forrester_low, ("x",), (0.0,), (1.0,), reference=_FSK),
+    "currin": TestFunction("currin", currin, ("x1", "x2"), (0.0, 0.0), (1.0, 1.0),
+                           reference="Currin, Mitchell, Morris & Ylvisaker 1991; " + _VLSE),
+    "currin_low": TestFunction("currin_low", currin_low, ("x1", "x2"), (0.0, 0.0), (1.0, 1.0),
+                               reference=_XQW + "; " + _VLSE),
+    "park": TestFunction("park", park, ("x1", "x2", "x3", "x4"), (0.0,) * 4, (1.0,) * 4,
+                         reference="Park 1991; Cox, Park & Singer 2001; " + _VLSE),
+    "park_low": TestFunction("park_low", park_low, ("x1", "x2", "x3", "x4"), (0.0,) * 4, (1.0,) * 4,
+                             reference=_XQW + "; " + _VLSE),
+    "borehole_low": TestFunction("borehole_low", borehole_low, TEST_FUNCTIONS["borehole"].names,
+                                 TEST_FUNCTIONS["borehole"].lower, TEST_FUNCTIONS["borehole"].upper,
+                                 units=TEST_FUNCTIONS["borehole"].units, reference=_XQW + "; " + _VLSE),
+})
+
+#: Two-fidelity pairs: pair name -> (expensive function, cheap function), names in :data:`TEST_FUNCTIONS`.
+PAIRS = {
+    "forrester": ("forrester", "forrester_low"),
+    "currin": ("currin", "currin_low"),
+    "park": ("park", "park_low"),
+    "borehole": ("borehole", "borehole_low"),
+}
 
 
 def get(name: str) -> TestFunction:
@@ -372,3 +600,18 @@ def get(name: str) -> TestFunction:
         return TEST_FUNCTIONS[name]
     except KeyError:
         raise DoeError(f"no test function '{name}'; choose one of {', '.join(TEST_FUNCTIONS)}") from None
+
+
+def get_pair(name: str) -> tuple[TestFunction, TestFunction]:
+    """The expensive and the cheap function of the two-fidelity pair ``name`` (see :data:`PAIRS`).
+
+    Returns
+    -------
+    high, low : TestFunction
+        On the same domain, with the same input names.
+    """
+    try:
+        high, low = PAIRS[name]
+    except KeyError:
+        raise DoeError(f"no two-fidelity pair '{name}'; choose one of {', '.join(PAIRS)}") from None
+    return TEST_FUNCTIONS[high], TEST_FUNCTIONS[low]
