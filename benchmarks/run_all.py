@@ -42,6 +42,7 @@ def _machine() -> str:
 def _load(path: Path):
     spec = importlib.util.spec_from_file_location(path.stem, path)
     module = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = module          # dataclasses look their module up here
     sys.path.insert(0, str(HERE))
     spec.loader.exec_module(module)
     return module
