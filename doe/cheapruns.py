@@ -17,7 +17,8 @@ import pandas as pd
 
 from .errors import DoeError
 
-__all__ = ["cheap_plan", "run_cheap", "default_cheap_path", "NESTED_PREFIX"]
+__all__ = ["cheap_plan", "run_cheap", "cheap_study", "study_surrogates", "wants_two_fidelity", "default_cheap_path",
+           "NESTED_PREFIX"]
 
 #: Prefix of the cheap run made at an expensive run's point.
 NESTED_PREFIX = "at_"
@@ -92,10 +93,9 @@ def run_cheap(study, expensive: pd.DataFrame, path, jobs: int = 1, progress: boo
     from .execution import evaluate_plan
     from .results import read_results
 
-    low = _settings(study)
-    view = study.with_evaluator(low.evaluator)
     path = Path(path)
-    evaluator = make_evaluator(view, workspace=workspace if workspace is not None else path.parent / "cheap_cases")
+    workspace = workspace if workspace is not None else path.parent / "cheap_cases"
+    evaluator = make_evaluator(cheap_study(study), workspace=workspace)
     plan = cheap_plan(study, expensive)
     summary = evaluate_plan(plan, evaluator, path, study.space.names, jobs=jobs, progress=progress)
     results = read_results(path, study, accept_outside=True)
@@ -103,6 +103,11 @@ def run_cheap(study, expensive: pd.DataFrame, path, jobs: int = 1, progress: boo
         raise DoeError(f"{path}: only {len(results.ok)} cheap runs worked; the cheap model needs at least 3 "
                        "(see the message column)")
     return summary, results
+
+
+def cheap_study(study):
+    """The study with its ``[low_fidelity]`` model as the evaluator (to build or check that evaluator)."""
+    return study.with_evaluator(_settings(study).evaluator)
 
 
 def _settings(study):

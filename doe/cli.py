@@ -89,10 +89,14 @@ def _add_evaluate(sub):
                         "cluster of --jobs local processes (needs pip install 'doe[cluster]')")
     p.add_argument("--retry-failed", action="store_true", help="run again the runs stored as failed")
     p.add_argument("--no-progress", action="store_true", help="no progress bar")
+    p.add_argument("--cheap", action="store_true",
+                   help="run the study's [low_fidelity] cheap model instead (e.g. on next.cheap.csv; default out: "
+                        "reports/<study name>/cheap_results.csv)")
     p.set_defaults(func=_cmd_evaluate)
 
 
 def _cmd_evaluate(args):
+    from .cheapruns import cheap_study
     from .evaluators import make_evaluator
     from .execution import evaluate_plan
     from .results import read_plan
@@ -100,8 +104,9 @@ def _cmd_evaluate(args):
 
     study = load_study(args.study)
     plan = read_plan(args.plan, study)
-    out = args.out or study.default_output / "results.csv"
-    evaluator = make_evaluator(study, workspace=out.parent / "cases")
+    out = args.out or study.default_output / ("cheap_results.csv" if args.cheap else "results.csv")
+    evaluator = make_evaluator(cheap_study(study) if args.cheap else study,
+                               workspace=out.parent / ("cheap_cases" if args.cheap else "cases"))
     summary = evaluate_plan(plan, evaluator, out, study.space.names, jobs=args.jobs,
                             retry_failed=args.retry_failed, progress=not args.no_progress,
                             scheduler=args.scheduler)

@@ -199,6 +199,12 @@ def test_cli_next_writes_the_nested_cheap_plan(two_level_study, tmp_path, capsys
     why = json.loads((tmp_path / "next.why.json").read_text())
     assert "statement" in why["two_fidelity"] and why["two_fidelity"]["runs_now"] == 6
     assert "cheap model" in capsys.readouterr().err
+    # the nested cheap plan runs with the [low_fidelity] model
+    assert main(["evaluate", str(two_level_study), "--plan", str(tmp_path / "next.cheap.csv"), "--cheap",
+                 "--out", str(tmp_path / "extra.csv"), "--no-progress"]) == 0
+    done = pd.read_csv(tmp_path / "extra.csv")
+    assert list(done["run_id"]) == list(cheap["run_id"])
+    assert np.allclose(done["y"], forrester_low(done["x"].to_numpy()), rtol=1e-9)
 
 
 @pytest.mark.parametrize("extra, message", [
