@@ -215,23 +215,41 @@ def nested_runs(study, sset, proposal, seed=0):
     Returns
     -------
     cheap : DataFrame
-        ``run_id`` (``at_<expensive run id>``) and parameter columns: one
-        cheap run at every proposed expensive run (the cheap runs spread over
-        the space are already in the cheap results file).
+        ``run_id`` and parameter columns: one cheap run at every proposed
+        expensive run (``at_<expensive run id>``) and, when the cheap runs'
+        own fit is below :data:`CHEAP_Q2`, more cheap runs spread by greedy
+        maximin where they are sparsest (``cx<n>_<k>``).
     savings : dict
         :func:`expected_savings`, plus ``cheap_fit``: a statement on the
         cheap level's own accuracy.
     """
+    import pandas as pd
+
     from .cheapruns import cheap_plan
+    from .plans import augment_plan
 
     cheap = cheap_plan(study, proposal.frame, spread=0)
     savings = expected_savings(sset, seed)
-    worst = min((m.low_.loo_.q2, n) for n, m in sset.models.items() if getattr(m, "fidelity", "single") == "two")
-    savings["cheap_fit"] = (f"the cheap runs' own fit reaches q2 {worst[0]:.3f} ({worst[1]}); "
-                            + ("enough" if worst[0] >= CHEAP_Q2 else
-                               f"below {CHEAP_Q2:g}: raise [low_fidelity] runs, cheap runs are cheap"))
+    two = {n: m for n, m in sset.models.items() if getattr(m, "fidelity", "single") == "two"}
+    worst = min((m.low_.loo_.q2, n) for n, m in two.items())
+    text = f"the cheap runs' own fit reaches q2 {worst[0]:.3f} ({worst[1]})"
+    if worst[0] < CHEAP_Q2:           # the cheap map limits the two-fidelity one: spread more cheap runs
+        low = two[worst[1]].low_
+        done = pd.DataFrame(sset.space.from_unit(low.X_unit_), columns=sset.space.names)
+        done.insert(0, "run_id", [f"r{i + 1}" for i in range(len(done))])
+        k = max(CHEAP_EXTRA_PER_PARAMETER * sset.space.dim, len(done) // 2)
+        extra = augment_plan(sset.space, done, k, seed).frame.iloc[len(done):].copy()
+        extra["run_id"] = [f"cx{len(done)}_{i + 1:04d}" for i in range(len(extra))]
+        cheap = pd.concat([cheap, extra], ignore_index=True)
+        text += (f", below {CHEAP_Q2:g}: {k} more cheap runs spread where the cheap runs are sparsest are in the "
+                 "cheap plan (or raise [low_fidelity] runs)")
+    else:
+        text += "; enough"
+    savings["cheap_fit"] = text
     return cheap, savings
 
 
-#: Leave-one-out q2 of the cheap runs' own fit below which more cheap runs are advised.
+#: Leave-one-out q2 of the cheap runs' own fit below which more cheap runs are proposed ...
 CHEAP_Q2 = 0.995
+#: ... at least this many per parameter (or half as many again as there are).
+CHEAP_EXTRA_PER_PARAMETER = 10

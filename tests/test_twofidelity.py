@@ -244,3 +244,23 @@ def test_sensitivity_and_robust_run_on_two_fidelity_surrogates(two_level_study, 
     # From 6 expensive runs and 17 cheap ones: measured x 0.7574, f -6.014; tolerances 0.005 and 0.05.
     assert best["point"]["x"] == pytest.approx(0.7572, abs=0.005)
     assert best["mean"] == pytest.approx(-6.0207, abs=0.05)
+
+
+def test_nested_plan_spreads_more_cheap_runs_when_the_cheap_map_is_poor(two_level_study, tmp_path, monkeypatch):
+    import doe.nestedplan as nestedplan
+    from doe.adaptive import propose_runs
+    from doe.cheapruns import study_surrogates
+    from doe.results import read_results
+
+    study = load_study(two_level_study)
+    sset = study_surrogates(study, read_results(tmp_path / "high.csv", study), progress=False)
+    proposal = propose_runs(sset, 2, seed=0)
+    cheap, _ = nestedplan.nested_runs(study, sset, proposal)
+    assert len(cheap) == 2                                   # the cheap map is good: only the nested runs
+    monkeypatch.setattr(nestedplan, "CHEAP_Q2", 1.01)        # pretend it is not
+    cheap, savings = nestedplan.nested_runs(study, sset, proposal)
+    extra = cheap[cheap["run_id"].str.startswith("cx")]
+    assert len(extra) == 10 and "more cheap runs" in savings["cheap_fit"]
+    old = sset.models["y"].low_.X_unit_[:, 0]
+    gaps = np.min(np.abs(extra["x"].to_numpy()[:, None] - old[None, :]), axis=1)
+    assert np.all((extra["x"] >= 0) & (extra["x"] <= 1)) and np.all(gaps > 1e-6)   # new points, inside the bounds
