@@ -124,7 +124,8 @@ def hyperparameter_statements(model) -> list:
         if np.log(max(parts["noise"], 1e-300)) >= np.log(NOISE_BOUNDS[1]) - _AT_BOUND:
             out.append("noise level at its upper bound: the runs look like noise around a constant")
         elif np.log(max(parts["noise"], 1e-300)) <= np.log(NOISE_BOUNDS[0]) + _AT_BOUND:
-            out.append("noise level at its lower bound: the data look free of noise")
+            out.append("noise level at its lower bound: the runs show no noise that the fit can tell apart from "
+                       "the response itself (with few runs, noise and real variation look alike)")
     n, d = model.X_unit_.shape
     if n < FEW_RUNS_PER_PARAMETER * d:
         out.append(f"only {n} distinct points for {d} parameters: the kernel's settings are poorly determined "
