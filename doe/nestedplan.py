@@ -33,6 +33,8 @@ import copy
 
 import numpy as np
 
+from .errors import SurrogateError
+
 __all__ = ["learning_curve", "runs_to_target", "expected_savings", "MIN_RUNS", "SUBSET_FRACTIONS", "SPLITS"]
 
 #: Fewest expensive runs for which a learning curve is estimated.
@@ -88,7 +90,7 @@ def learning_curve(model, seed=0) -> tuple[np.ndarray, np.ndarray]:
             train, test = idx[:m], idx[m:]
             try:
                 sub = _refit(base, X[train], target[train])
-            except Exception:  # noqa: BLE001 - a singular subset: skip that split
+            except SurrogateError:       # a singular subset: skip that split
                 continue
             pred = sub.predict(X[test]) + offset[test]
             err.append(np.mean((y[test] - pred) ** 2))

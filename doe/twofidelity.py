@@ -62,6 +62,7 @@ from scipy.linalg import cho_solve
 from scipy.optimize import minimize_scalar
 
 from .errors import NotFittedError, SurrogateError
+from .fitreport import _num
 from .surrogate import DUPLICATE_TOL, LooResult, ResponseSurrogate
 
 __all__ = ["TwoFidelitySurrogate", "match_points", "RHO_GRID"]
@@ -486,8 +487,3 @@ class TwoFidelitySurrogate:
         model.groups_ = model.delta_.groups_
         model._set_views()
         return model
-
-
-def _num(x):
-    x = float(x)
-    return x if np.isfinite(x) else None
