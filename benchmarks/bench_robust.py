@@ -8,7 +8,7 @@ import numpy as np
 
 from doe.robust import find_settings, propagate, scatter_draws
 from doe.space import Parameter, Space
-from doe.testfunctions import get
+from doe.testing.functions import get
 from doe.vehicle import Aero, Segment, Track, Vehicle, lap_time
 
 SEEDS = tuple(range(1, 21))

@@ -14,7 +14,7 @@ import numpy as np
 
 from doe.plans import maximin_lhs
 from doe.surrogate import ResponseSurrogate
-from doe.testfunctions import g_function
+from doe.testing.functions import g_function
 
 SEED = 3
 

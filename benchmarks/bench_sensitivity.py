@@ -17,7 +17,7 @@ import time
 
 import numpy as np
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 from doe.distributions import InputDistribution
 from doe.plans import maximin_lhs
 from doe.sensitivity import sobol_indices

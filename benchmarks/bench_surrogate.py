@@ -35,7 +35,7 @@ ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from doe import testfunctions as tf  # noqa: E402
+from doe.testing import functions as tf  # noqa: E402
 from doe.adaptive import run_adaptive  # noqa: E402
 from doe.plans import maximin_lhs  # noqa: E402
 from doe.surrogate import ResponseSurrogate  # noqa: E402

@@ -18,7 +18,7 @@ expensive runs that reaches ``q2 >= 0.95`` (median and range over seeds), the
 ratio of the medians ("runs saved"), and q2 at a few fixed numbers of runs.
 
 Pairs: Forrester et al. (2007) 1-D, Currin 2-D, Park 4-D and borehole 8-D (low
-forms of Xiong, Qian & Wu 2013; :mod:`doe.testfunctions`), and the built-in
+forms of Xiong, Qian & Wu 2013; :mod:`doe.testing.functions`), and the built-in
 rear-package model (:mod:`doe.aero`) with its default coefficients and coarse
 panels as the cheap model of an invented "expensive" one: the same model with
 changed coefficients, the default panels and a small deterministic scatter.
@@ -40,7 +40,7 @@ ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from doe import testfunctions as tf  # noqa: E402
+from doe.testing import functions as tf  # noqa: E402
 from doe.plans import maximin_lhs  # noqa: E402
 from doe.surrogate import ResponseSurrogate  # noqa: E402
 

@@ -13,7 +13,7 @@ import numpy as np
 
 from doe.plans import maximin_lhs
 from doe.surrogate import ResponseSurrogate
-from doe.testfunctions import get_pair
+from doe.testing.functions import get_pair
 from doe.twofidelity import TwoFidelitySurrogate
 
 high_fn, low_fn = get_pair("currin")

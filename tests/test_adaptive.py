@@ -3,7 +3,7 @@ additions beat space-filling additions on published test functions."""
 import numpy as np
 import pytest
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 from doe.adaptive import MIN_DISTANCE, propose_runs, run_adaptive
 from doe.errors import SurrogateError
 from doe.plans import _candidates, greedy_maximin, maximin_lhs

@@ -215,7 +215,7 @@ def test_bad_input():
 def test_nominal_search_finds_published_minima(name):
     # Branin minimum 5/(4 pi) = 0.397887, Hartmann 3-D minimum -3.86278 (Dixon & Szego 1978; definitions
     # as restated by Surjanovic & Bingham, Virtual Library of Simulation Experiments)
-    from doe.testfunctions import get
+    from doe.testing.functions import get
 
     tf = get(name)
     res = find_settings(as_predictor(y=tf.func), tf.space(), "y", "minimize", seed=0)

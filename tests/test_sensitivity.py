@@ -9,7 +9,7 @@ import pytest
 from scipy import stats
 from scipy.stats import qmc
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 from doe.distributions import InputDistribution
 from doe.errors import SensitivityError
 from doe.sensitivity import sobol_indices

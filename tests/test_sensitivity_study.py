@@ -6,7 +6,7 @@ import pandas as pd
 import pytest
 from scipy.stats import qmc
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 from doe.cli import main
 from doe.errors import SensitivityError, StudyError
 from doe.evaluators.base import Evaluator, Outcome

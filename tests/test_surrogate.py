@@ -8,7 +8,7 @@ import pandas as pd
 import pytest
 from sklearn.gaussian_process import GaussianProcessRegressor
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 from doe.errors import NotFittedError, StudyError, SurrogateError
 from doe.plans import maximin_lhs
 from doe.results import ResultsTable

@@ -4,7 +4,7 @@ import math
 import numpy as np
 import pytest
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 
 
 def test_branin_minima():

@@ -9,7 +9,7 @@ borehole and their "lc" lower-fidelity codes).
 
 The "independent re-implementation" helpers below are written from those formulas in
 scalar Python (math module, one point at a time, the published algebraic form) so that
-they share no code with doe/testfunctions.py.
+they share no code with doe/testing/functions.py.
 """
 import math
 
@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 from scipy.optimize import minimize_scalar
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 from doe.errors import DoeError
 from doe.plans import maximin_lhs
 from doe.surrogate import ResponseSurrogate

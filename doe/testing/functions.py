@@ -41,8 +41,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import DoeError
-from .space import Parameter, Space
+from ..errors import DoeError
+from ..space import Parameter, Space
 
 __all__ = ["TestFunction", "branin", "hartmann3", "hartmann6", "borehole", "ishigami", "g_function",
            "ishigami_indices", "g_function_indices", "forrester", "forrester_low", "currin", "currin_low",

@@ -1,0 +1,1 @@
+"""Test functions with published answers, synthetic data and benchmark loops (for tests and benchmarks)."""
