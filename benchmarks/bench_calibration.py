@@ -8,7 +8,7 @@ import numpy as np
 
 from doe.aero.model import COEFFICIENT_RANGES
 from doe.calibration import builtin_settings_for, calibrate, synthetic_results
-from doe.study import read_study_text
+from doe.study.reader import read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]
 #: The builtin model behind the invented CFD example (default panels), with cla_front as a third response.

@@ -74,7 +74,7 @@ def _on_surrogate(quick: bool) -> list[str]:
 
     from doe.plans import make_plan
     from doe.results import ResultsTable
-    from doe.study import read_study_text
+    from doe.study.reader import read_study_text
     from doe.surrogate import fit_surrogates
 
     tf = get("hartmann3")

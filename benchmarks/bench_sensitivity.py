@@ -148,7 +148,7 @@ def _builtin_agreement() -> list:
 
     from doe.evaluators import make_evaluator
     from doe.sensitivity_study import evaluate_points, study_sensitivity
-    from doe.study import load_study
+    from doe.study.reader import load_study
 
     full = load_study(demo)
     keep = ("cla_total", "cda_total", "cla_rear")

@@ -73,7 +73,7 @@ def _builtin_cases():
     try:
         import doe.aero  # noqa: F401
         from doe.evaluators import make_evaluator
-        from doe.study import load_study
+        from doe.study.reader import load_study
     except ImportError as exc:
         return [], f"built-in model skipped: doe.aero is not importable here ({exc})"
     path = ROOT / "studies" / "demo_hatch.toml"

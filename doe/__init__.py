@@ -5,7 +5,7 @@ Data flow one way: study -> plan -> evaluations -> surrogate -> analyses -> repo
 =================  ==========================================================
 module             job
 =================  ==========================================================
-doe.study          read and validate a study file
+doe.study.reader          read and validate a study file
 doe.space          parameters, bounds, constraints, unit-cube scaling
 doe.plans          space-filling plans and augmentation
 doe.evaluators     who turns a run into numbers (builtin, command, recorded)
@@ -15,7 +15,7 @@ doe.aero           the built-in low-order aerodynamic model
 =================  ==========================================================
 """
 from .errors import DoeError
-from .study import Study, load_study
+from .study.reader import Study, load_study
 
 __version__ = "0.1.0"
 __all__ = ["DoeError", "Study", "load_study", "__version__"]

@@ -55,7 +55,7 @@ def _add_plan(sub):
 def _cmd_plan(args):
     from .plans import augment_plan, make_plan
     from .results import read_plan, write_plan
-    from .study import load_study
+    from .study.reader import load_study
 
     study = load_study(args.study)
     seed = args.seed if args.seed is not None else study.plan.seed
@@ -100,7 +100,7 @@ def _cmd_evaluate(args):
     from .evaluators import make_evaluator
     from .execution import evaluate_plan
     from .results import read_plan
-    from .study import load_study
+    from .study.reader import load_study
 
     study = load_study(args.study)
     plan = read_plan(args.plan, study)
@@ -133,7 +133,7 @@ def _add_results_options(p, results_required: bool = True):
 def _study_results(args):
     """The study, its results and the seed, for the verbs that start from a results CSV."""
     from .results import read_results
-    from .study import load_study
+    from .study.reader import load_study
 
     study = load_study(args.study)
     results = read_results(args.results, study, accept_outside=args.accept_outside)
@@ -261,7 +261,7 @@ def _add_sensitivity(sub):
 def _cmd_sensitivity(args):
     from . import sensitivity_study as ss
     from .results import read_results
-    from .study import load_study
+    from .study.reader import load_study
 
     study = load_study(args.study)
     if args.screen:
@@ -344,7 +344,7 @@ def _add_calibrate(sub):
 
 def _cmd_calibrate(args):
     from .calibration import calibrate_study, parse_names, parse_noise
-    from .study import load_study
+    from .study.reader import load_study
 
     study, results, seed = _study_results(args)
     model = load_study(args.model_study) if args.model_study is not None else None
@@ -420,7 +420,7 @@ def _add_report(sub):
 
 def _cmd_report(args):
     from .pipeline import NEXT_RUNS_DEFAULT, StudyFiles, analyse_and_report
-    from .study import load_study
+    from .study.reader import load_study
 
     study = load_study(args.study)
     files = StudyFiles(args.out or study.default_output)
@@ -446,7 +446,7 @@ def _add_run(sub):
 
 def _cmd_run(args):
     from .pipeline import NEXT_RUNS_DEFAULT, run_study
-    from .study import load_study
+    from .study.reader import load_study
 
     study = load_study(args.study)
     k = NEXT_RUNS_DEFAULT if args.next_runs is None else args.next_runs

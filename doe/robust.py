@@ -98,7 +98,7 @@ from scipy.stats import qmc
 
 from .errors import DoeError
 from .space import Space
-from .study import ResponseLimit
+from .study.reader import ResponseLimit
 from .vehicle import Aero, VehicleFigures, compare_figures, vehicle_figures
 
 __all__ = ["scatter_draws", "propagate", "Spread", "Fragility", "fragility", "PointResult", "RobustResult",
@@ -619,7 +619,7 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     goal : {"maximize", "minimize"}
     k : float
         Weight of the scatter spread in the robust value, -.
-    limits : sequence of doe.study.ResponseLimit or dict
+    limits : sequence of doe.study.reader.ResponseLimit or dict
         ``min <= response <= max`` limits on other responses (their units); a
         dict takes the keys ``response``, ``min`` and ``max``.
     probability : float
@@ -695,7 +695,7 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
 
 
 def _as_limit(lim) -> ResponseLimit:
-    """A :class:`~doe.study.ResponseLimit` from itself or a mapping with ``response``, ``min``, ``max``."""
+    """A :class:`~doe.study.reader.ResponseLimit` from itself or a mapping with ``response``, ``min``, ``max``."""
     if isinstance(lim, dict):
         unknown = set(lim) - {"response", "min", "max"}
         if unknown or "response" not in lim:
@@ -778,7 +778,7 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) ->
 
     Parameters
     ----------
-    study : doe.study.Study
+    study : doe.study.reader.Study
     predict : callable
         E.g. the ``predict`` of a fitted surrogate set.
     runs_X : array_like, optional

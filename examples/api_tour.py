@@ -14,7 +14,7 @@ from doe.pipeline import StudyFiles, analyse_and_report
 from doe.plans import make_plan
 from doe.results import read_results, write_plan
 from doe.sensitivity_study import study_sensitivity
-from doe.study import load_study
+from doe.study.reader import load_study
 from doe.surrogate import fit_surrogates
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -13,7 +13,7 @@ import numpy as np
 
 from doe.evaluators.builtin import BuiltinEvaluator
 from doe.plans import make_plan
-from doe.study import load_study, read_study_text
+from doe.study.reader import load_study, read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]
 RUNS, SEED = 24, 5

@@ -16,7 +16,7 @@ from doe.aero.sections import naca4
 from doe.cli import main
 from doe.errors import StudyError
 from doe.evaluators import make_evaluator
-from doe.study import load_study, read_study_text
+from doe.study.reader import load_study, read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "studies" / "demo_hatch.toml"

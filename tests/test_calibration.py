@@ -25,7 +25,7 @@ from doe.cli import main
 from doe.errors import CalibrationError, DoeError, StudyError
 from doe.evaluators import make_evaluator
 from doe.results import ResultsTable, read_results, write_plan
-from doe.study import load_study, read_study_text
+from doe.study.reader import load_study, read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]
 #: The builtin model behind the invented CFD example (three knobs, cla_total and cda_total), plus cla_front.

@@ -6,7 +6,7 @@ import pandas as pd
 
 from doe.cli import main
 from doe.results import read_plan
-from doe.study import load_study
+from doe.study.reader import load_study
 from test_surrogate import STUDY, branin_results
 
 

@@ -9,7 +9,7 @@ import pytest
 from doe.errors import ResultsError, StoreLockedError
 from doe.evaluators.base import Outcome
 from doe.results import ResultsStore, read_results
-from doe.study import load_study
+from doe.study.reader import load_study
 
 
 @pytest.fixture

@@ -9,7 +9,7 @@ from doe.errors import DoeError
 from doe.robust import (find_settings, fragility, nondominated, propagate, scatter_draws, tradeoff_set,
                         write_tradeoff)
 from doe.space import LinearConstraint, Parameter, Space
-from doe.study import ResponseLimit
+from doe.study.reader import ResponseLimit
 
 
 def as_predictor(**funcs):

@@ -11,7 +11,7 @@ import pytest
 
 from doe.errors import StudyError
 from doe.robust import study_robust, study_tradeoff, study_vehicle_figures
-from doe.study import read_study_text
+from doe.study.reader import read_study_text
 
 DEMO = (Path(__file__).parents[1] / "studies" / "demo_vehicle.toml").read_text()
 # the tests' own limits, for the invented map below: drag and the front share of the downforce

@@ -13,7 +13,7 @@ from doe.evaluators.base import Evaluator, Outcome
 from doe.screening import morris_screening
 from doe.sensitivity_study import (evaluate_points, evaluator_model, study_inputs, study_screening,
                                   study_sensitivity)
-from doe.study import read_study_text
+from doe.study.reader import read_study_text
 
 # Invented study: Y = x1 + x2 * x3 (a stand-in for a response with one direct knob and one interaction).
 STUDY = """
@@ -83,7 +83,7 @@ def study(tmp_path):
     frame.insert(0, "run_id", [f"r{i:03d}" for i in range(len(frame))])
     frame["y"] = model(frame[["x1", "x2", "x3"]].to_numpy())
     frame.to_csv(results, index=False)
-    from doe.study import load_study
+    from doe.study.reader import load_study
 
     return load_study(path)
 
@@ -217,7 +217,7 @@ def test_direct_and_surrogate_agree_on_the_builtin_model():
         pytest.skip("the demo study is not in this tree")
     from doe.evaluators import make_evaluator
     from doe.plans import maximin_lhs
-    from doe.study import load_study
+    from doe.study.reader import load_study
 
     full = load_study(demo)
     study = dataclasses.replace(full, responses=tuple(r for r in full.responses if r.name == "cla_total"),

@@ -12,7 +12,7 @@ from doe.testing import functions as tf
 from doe.errors import NotFittedError, StudyError, SurrogateError
 from doe.plans import maximin_lhs
 from doe.results import ResultsTable
-from doe.study import read_study_text
+from doe.study.reader import read_study_text
 from doe.surrogate import ResponseSurrogate, fit_surrogates, load_surrogates
 
 FAST = dict(kernel="sqexp", trend="constant", restarts=2)  # one kernel: tests of other things stay fast

@@ -10,7 +10,7 @@ import pytest
 from doe.cli import main
 from doe.nestedplan import runs_to_target
 from doe.results import read_plan
-from doe.study import load_study, read_study_text
+from doe.study.reader import load_study, read_study_text
 from doe.surrogate import ResponseSurrogate, load_surrogates
 from doe.testing.functions import branin
 from doe.twofidelity import TwoFidelitySurrogate

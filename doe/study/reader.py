@@ -62,10 +62,10 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .errors import StudyError, where
-from .space import LinearConstraint, Parameter, Space
+from ..errors import StudyError, where
+from ..space import LinearConstraint, Parameter, Space
 from .tables import NAME_PATTERN, REQUIRED, Source, Table
-from .vehicle import DRIVES, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle
+from ..vehicle import DRIVES, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle
 
 __all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "SensitivitySettings", "ResponseLimit",
            "RobustSettings", "VehicleSettings", "LowFidelitySettings", "Study", "load_study", "read_study_text",
@@ -184,7 +184,7 @@ class EvaluatorSettings:
     table_name: str = "evaluator"
 
     def table(self) -> Table:
-        """The options (all keys but ``kind``) as a checked :class:`~doe.tables.Table`."""
+        """The options (all keys but ``kind``) as a checked :class:`~doe.study.tables.Table`."""
         return Table(self.options, self.source or Source(None), self.table_name)
 
 
@@ -491,7 +491,7 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
                   plan=plan, description=description, fit=fit, sensitivity=sensitivity, robust=robust,
                   vehicle=vehicle, track=track, low_fidelity=low)
-    from .evaluators import check_settings  # late import: evaluators build on studies
+    from ..evaluators import check_settings  # late import: evaluators build on studies
 
     check_settings(study)
     if low is not None:

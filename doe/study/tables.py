@@ -12,7 +12,7 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .errors import StudyError, where
+from ..errors import StudyError, where
 
 __all__ = ["Source", "Table", "REQUIRED", "NAME_PATTERN"]
 

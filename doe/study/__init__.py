@@ -1,0 +1,1 @@
+"""The study: settings dataclasses, the checked TOML reader and the study's files."""
