@@ -73,7 +73,7 @@ def _on_surrogate(quick: bool) -> list[str]:
     import pandas as pd
 
     from doe.plans import make_plan
-    from doe.results import ResultsTable
+    from doe.runs.results import ResultsTable
     from doe.study.reader import read_study_text
     from doe.surrogate import fit_surrogates
 

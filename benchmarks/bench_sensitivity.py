@@ -139,14 +139,14 @@ def _builtin_agreement() -> list:
 
     demo = Path(__file__).resolve().parents[1] / "studies" / "demo_hatch.toml"
     try:
-        from doe.evaluators import builtin  # noqa: F401 - only to know whether the model is installed
+        from doe.runs.evaluators import builtin  # noqa: F401 - only to know whether the model is installed
     except ImportError:
         return ["### Built-in model", "", "Not measured: the built-in model (doe.aero) is not in this tree.", ""]
     if not demo.exists():
         return ["### Built-in model", "", "Not measured: studies/demo_hatch.toml is not in this tree.", ""]
     import warnings
 
-    from doe.evaluators import make_evaluator
+    from doe.runs.evaluators import make_evaluator
     from doe.sensitivity_study import evaluate_points, study_sensitivity
     from doe.study.reader import load_study
 

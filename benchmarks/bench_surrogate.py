@@ -72,7 +72,7 @@ def _builtin_cases():
     """The built-in model on the demo study, one case per of its first three responses, or ([], reason)."""
     try:
         import doe.aero  # noqa: F401
-        from doe.evaluators import make_evaluator
+        from doe.runs.evaluators import make_evaluator
         from doe.study.reader import load_study
     except ImportError as exc:
         return [], f"built-in model skipped: doe.aero is not importable here ({exc})"

@@ -8,9 +8,9 @@ module             job
 doe.study.reader          read and validate a study file
 doe.space          parameters, bounds, constraints, unit-cube scaling
 doe.plans          space-filling plans and augmentation
-doe.evaluators     who turns a run into numbers (builtin, command, recorded)
-doe.execution      running a plan into the append-safe results store
-doe.results        reading plans and results; the results store
+doe.runs.evaluators     who turns a run into numbers (builtin, command, recorded)
+doe.runs.execution      running a plan into the append-safe results store
+doe.runs.results        reading plans and results; the results store
 doe.aero           the built-in low-order aerodynamic model
 =================  ==========================================================
 """

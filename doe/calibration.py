@@ -218,12 +218,12 @@ class Calibration:
         return replace(base, coefficients=self.coefficients())
 
     def evaluator(self, study):
-        """A :class:`~doe.evaluators.builtin.BuiltinEvaluator` of ``study``'s builtin settings, calibrated.
+        """A :class:`~doe.runs.evaluators.builtin.BuiltinEvaluator` of ``study``'s builtin settings, calibrated.
 
         The study's builtin settings come from :func:`builtin_settings_for`;
         every coefficient is replaced by the calibrated set.
         """
-        from .evaluators.builtin import BuiltinEvaluator
+        from .runs.evaluators.builtin import BuiltinEvaluator
 
         settings, conversion = builtin_settings_for(study)
         return BuiltinEvaluator(self.settings(settings), conversion, study.response_names)
@@ -255,7 +255,7 @@ class Calibration:
 
     def save(self, path) -> Path:
         """Write :meth:`to_json` atomically to ``path``; returns the path."""
-        from .results import write_json
+        from .runs.results import write_json
 
         path = Path(path)
         write_json(self.to_json(), path)
@@ -311,7 +311,7 @@ def builtin_settings_for(study) -> tuple[ModelSettings, dict]:
     CalibrationError
         When neither table is of kind ``builtin``.
     """
-    from .evaluators.builtin import read_builtin_settings
+    from .runs.evaluators.builtin import read_builtin_settings
 
     if study.evaluator.kind == "builtin":
         return read_builtin_settings(study)
@@ -417,7 +417,7 @@ def _check_names(coefficients) -> list:
 
 
 def _check_responses(responses, results, units) -> list:
-    from .evaluators.builtin import same_output_unit
+    from .runs.evaluators.builtin import same_output_unit
 
     names = list(responses) if responses is not None else list(results.responses)
     if not names:
@@ -879,7 +879,7 @@ def synthetic_results(study, truth: dict, noise: dict | None = None, runs: int |
     ResultsTable
     """
     from .plans import make_plan
-    from .results import ResultsTable
+    from .runs.results import ResultsTable
 
     settings, conversion = builtin_settings_for(study)
     try:

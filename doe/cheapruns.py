@@ -89,9 +89,9 @@ def run_cheap(study, expensive: pd.DataFrame, path, jobs: int = 1, progress: boo
     results : ResultsTable
         Every run in the file (the ok ones are fitted).
     """
-    from .evaluators import make_evaluator
-    from .execution import evaluate_plan
-    from .results import read_results
+    from .runs.evaluators import make_evaluator
+    from .runs.execution import evaluate_plan
+    from .runs.results import read_results
 
     path = Path(path)
     workspace = workspace if workspace is not None else path.parent / "cheap_cases"

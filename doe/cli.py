@@ -31,7 +31,7 @@ def _say(text: str) -> None:
 
 
 def _write_json(data, path: Path) -> None:
-    from .results import write_json
+    from .runs.results import write_json
 
     write_json(data, path)
 
@@ -54,7 +54,7 @@ def _add_plan(sub):
 
 def _cmd_plan(args):
     from .plans import augment_plan, make_plan
-    from .results import read_plan, write_plan
+    from .runs.results import read_plan, write_plan
     from .study.reader import load_study
 
     study = load_study(args.study)
@@ -97,9 +97,9 @@ def _add_evaluate(sub):
 
 def _cmd_evaluate(args):
     from .cheapruns import cheap_study
-    from .evaluators import make_evaluator
-    from .execution import evaluate_plan
-    from .results import read_plan
+    from .runs.evaluators import make_evaluator
+    from .runs.execution import evaluate_plan
+    from .runs.results import read_plan
     from .study.reader import load_study
 
     study = load_study(args.study)
@@ -132,7 +132,7 @@ def _add_results_options(p, results_required: bool = True):
 
 def _study_results(args):
     """The study, its results and the seed, for the verbs that start from a results CSV."""
-    from .results import read_results
+    from .runs.results import read_results
     from .study.reader import load_study
 
     study = load_study(args.study)
@@ -166,7 +166,7 @@ def _add_fit(sub):
 
 
 def _cmd_fit(args):
-    from .results import read_points, write_plan
+    from .runs.results import read_points, write_plan
     from .surrogate import prediction_frame
 
     study, results, seed = _study_results(args)
@@ -208,7 +208,7 @@ def _add_next(sub):
 def _cmd_next(args):
     from .adaptive import propose_runs
     from .nestedplan import is_two_fidelity, nested_runs
-    from .results import read_plan, write_plan
+    from .runs.results import read_plan, write_plan
 
     study, results, seed = _study_results(args)
     pending = read_plan(args.pending, study) if args.pending is not None else None
@@ -260,7 +260,7 @@ def _add_sensitivity(sub):
 
 def _cmd_sensitivity(args):
     from . import sensitivity_study as ss
-    from .results import read_results
+    from .runs.results import read_results
     from .study.reader import load_study
 
     study = load_study(args.study)
@@ -492,7 +492,7 @@ def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     warnings.showwarning = _warning_line
-    from .execution import Interrupted
+    from .runs.execution import Interrupted
 
     try:
         args.func(args)

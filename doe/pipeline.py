@@ -32,7 +32,7 @@ from pathlib import Path
 import pandas as pd
 
 from .errors import DoeError
-from .results import write_json
+from .runs.results import write_json
 
 __all__ = ["StudyFiles", "run_study", "analyse_and_report", "NEXT_RUNS_DEFAULT"]
 
@@ -144,15 +144,15 @@ def run_study(study, out=None, jobs: int = 1, scheduler: str | None = None, prog
     next_runs : int
         Runs to propose for the next round (0: none).
     """
-    from .evaluators import make_evaluator
-    from .execution import evaluate_plan
+    from .runs.evaluators import make_evaluator
+    from .runs.execution import evaluate_plan
     from .plans import make_plan
-    from .results import read_plan, write_plan
+    from .runs.results import read_plan, write_plan
 
     files = StudyFiles(Path(out) if out is not None else study.default_output)
     steps = _Steps(7)
     if study.evaluator.kind == "recorded":
-        from .evaluators.recorded import RecordedSettings
+        from .runs.evaluators.recorded import RecordedSettings
 
         recorded = study.resolve(RecordedSettings.read(study).file)
         steps("plan", "none needed: the study's results are recorded")
@@ -184,7 +184,7 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
     in the output folder).
     """
     from .report import ReportInputs, build_report
-    from .results import read_results
+    from .runs.results import read_results
 
     steps = steps or _Steps(5)  # fit, sensitivity, robust, next runs, report
     results_path = Path(results_path)
@@ -277,7 +277,7 @@ def _robust_step(study, sset, results, files: StudyFiles, steps):
 def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
     from .adaptive import accuracy_status, propose_runs
     from .nestedplan import is_two_fidelity, nested_runs
-    from .results import read_plan, write_plan
+    from .runs.results import read_plan, write_plan
 
     met, sentence = accuracy_status(sset)
     if k <= 0 or met:

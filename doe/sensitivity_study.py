@@ -153,7 +153,7 @@ def evaluate_points(study, X, evaluator):
     """
     import pandas as pd
 
-    from .results import ResultsTable
+    from .runs.results import ResultsTable
 
     names, ids = study.space.names, [f"r{i}" for i in range(len(X))]
     outcomes = evaluator.evaluate_many(ids, [dict(zip(names, map(float, x))) for x in X])
@@ -179,7 +179,7 @@ def _study_model(study, evaluator, what: str):
         if study.evaluator.kind == "recorded":
             raise SensitivityError(f"{study.name}: {what} needs an evaluator that can run new points; "
                                    "a 'recorded' evaluator cannot (use the surrogate route)")
-        from .evaluators import make_evaluator
+        from .runs.evaluators import make_evaluator
 
         evaluator = make_evaluator(study)
     return evaluator_model(evaluator, study.space.names, study.response_names)

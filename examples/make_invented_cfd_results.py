@@ -11,7 +11,7 @@ from pathlib import Path
 
 import numpy as np
 
-from doe.evaluators.builtin import BuiltinEvaluator
+from doe.runs.evaluators.builtin import BuiltinEvaluator
 from doe.plans import make_plan
 from doe.study.reader import load_study, read_study_text
 

@@ -15,7 +15,7 @@ from doe.aero.section_analysis import analyse_section
 from doe.aero.sections import naca4
 from doe.cli import main
 from doe.errors import StudyError
-from doe.evaluators import make_evaluator
+from doe.runs.evaluators import make_evaluator
 from doe.study.reader import load_study, read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -23,8 +23,8 @@ from doe.calibration import (CORRELATION_LIMIT, builtin_settings_for, calibrate,
                              read_calibrated_coefficients, synthetic_results)
 from doe.cli import main
 from doe.errors import CalibrationError, DoeError, StudyError
-from doe.evaluators import make_evaluator
-from doe.results import ResultsTable, read_results, write_plan
+from doe.runs.evaluators import make_evaluator
+from doe.runs.results import ResultsTable, read_results, write_plan
 from doe.study.reader import load_study, read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]

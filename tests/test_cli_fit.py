@@ -5,7 +5,7 @@ import numpy as np
 import pandas as pd
 
 from doe.cli import main
-from doe.results import read_plan
+from doe.runs.results import read_plan
 from doe.study.reader import load_study
 from test_surrogate import STUDY, branin_results
 

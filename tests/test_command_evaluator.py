@@ -11,8 +11,8 @@ import pandas as pd
 import pytest
 
 from doe.cli import main
-from doe.evaluators import make_evaluator
-from doe.results import read_results
+from doe.runs.evaluators import make_evaluator
+from doe.runs.results import read_results
 from doe.study.reader import load_study
 
 PLAN = "run_id,x1,x2\n" + "\n".join(f"r{i:03d},{i * 0.9:.2f},{20 + 10 * i}" for i in range(1, 9)) + "\n"

@@ -13,8 +13,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from doe.evaluators.base import Evaluator, Outcome
-from doe.execution import evaluate_plan
+from doe.runs.evaluators.base import Evaluator, Outcome
+from doe.runs.execution import evaluate_plan
 
 from conftest import BASE_STUDY, write_study
 
@@ -65,7 +65,7 @@ def test_local_processes_equal_serial_row_for_row(tmp_path):
 
 def test_dask_local_cluster_equals_serial_row_for_row(tmp_path):
     pytest.importorskip("distributed")
-    from doe.executors import DaskCluster
+    from doe.runs.executors import DaskCluster
 
     plan = toy_plan(16)
     evaluate_plan(plan, Toy(), tmp_path / "serial.csv", ["x1", "x2"], progress=False)

@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 
 from doe.cli import main
 from doe.errors import DoeError
-from doe.results import read_plan, read_results
+from doe.runs.results import read_plan, read_results
 from doe.study.reader import load_study, read_study_text
 
 from conftest import BASE_STUDY, write_study

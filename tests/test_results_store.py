@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 
 from doe.errors import ResultsError, StoreLockedError
-from doe.evaluators.base import Outcome
-from doe.results import ResultsStore, read_results
+from doe.runs.evaluators.base import Outcome
+from doe.runs.results import ResultsStore, read_results
 from doe.study.reader import load_study
 
 

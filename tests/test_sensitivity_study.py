@@ -9,7 +9,7 @@ from scipy.stats import qmc
 from doe.testing import functions as tf
 from doe.cli import main
 from doe.errors import SensitivityError, StudyError
-from doe.evaluators.base import Evaluator, Outcome
+from doe.runs.evaluators.base import Evaluator, Outcome
 from doe.screening import morris_screening
 from doe.sensitivity_study import (evaluate_points, evaluator_model, study_inputs, study_screening,
                                   study_sensitivity)
@@ -111,7 +111,7 @@ def test_study_inputs_uniform_and_around(study):
 
 
 def test_direct_and_surrogate_routes_agree_within_intervals(study, tmp_path):
-    from doe.results import read_results
+    from doe.runs.results import read_results
 
     s1, st = exact_indices()
     direct = study_sensitivity(study, direct=True, evaluator=FunctionEvaluator(["y"]), base_samples=2**11)["y"]
@@ -211,11 +211,11 @@ def test_direct_and_surrogate_agree_on_the_builtin_model():
     import dataclasses
     from pathlib import Path
 
-    pytest.importorskip("doe.evaluators.builtin")
+    pytest.importorskip("doe.runs.evaluators.builtin")
     demo = Path(__file__).resolve().parents[1] / "studies" / "demo_hatch.toml"
     if not demo.exists():
         pytest.skip("the demo study is not in this tree")
-    from doe.evaluators import make_evaluator
+    from doe.runs.evaluators import make_evaluator
     from doe.plans import maximin_lhs
     from doe.study.reader import load_study
 

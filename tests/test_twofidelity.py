@@ -9,7 +9,7 @@ import pytest
 
 from doe.cli import main
 from doe.nestedplan import runs_to_target
-from doe.results import read_plan
+from doe.runs.results import read_plan
 from doe.study.reader import load_study, read_study_text
 from doe.surrogate import ResponseSurrogate, load_surrogates
 from doe.testing.functions import branin
@@ -250,7 +250,7 @@ def test_nested_plan_spreads_more_cheap_runs_when_the_cheap_map_is_poor(two_leve
     import doe.nestedplan as nestedplan
     from doe.adaptive import propose_runs
     from doe.cheapruns import study_surrogates
-    from doe.results import read_results
+    from doe.runs.results import read_results
 
     study = load_study(two_level_study)
     sset = study_surrogates(study, read_results(tmp_path / "high.csv", study), progress=False)

@@ -491,7 +491,7 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     study = Study(name=name, path=path, space=space, responses=responses, evaluator=evaluator,
                   plan=plan, description=description, fit=fit, sensitivity=sensitivity, robust=robust,
                   vehicle=vehicle, track=track, low_fidelity=low)
-    from ..evaluators import check_settings  # late import: evaluators build on studies
+    from ..runs.evaluators import check_settings  # late import: evaluators build on studies
 
     check_settings(study)
     if low is not None:

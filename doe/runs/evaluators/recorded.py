@@ -1,7 +1,7 @@
 """The ``recorded`` evaluator: runs looked up in results measured elsewhere.
 
 For results from CFD, a tunnel or a track, kept in a results CSV (see
-:mod:`doe.results`). A planned run is answered by the recorded row with the same
+:mod:`doe.runs.results`). A planned run is answered by the recorded row with the same
 ``run_id`` whose parameters match, or else by the row at the same point; a run
 with no recorded answer is a failed run that says so, so the engineer knows
 which cases are still to be run.

@@ -12,7 +12,7 @@ their outcomes as each finishes, in whatever order. Two kinds:
     address here), or ``"local"`` for a cluster of local processes. Needs the
     optional extra ``pip install 'doe[cluster]'``.
 
-The caller (:mod:`doe.execution`) keeps at most a few tasks per worker in
+The caller (:mod:`doe.runs.execution`) keeps at most a few tasks per worker in
 flight, so a plan of any size streams through without piling up in memory.
 """
 from __future__ import annotations
@@ -22,7 +22,7 @@ from abc import ABC, abstractmethod
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 
-from .errors import DoeError
+from ..errors import DoeError
 
 __all__ = ["Executor", "LocalProcesses", "DaskCluster", "WorkerDied", "make_executor", "run_task"]
 

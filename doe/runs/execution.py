@@ -1,6 +1,6 @@
 """Running a plan through an evaluator into the results store.
 
-Runs go out through one small executor interface (:mod:`doe.executors`: this
+Runs go out through one small executor interface (:mod:`doe.runs.executors`: this
 process, local processes, or a Dask cluster), and each result is stored by this
 process as soon as it comes back, so a killed or interrupted evaluation keeps
 every finished run and resumes where it stopped. At most a few tasks per worker
@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 from tqdm import tqdm
 
-from .errors import DoeError, ResultsError
+from ..errors import DoeError, ResultsError
 from .evaluators.base import failed
 from .executors import LocalProcesses, WorkerDied, make_executor
 from .results import ResultsStore

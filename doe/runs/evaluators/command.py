@@ -29,7 +29,7 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..errors import EvaluatorError
+from ...errors import EvaluatorError
 from .base import Evaluator, Outcome, failed
 
 __all__ = ["CommandSettings", "CommandEvaluator", "safe_run_id", "RUN_ID_PATTERN"]

@@ -28,7 +28,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import ResultsError, StoreLockedError, where
+from ..errors import ResultsError, StoreLockedError, where
 from .evaluators.base import Outcome
 from .evaluators.command import safe_run_id
 

@@ -8,13 +8,13 @@ command    the user's own program, once per run, in its own case folder
 recorded   looks runs up in a CSV of results from CFD, tunnel or track
 ========== ============================================================
 
-All follow :class:`~doe.evaluators.base.Evaluator`. Use :func:`make_evaluator`.
+All follow :class:`~doe.runs.evaluators.base.Evaluator`. Use :func:`make_evaluator`.
 """
 from __future__ import annotations
 
 from pathlib import Path
 
-from ..errors import EvaluatorError
+from ...errors import EvaluatorError
 from .base import Evaluator, Outcome, failed
 
 __all__ = ["Evaluator", "Outcome", "failed", "make_evaluator", "check_settings"]

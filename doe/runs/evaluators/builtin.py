@@ -2,7 +2,7 @@
 
 A thin adapter: it reads the ``[evaluator]`` settings, maps study parameters
 to the model's inputs by name (converting units) and turns the model's outputs
-into :class:`~doe.evaluators.base.Outcome` objects. The physics, its
+into :class:`~doe.runs.evaluators.base.Outcome` objects. The physics, its
 assumptions and its limits are in :mod:`doe.aero.model`: a low-order model for
 ranking and planning, not for certifying loads.
 
@@ -61,9 +61,9 @@ from dataclasses import fields
 
 import numpy as np
 
-from ..aero.car import CarGeometry
-from ..aero.model import DESIGN_INPUTS, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
-from ..errors import AeroError, DoeError
+from ...aero.car import CarGeometry
+from ...aero.model import DESIGN_INPUTS, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
+from ...errors import AeroError, DoeError
 from .base import Evaluator, Outcome, failed
 
 __all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings", "same_output_unit"]
@@ -135,7 +135,7 @@ def _calibrated(study, t) -> dict:
     name = t.take("calibration", str, default=None)
     if name is None:
         return {}
-    from ..calibration import read_calibrated_coefficients
+    from ...calibration import read_calibrated_coefficients
 
     try:
         return read_calibrated_coefficients(study.resolve(name))

@@ -1,0 +1,1 @@
+"""Runs: outcomes, the results store, execution, executors (local, Dask) and the evaluators."""
