@@ -75,7 +75,7 @@ def _on_surrogate(quick: bool) -> list[str]:
     from doe.plans import make_plan
     from doe.runs.results import ResultsTable
     from doe.study.reader import read_study_text
-    from doe.surrogate import fit_surrogates
+    from doe.surrogate.gp import fit_surrogates
 
     tf = get("hartmann3")
     params = "".join(f'[[parameters]]\nname = "{n}"\nunit = "-"\nlow = 0.0\nhigh = 1.0\ntolerance = 0.03\n\n'

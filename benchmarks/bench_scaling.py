@@ -13,7 +13,7 @@ import time
 import numpy as np
 
 from doe.plans import maximin_lhs
-from doe.surrogate import ResponseSurrogate
+from doe.surrogate.gp import ResponseSurrogate
 from doe.testing.functions import g_function
 
 SEED = 3

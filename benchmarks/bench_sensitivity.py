@@ -1,7 +1,7 @@
 """Sobol indices: evaluator runs needed by the surrogate route and the direct route, interval coverage, cost.
 
 For a test function with analytic indices, the *surrogate route* fits
-``doe.surrogate`` to ``n`` runs of an optimised Latin hypercube
+``doe.surrogate.gp`` to ``n`` runs of an optimised Latin hypercube
 (``doe.plans.maximin_lhs``) and computes the indices on the posterior mean,
 with intervals from the estimator and the posterior paths; the *direct route*
 gives SALib's estimators ``N (d + 2)`` calls of the function itself. For
@@ -22,7 +22,7 @@ from doe.distributions import InputDistribution
 from doe.plans import maximin_lhs
 from doe.sensitivity import sobol_indices
 from doe.sensitivity_study import surrogate_callables
-from doe.surrogate import ResponseSurrogate, SurrogateSet
+from doe.surrogate.gp import ResponseSurrogate, SurrogateSet
 
 TARGETS = (0.05, 0.02)
 #: Surrogate settings: kernel chosen by leave-one-out as in ``doe fit``, one optimiser restart to keep this short.

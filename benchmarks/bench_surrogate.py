@@ -38,7 +38,7 @@ if str(ROOT) not in sys.path:
 from doe.testing import functions as tf  # noqa: E402
 from doe.adaptive import run_adaptive  # noqa: E402
 from doe.plans import maximin_lhs  # noqa: E402
-from doe.surrogate import ResponseSurrogate  # noqa: E402
+from doe.surrogate.gp import ResponseSurrogate  # noqa: E402
 
 THRESHOLDS = (0.95, 0.99)
 FIT = dict(kernel="sqexp", trend="constant", restarts=1)

@@ -4,8 +4,8 @@ For each pair of an expensive ("high") and a cheap ("low") function on the unit
 cube, :func:`runs_to_target` grows the number of expensive runs in steps and
 fits, at each step and for each seed,
 
-* ``high only``: :class:`doe.surrogate.ResponseSurrogate` on the expensive runs;
-* ``with low``: :class:`doe.twofidelity.TwoFidelitySurrogate` on the same
+* ``high only``: :class:`doe.surrogate.gp.ResponseSurrogate` on the expensive runs;
+* ``with low``: :class:`doe.surrogate.twofidelity.TwoFidelitySurrogate` on the same
   expensive runs plus a fixed budget of cheap runs (a maximin Latin hypercube),
   the cheap model being also run at every expensive point (nested design), so
   the cheap budget is ``n_low + n_high``.
@@ -42,7 +42,7 @@ if str(ROOT) not in sys.path:
 
 from doe.testing import functions as tf  # noqa: E402
 from doe.plans import maximin_lhs  # noqa: E402
-from doe.surrogate import ResponseSurrogate  # noqa: E402
+from doe.surrogate.gp import ResponseSurrogate  # noqa: E402
 
 TARGET = 0.95
 #: The same kernel settings for both surrogates, so that only the cheap data differ.
@@ -95,7 +95,7 @@ def _finite(U, *ys):
 
 
 def _two_fidelity_default(seed, **fit):
-    from doe.twofidelity import TwoFidelitySurrogate
+    from doe.surrogate.twofidelity import TwoFidelitySurrogate
 
     return TwoFidelitySurrogate(seed=seed, compare=False, **fit)   # the comparison is made here
 
@@ -129,7 +129,7 @@ def runs_to_target(high, low, d, *, n_low, steps, seeds, target=TARGET, n_test=1
     two_fidelity : callable, optional
         ``two_fidelity(seed, **fit)`` -> an unfitted two-fidelity surrogate with
         ``fit(X_low, y_low, X_high, y_high, y_low_high=...)`` and ``predict``;
-        default :class:`doe.twofidelity.TwoFidelitySurrogate`.
+        default :class:`doe.surrogate.twofidelity.TwoFidelitySurrogate`.
 
     Returns
     -------

@@ -383,7 +383,7 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
         for each round's proposal and finally with the refitted last one; a
         true return value stops the loop early.
     **fit_options
-        Options of :class:`~doe.surrogate.ResponseSurrogate`.
+        Options of :class:`~doe.surrogate.gp.ResponseSurrogate`.
 
     Returns
     -------
@@ -392,7 +392,7 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
     model : ResponseSurrogate
         Fitted (hyperparameters estimated) on all runs.
     """
-    from .surrogate import ResponseSurrogate, SurrogateSet
+    from .surrogate.gp import ResponseSurrogate, SurrogateSet
 
     U = np.asarray(U0, dtype=float)
     y = np.asarray(func(U), dtype=float)

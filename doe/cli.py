@@ -143,7 +143,7 @@ def _study_results(args):
 def _surrogates(args, study, results, seed):
     """Surrogates loaded from ``--surrogate`` when given, else fitted to the results."""
     from .cheapruns import study_surrogates
-    from .surrogate import load_surrogates
+    from .surrogate.gp import load_surrogates
 
     if getattr(args, "surrogate", None):
         return load_surrogates(args.surrogate, study)
@@ -167,7 +167,7 @@ def _add_fit(sub):
 
 def _cmd_fit(args):
     from .runs.results import read_points, write_plan
-    from .surrogate import prediction_frame
+    from .surrogate.gp import prediction_frame
 
     study, results, seed = _study_results(args)
     sset = _surrogates(args, study, results, seed)

@@ -1,6 +1,6 @@
 """Next runs with two fidelities: the cheap runs that go with them, and the expensive runs saved.
 
-When a study's surrogates lean on a cheap model (:mod:`doe.twofidelity`),
+When a study's surrogates lean on a cheap model (:mod:`doe.surrogate.twofidelity`),
 ``doe next`` proposes expensive runs as usual (:mod:`doe.adaptive`: the
 two-fidelity variance already counts the cheap level's share) and a nested
 plan of cheap runs: one at every proposed expensive run, so that the
@@ -150,7 +150,7 @@ def expected_savings(sset, seed=0) -> dict:
         largest over responses (every response must meet the target); None
         when a curve cannot be extrapolated.
     """
-    from .surrogate import ResponseSurrogate
+    from .surrogate.gp import ResponseSurrogate
 
     out, need_two, need_one, n_now = {}, [], [], 0
     for name, model in sset.models.items():

@@ -223,7 +223,7 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
 
 def _fit_step(study, results, results_path: Path, files: StudyFiles, steps, fidelity=None, cheap_path=None):
     from .cheapruns import study_surrogates, wants_two_fidelity
-    from .surrogate import load_surrogates
+    from .surrogate.gp import load_surrogates
 
     two = wants_two_fidelity(study, fidelity)
     cheap_path = Path(cheap_path) if cheap_path is not None else files.cheap_results

@@ -759,12 +759,12 @@ def only_responses(surrogates, names):
 
     Parameters
     ----------
-    surrogates : doe.surrogate.SurrogateSet
+    surrogates : doe.surrogate.gp.SurrogateSet
     names : sequence of str
 
     Returns
     -------
-    doe.surrogate.SurrogateSet
+    doe.surrogate.gp.SurrogateSet
         The same models for ``names``; the others are left out.
     """
     missing = [n for n in names if n not in surrogates.models]

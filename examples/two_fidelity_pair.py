@@ -12,9 +12,9 @@ from __future__ import annotations
 import numpy as np
 
 from doe.plans import maximin_lhs
-from doe.surrogate import ResponseSurrogate
+from doe.surrogate.gp import ResponseSurrogate
 from doe.testing.functions import get_pair
-from doe.twofidelity import TwoFidelitySurrogate
+from doe.surrogate.twofidelity import TwoFidelitySurrogate
 
 high_fn, low_fn = get_pair("currin")
 high, low, d = high_fn.on_unit, low_fn.on_unit, high_fn.dim

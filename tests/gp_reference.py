@@ -2,7 +2,7 @@
 
 Reference library for the surrogate route's tests (scikit-learn's
 ``GaussianProcessRegressor``, Rasmussen & Williams 2006, Alg. 2.1), independent
-of :mod:`doe.surrogate`. Joint posterior draws use a Cholesky factor of the
+of :mod:`doe.surrogate.gp`. Joint posterior draws use a Cholesky factor of the
 posterior covariance with a small relative jitter.
 """
 import warnings

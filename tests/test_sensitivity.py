@@ -16,7 +16,7 @@ from doe.sensitivity import sobol_indices
 from doe.sensitivity_report import describe, to_json
 from doe.sensitivity_study import surrogate_callables
 from doe.space import Parameter, Space
-from doe.surrogate import ResponseSurrogate, SurrogateSet
+from doe.surrogate.gp import ResponseSurrogate, SurrogateSet
 
 sys.path.insert(0, str(Path(__file__).parent))
 from gp_reference import fit_reference_gp  # noqa: E402
@@ -169,7 +169,7 @@ def test_saltelli_sample_prefix_is_stable_when_doubled():
 
 # ---------------------------------------------------------------------------
 def project_surrogate(space, U, y, seed=0):
-    """doe.surrogate's GP (squared-exponential kernel fixed to keep the test fast) as sensitivity callables."""
+    """doe.surrogate.gp's GP (squared-exponential kernel fixed to keep the test fast) as sensitivity callables."""
     gp = ResponseSurrogate(kernel="sqexp", trend="constant", noise="fixed", restarts=1, seed=seed).fit(U, y)
     return surrogate_callables(SurrogateSet(space, {"y": gp}, {"y": "-"}, {"y": "none"}, list(map(str, range(len(y))))))
 
@@ -205,7 +205,7 @@ def test_surrogate_share_vanishes_without_posterior_spread():
 
 
 def test_surrogate_share_grows_with_posterior_spread():
-    # reference library: scikit-learn's GaussianProcessRegressor (tests/gp_reference.py), not doe.surrogate
+    # reference library: scikit-learn's GaussianProcessRegressor (tests/gp_reference.py), not doe.surrogate.gp
     f = tf.get("ishigami")
     space = f.space()
     inputs = InputDistribution.uniform(space)

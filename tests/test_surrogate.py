@@ -13,7 +13,7 @@ from doe.errors import NotFittedError, StudyError, SurrogateError
 from doe.plans import maximin_lhs
 from doe.runs.results import ResultsTable
 from doe.study.reader import read_study_text
-from doe.surrogate import ResponseSurrogate, fit_surrogates, load_surrogates
+from doe.surrogate.gp import ResponseSurrogate, fit_surrogates, load_surrogates
 
 FAST = dict(kernel="sqexp", trend="constant", restarts=2)  # one kernel: tests of other things stay fast
 
@@ -244,8 +244,8 @@ def test_fit_table_is_checked():
 @pytest.mark.parametrize("name", ["branin", "hartmann3"])
 def test_a_corrupted_run_is_flagged(name):
     # one value shifted by 3 standard deviations of the response (a unit slip); functions from
-    # Surjanovic & Bingham (VLSE). The clean data must not be flagged (verdict rules in doe.fitreport).
-    from doe.fitreport import verdict
+    # Surjanovic & Bingham (VLSE). The clean data must not be flagged (verdict rules in doe.surrogate.diagnostics).
+    from doe.surrogate.diagnostics import verdict
 
     f, U, y = _data(name, 30, seed=2)
     bad = y.copy()

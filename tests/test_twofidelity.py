@@ -1,4 +1,4 @@
-"""Two-fidelity surrogates (doe.twofidelity), cheap runs (doe.cheapruns) and nested next runs (doe.nestedplan)."""
+"""Two-fidelity surrogates (doe.surrogate.twofidelity), cheap runs (doe.cheapruns) and nested next runs (doe.nestedplan)."""
 import json
 import sys
 import textwrap
@@ -11,9 +11,9 @@ from doe.cli import main
 from doe.nestedplan import runs_to_target
 from doe.runs.results import read_plan
 from doe.study.reader import load_study, read_study_text
-from doe.surrogate import ResponseSurrogate, load_surrogates
+from doe.surrogate.gp import ResponseSurrogate, load_surrogates
 from doe.testing.functions import branin
-from doe.twofidelity import TwoFidelitySurrogate
+from doe.surrogate.twofidelity import TwoFidelitySurrogate
 
 
 def forrester_high(x):

@@ -20,8 +20,8 @@ from scipy.optimize import minimize_scalar
 from doe.testing import functions as tf
 from doe.errors import DoeError
 from doe.plans import maximin_lhs
-from doe.surrogate import ResponseSurrogate
-from doe.twofidelity import TwoFidelitySurrogate
+from doe.surrogate.gp import ResponseSurrogate
+from doe.surrogate.twofidelity import TwoFidelitySurrogate
 
 RNG_POINTS = np.random.default_rng(20130101).random((25, 8))  # interior points of the unit cube
 

@@ -128,7 +128,7 @@ class PlanSettings:
 
 @dataclass(frozen=True)
 class FitSettings:
-    """``[fit]``: how surrogates are fitted (see :mod:`doe.surrogate`).
+    """``[fit]``: how surrogates are fitted (see :mod:`doe.surrogate.gp`).
 
     Attributes
     ----------
@@ -158,7 +158,7 @@ class FitSettings:
     fidelity : {"auto", "single", "two"}
         ``two``: a two-fidelity surrogate per response (the results are the
         expensive level, the ``[low_fidelity]`` model the cheap one, see
-        :mod:`doe.twofidelity`); ``single``: the results alone; ``auto``:
+        :mod:`doe.surrogate.twofidelity`); ``single``: the results alone; ``auto``:
         ``two`` when the study has a ``[low_fidelity]`` table.
     """
 
@@ -190,7 +190,7 @@ class EvaluatorSettings:
 
 @dataclass(frozen=True)
 class LowFidelitySettings:
-    """``[low_fidelity]``: the cheap model behind a two-fidelity surrogate (see :mod:`doe.twofidelity`).
+    """``[low_fidelity]``: the cheap model behind a two-fidelity surrogate (see :mod:`doe.surrogate.twofidelity`).
 
     Attributes
     ----------

@@ -71,9 +71,9 @@ from threadpoolctl import threadpool_limits
 from sklearn.gaussian_process import GaussianProcessRegressor
 from sklearn.gaussian_process.kernels import RBF, ConstantKernel, DotProduct, Matern, WhiteKernel
 
-from . import gppaths
-from .errors import NotFittedError, SurrogateError
-from .fitreport import hyperparameter_statements, response_report
+from . import paths as gppaths
+from ..errors import NotFittedError, SurrogateError
+from .diagnostics import hyperparameter_statements, response_report
 
 __all__ = ["ResponseSurrogate", "SurrogateSet", "LooResult", "fit_surrogates", "load_surrogates", "prediction_frame",
            "FAMILIES", "TRENDS", "NOISE_MODES", "SELECTIONS", "LENGTH_SCALE_BOUNDS", "NOISE_BOUNDS",
@@ -526,7 +526,7 @@ class ResponseSurrogate:
             ``exact``: Cholesky of the ``m x m`` posterior covariance, cost
             ``O(m^3)``, used by ``auto`` up to ``gppaths.EXACT_MAX`` points;
             ``features``: pathwise conditioning of a random-feature prior
-            draw, cost linear in ``m`` (see :mod:`doe.gppaths`).
+            draw, cost linear in ``m`` (see :mod:`doe.surrogate.paths`).
 
         Returns
         -------
@@ -661,7 +661,7 @@ def _optimiser_notes(caught, starts: int) -> list:
         text = str(w.message)
         if issubclass(w.category, ConvergenceWarning):
             if "close to the specified" in text:
-                continue  # hyperparameters at a bound: see doe.fitreport.hyperparameter_statements
+                continue  # hyperparameters at a bound: see doe.surrogate.diagnostics.hyperparameter_statements
             failed += 1
         else:
             other.append(text.splitlines()[0])
@@ -711,7 +711,7 @@ class SurrogateSet:
         return list(self.models)
 
     def _unit_points(self, X) -> np.ndarray:
-        from .errors import DoeError
+        from ..errors import DoeError
 
         try:
             return self.space.to_unit(X)
@@ -749,7 +749,7 @@ class SurrogateSet:
         return {name: m.sample_paths(U, n_paths, int(s), method) for (name, m), s in zip(self.models.items(), seeds)}
 
     def fit_report(self) -> dict:
-        """The content of ``fit.json``: ``{response: {...}}`` (keys in :mod:`doe.fitreport`)."""
+        """The content of ``fit.json``: ``{response: {...}}`` (keys in :mod:`doe.surrogate.diagnostics`)."""
         return {name: response_report(m, self, name) for name, m in self.models.items()}
 
     def accuracy_met(self) -> bool:
@@ -851,7 +851,7 @@ def fit_surrogates(study, results, seed=0, low_results=None, **options) -> Surro
     low_results : ResultsTable, optional
         Cheap runs of the study's low-fidelity model (``[low_fidelity]``).
         With them (and ``fidelity`` not ``"single"``) each response gets a
-        :class:`doe.twofidelity.TwoFidelitySurrogate`: ``results`` are the
+        :class:`doe.surrogate.twofidelity.TwoFidelitySurrogate`: ``results`` are the
         expensive level.
     **options
         Override ``[fit]`` settings: ``kernel``, ``trend``, ``noise``,

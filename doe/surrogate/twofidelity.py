@@ -8,7 +8,7 @@ of Le Gratiet & Garnier (2014)::
     y_high(x) = rho * y_low(x) + delta(x)
 
 ``y_low`` is a Gaussian process fitted to the cheap runs (a
-:class:`~doe.surrogate.ResponseSurrogate`); ``delta``, the discrepancy, is a
+:class:`~doe.surrogate.gp.ResponseSurrogate`); ``delta``, the discrepancy, is a
 second Gaussian process, independent of the first, fitted to
 ``d_i = y_high_i - rho * y_low(x_i)`` at the expensive runs. ``y_low(x_i)`` is
 the cheap model's own value at ``x_i`` when it was run there (a nested plan:
@@ -23,7 +23,7 @@ squares ``rho`` of ``y_high ~ 1 + x + rho y_low``, generalised-least-squares
 steps from the best (for fixed hyperparameters the likelihood's best ``rho``
 is the GLS coefficient), then a bounded Brent search, each trial fitting one
 kernel family; the discrepancy
-is then refitted with the full kernel choice of :mod:`doe.surrogate` at the
+is then refitted with the full kernel choice of :mod:`doe.surrogate.gp` at the
 ``rho`` found.
 
 Prediction (Le Gratiet & Garnier 2014, recursive formulation)::
@@ -61,9 +61,9 @@ import numpy as np
 from scipy.linalg import cho_solve
 from scipy.optimize import minimize_scalar
 
-from .errors import NotFittedError, SurrogateError
-from .fitreport import _num
-from .surrogate import DUPLICATE_TOL, LooResult, ResponseSurrogate
+from ..errors import NotFittedError, SurrogateError
+from .diagnostics import _num
+from .gp import DUPLICATE_TOL, LooResult, ResponseSurrogate
 
 __all__ = ["TwoFidelitySurrogate", "match_points", "RHO_GRID"]
 
@@ -107,7 +107,7 @@ class TwoFidelitySurrogate:
     Parameters
     ----------
     kernel, trend, noise, restarts, nugget, selection, seed, names, length_scale_prior
-        As for :class:`~doe.surrogate.ResponseSurrogate`; they apply to the
+        As for :class:`~doe.surrogate.gp.ResponseSurrogate`; they apply to the
         discrepancy. The cheap runs are fitted with the same kernel options,
         one extra optimiser start and a fixed nugget (a low-order model is
         deterministic) unless their replicates disagree.
@@ -366,7 +366,7 @@ class TwoFidelitySurrogate:
         return parts
 
     def two_fidelity_record(self) -> dict:
-        """The ``two_fidelity`` entry of ``fit.json`` (keys in :mod:`doe.fitreport`)."""
+        """The ``two_fidelity`` entry of ``fit.json`` (keys in :mod:`doe.surrogate.diagnostics`)."""
         self._check_fitted()
         return {"rho": float(self.rho_), "cheap_runs": int(len(self.low_.y_)),
                 "cheap_q2_loo": _num(self.low_.loo_.q2),
@@ -413,7 +413,7 @@ class TwoFidelitySurrogate:
         -------
         ndarray, shape (n_paths, m)
             Response unit. Cost: twice that of
-            :meth:`doe.surrogate.ResponseSurrogate.sample_paths`.
+            :meth:`doe.surrogate.gp.ResponseSurrogate.sample_paths`.
         """
         self._check_fitted()
         a, b = np.random.default_rng(seed).integers(2**63 - 1, size=2)

@@ -32,7 +32,7 @@ Keys of each response (units in brackets):
 ``log_marginal_likelihood``    of the kept kernel, normalised data [-]
 ``fit_seconds``                wall time of the fit [s]
 ``fidelity``                   ``"single"`` (the runs alone) or ``"two"`` (the runs as the expensive
-                               level over a cheap model, :mod:`doe.twofidelity`); for ``"two"`` the
+                               level over a cheap model, :mod:`doe.surrogate.twofidelity`); for ``"two"`` the
                                kernel, length scales and noise above are the discrepancy's, and the
                                leave-one-out figures are over the expensive runs
 ``two_fidelity``               only when ``fidelity`` is ``"two"``: ``rho`` (scale of the cheap model
@@ -98,7 +98,7 @@ def hyperparameter_statements(model) -> list:
     -------
     list of str
     """
-    from .surrogate import AMPLITUDE_BOUNDS, LENGTH_SCALE_BOUNDS, NOISE_BOUNDS
+    from .gp import AMPLITUDE_BOUNDS, LENGTH_SCALE_BOUNDS, NOISE_BOUNDS
 
     out = []
     if model.constant_:
@@ -188,7 +188,7 @@ def response_report(model, sset, name: str) -> dict:
     z = loo.standardised
     label, reason = verdict(loo, noise_share, sset.target_q2, ["+".join(ids[i] for i in g) for g in model.groups_],
                             model.constant_)
-    from .surrogate import _label
+    from .gp import _label
 
     points = [{"run_ids": [ids[i] for i in g], "observed": float(o), "predicted": float(p), "std": float(s)}
               for g, o, p, s in zip(model.groups_, loo.observed, loo.predicted, loo.std)]
