@@ -6,7 +6,7 @@ import time
 import numpy as np
 from scipy.stats import qmc
 
-from doe.plans import maximin_lhs, plan_quality
+from doe.design.plans import maximin_lhs, plan_quality
 
 SEEDS = (1, 2, 3)
 

@@ -72,7 +72,7 @@ def _on_surrogate(quick: bool) -> list[str]:
     """Robust point found on a GP fitted to a Hartmann 3-D plan, checked by brute force on the function."""
     import pandas as pd
 
-    from doe.plans import make_plan
+    from doe.design.plans import make_plan
     from doe.runs.results import ResultsTable
     from doe.study.reader import read_study_text
     from doe.surrogate.gp import fit_surrogates

@@ -12,7 +12,7 @@ import time
 
 import numpy as np
 
-from doe.plans import maximin_lhs
+from doe.design.plans import maximin_lhs
 from doe.surrogate.gp import ResponseSurrogate
 from doe.testing.functions import g_function
 

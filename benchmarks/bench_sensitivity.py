@@ -2,7 +2,7 @@
 
 For a test function with analytic indices, the *surrogate route* fits
 ``doe.surrogate.gp`` to ``n`` runs of an optimised Latin hypercube
-(``doe.plans.maximin_lhs``) and computes the indices on the posterior mean,
+(``doe.design.plans.maximin_lhs``) and computes the indices on the posterior mean,
 with intervals from the estimator and the posterior paths; the *direct route*
 gives SALib's estimators ``N (d + 2)`` calls of the function itself. For
 each, the error is the largest absolute error over all first-order and total
@@ -19,7 +19,7 @@ import numpy as np
 
 from doe.testing import functions as tf
 from doe.distributions import InputDistribution
-from doe.plans import maximin_lhs
+from doe.design.plans import maximin_lhs
 from doe.sensitivity import sobol_indices
 from doe.sensitivity_study import surrogate_callables
 from doe.surrogate.gp import ResponseSurrogate, SurrogateSet

@@ -36,8 +36,8 @@ if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
 from doe.testing import functions as tf  # noqa: E402
-from doe.adaptive import run_adaptive  # noqa: E402
-from doe.plans import maximin_lhs  # noqa: E402
+from doe.design.adaptive import run_adaptive  # noqa: E402
+from doe.design.plans import maximin_lhs  # noqa: E402
 from doe.surrogate.gp import ResponseSurrogate  # noqa: E402
 
 THRESHOLDS = (0.95, 0.99)

@@ -41,7 +41,7 @@ if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
 from doe.testing import functions as tf  # noqa: E402
-from doe.plans import maximin_lhs  # noqa: E402
+from doe.design.plans import maximin_lhs  # noqa: E402
 from doe.surrogate.gp import ResponseSurrogate  # noqa: E402
 
 TARGET = 0.95

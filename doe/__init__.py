@@ -7,7 +7,7 @@ module             job
 =================  ==========================================================
 doe.study.reader          read and validate a study file
 doe.space          parameters, bounds, constraints, unit-cube scaling
-doe.plans          space-filling plans and augmentation
+doe.design.plans          space-filling plans and augmentation
 doe.runs.evaluators     who turns a run into numbers (builtin, command, recorded)
 doe.runs.execution      running a plan into the append-safe results store
 doe.runs.results        reading plans and results; the results store

@@ -878,7 +878,7 @@ def synthetic_results(study, truth: dict, noise: dict | None = None, runs: int |
     -------
     ResultsTable
     """
-    from .plans import make_plan
+    from .design.plans import make_plan
     from .runs.results import ResultsTable
 
     settings, conversion = builtin_settings_for(study)

@@ -48,7 +48,7 @@ def cheap_plan(study, expensive: pd.DataFrame, spread: int | None = None) -> pd.
     DataFrame
         ``run_id`` then the parameter columns, study units.
     """
-    from .plans import make_plan
+    from .design.plans import make_plan
 
     low = _settings(study)
     names = study.space.names

@@ -53,7 +53,7 @@ def _add_plan(sub):
 
 
 def _cmd_plan(args):
-    from .plans import augment_plan, make_plan
+    from .design.plans import augment_plan, make_plan
     from .runs.results import read_plan, write_plan
     from .study.reader import load_study
 
@@ -206,8 +206,8 @@ def _add_next(sub):
 
 
 def _cmd_next(args):
-    from .adaptive import propose_runs
-    from .nestedplan import is_two_fidelity, nested_runs
+    from .design.adaptive import propose_runs
+    from .design.nested import is_two_fidelity, nested_runs
     from .runs.results import read_plan, write_plan
 
     study, results, seed = _study_results(args)

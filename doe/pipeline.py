@@ -146,7 +146,7 @@ def run_study(study, out=None, jobs: int = 1, scheduler: str | None = None, prog
     """
     from .runs.evaluators import make_evaluator
     from .runs.execution import evaluate_plan
-    from .plans import make_plan
+    from .design.plans import make_plan
     from .runs.results import read_plan, write_plan
 
     files = StudyFiles(Path(out) if out is not None else study.default_output)
@@ -275,8 +275,8 @@ def _robust_step(study, sset, results, files: StudyFiles, steps):
 
 
 def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
-    from .adaptive import accuracy_status, propose_runs
-    from .nestedplan import is_two_fidelity, nested_runs
+    from .design.adaptive import accuracy_status, propose_runs
+    from .design.nested import is_two_fidelity, nested_runs
     from .runs.results import read_plan, write_plan
 
     met, sentence = accuracy_status(sset)

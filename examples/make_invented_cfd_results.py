@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 
 from doe.runs.evaluators.builtin import BuiltinEvaluator
-from doe.plans import make_plan
+from doe.design.plans import make_plan
 from doe.study.reader import load_study, read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from doe.plans import maximin_lhs
+from doe.design.plans import maximin_lhs
 from doe.surrogate.gp import ResponseSurrogate
 from doe.testing.functions import get_pair
 from doe.surrogate.twofidelity import TwoFidelitySurrogate

@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 
 from doe.testing import functions as tf
-from doe.adaptive import MIN_DISTANCE, propose_runs, run_adaptive
+from doe.design.adaptive import MIN_DISTANCE, propose_runs, run_adaptive
 from doe.errors import SurrogateError
-from doe.plans import _candidates, greedy_maximin, maximin_lhs
+from doe.design.plans import _candidates, greedy_maximin, maximin_lhs
 from doe.study.reader import read_study_text
 from doe.surrogate.gp import ResponseSurrogate, fit_surrogates
 from test_surrogate import STUDY, branin_results

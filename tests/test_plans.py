@@ -7,7 +7,7 @@ import pytest
 from scipy.stats import qmc
 
 from doe.errors import PlanError
-from doe.plans import (augment_plan, centered_l2_discrepancy, default_runs, is_latin, make_plan,
+from doe.design.plans import (augment_plan, centered_l2_discrepancy, default_runs, is_latin, make_plan,
                        maximin_lhs, phi_p, plan_quality)
 from doe.space import LinearConstraint, Parameter, Space
 

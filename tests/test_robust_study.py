@@ -166,7 +166,7 @@ def test_study_tradeoff(study):
 def test_cli_robust_end_to_end(tmp_path):
     # doe robust on recorded results of the invented map: fits the surrogates, writes JSON and CSV
     from doe.cli import main
-    from doe.plans import make_plan
+    from doe.design.plans import make_plan
 
     study_file = tmp_path / "study.toml"
     study_file.write_text(HEAD + SNIPPET.replace("samples = 128", "samples = 32"))  # fewer draws: test speed

@@ -216,7 +216,7 @@ def test_direct_and_surrogate_agree_on_the_builtin_model():
     if not demo.exists():
         pytest.skip("the demo study is not in this tree")
     from doe.runs.evaluators import make_evaluator
-    from doe.plans import maximin_lhs
+    from doe.design.plans import maximin_lhs
     from doe.study.reader import load_study
 
     full = load_study(demo)

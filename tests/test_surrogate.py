@@ -10,7 +10,7 @@ from sklearn.gaussian_process import GaussianProcessRegressor
 
 from doe.testing import functions as tf
 from doe.errors import NotFittedError, StudyError, SurrogateError
-from doe.plans import maximin_lhs
+from doe.design.plans import maximin_lhs
 from doe.runs.results import ResultsTable
 from doe.study.reader import read_study_text
 from doe.surrogate.gp import ResponseSurrogate, fit_surrogates, load_surrogates

@@ -1,4 +1,4 @@
-"""Two-fidelity surrogates (doe.surrogate.twofidelity), cheap runs (doe.cheapruns) and nested next runs (doe.nestedplan)."""
+"""Two-fidelity surrogates (doe.surrogate.twofidelity), cheap runs (doe.cheapruns) and nested next runs (doe.design.nested)."""
 import json
 import sys
 import textwrap
@@ -8,7 +8,7 @@ import pandas as pd
 import pytest
 
 from doe.cli import main
-from doe.nestedplan import runs_to_target
+from doe.design.nested import runs_to_target
 from doe.runs.results import read_plan
 from doe.study.reader import load_study, read_study_text
 from doe.surrogate.gp import ResponseSurrogate, load_surrogates
@@ -247,8 +247,8 @@ def test_sensitivity_and_robust_run_on_two_fidelity_surrogates(two_level_study, 
 
 
 def test_nested_plan_spreads_more_cheap_runs_when_the_cheap_map_is_poor(two_level_study, tmp_path, monkeypatch):
-    import doe.nestedplan as nestedplan
-    from doe.adaptive import propose_runs
+    import doe.design.nested as nestedplan
+    from doe.design.adaptive import propose_runs
     from doe.cheapruns import study_surrogates
     from doe.runs.results import read_results
 

@@ -19,7 +19,7 @@ from scipy.optimize import minimize_scalar
 
 from doe.testing import functions as tf
 from doe.errors import DoeError
-from doe.plans import maximin_lhs
+from doe.design.plans import maximin_lhs
 from doe.surrogate.gp import ResponseSurrogate
 from doe.surrogate.twofidelity import TwoFidelitySurrogate
 

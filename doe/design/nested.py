@@ -1,7 +1,7 @@
 """Next runs with two fidelities: the cheap runs that go with them, and the expensive runs saved.
 
 When a study's surrogates lean on a cheap model (:mod:`doe.surrogate.twofidelity`),
-``doe next`` proposes expensive runs as usual (:mod:`doe.adaptive`: the
+``doe next`` proposes expensive runs as usual (:mod:`doe.design.adaptive`: the
 two-fidelity variance already counts the cheap level's share) and a nested
 plan of cheap runs: one at every proposed expensive run, so that the
 discrepancy is measured exactly there (:mod:`doe.cheapruns`).
@@ -33,7 +33,7 @@ import copy
 
 import numpy as np
 
-from .errors import SurrogateError
+from ..errors import SurrogateError
 
 __all__ = ["learning_curve", "runs_to_target", "expected_savings", "MIN_RUNS", "SUBSET_FRACTIONS", "SPLITS"]
 
@@ -150,7 +150,7 @@ def expected_savings(sset, seed=0) -> dict:
         largest over responses (every response must meet the target); None
         when a curve cannot be extrapolated.
     """
-    from .surrogate.gp import ResponseSurrogate
+    from ..surrogate.gp import ResponseSurrogate
 
     out, need_two, need_one, n_now = {}, [], [], 0
     for name, model in sset.models.items():
@@ -211,7 +211,7 @@ def nested_runs(study, sset, proposal, seed=0):
     sset : SurrogateSet
         Two-fidelity surrogates.
     proposal : Proposal
-        From :func:`doe.adaptive.propose_runs`.
+        From :func:`doe.design.adaptive.propose_runs`.
     seed : int
 
     Returns
@@ -227,7 +227,7 @@ def nested_runs(study, sset, proposal, seed=0):
     """
     import pandas as pd
 
-    from .cheapruns import cheap_plan
+    from ..cheapruns import cheap_plan
     from .plans import augment_plan
 
     cheap = cheap_plan(study, proposal.frame, spread=0)

@@ -29,7 +29,7 @@ import pandas as pd
 from scipy.spatial.distance import pdist
 from scipy.stats import qmc
 
-from .errors import PlanError
+from ..errors import PlanError
 
 __all__ = ["PlanQuality", "Plan", "default_runs", "make_plan", "augment_plan", "plan_quality",
            "centered_l2_discrepancy", "phi_p", "maximin_lhs", "sobol_points", "constrained_maximin",

@@ -53,7 +53,7 @@ import pandas as pd
 from scipy.stats import norm
 from threadpoolctl import threadpool_limits
 
-from .errors import PlanError, SurrogateError
+from ..errors import PlanError, SurrogateError
 from .plans import _candidates, _next_ids
 
 __all__ = ["propose_runs", "run_adaptive", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
@@ -392,7 +392,7 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
     model : ResponseSurrogate
         Fitted (hyperparameters estimated) on all runs.
     """
-    from .surrogate.gp import ResponseSurrogate, SurrogateSet
+    from ..surrogate.gp import ResponseSurrogate, SurrogateSet
 
     U = np.asarray(U0, dtype=float)
     y = np.asarray(func(U), dtype=float)

@@ -1,0 +1,1 @@
+"""Design: space-filling plans, augmentation, adaptive and nested next runs."""
