@@ -18,9 +18,9 @@ import time
 import numpy as np
 
 from doe.testing import functions as tf
-from doe.distributions import InputDistribution
+from doe.sensitivity.inputs import InputDistribution
 from doe.design.plans import maximin_lhs
-from doe.sensitivity import sobol_indices
+from doe.sensitivity.sobol import sobol_indices
 from doe.sensitivity_study import surrogate_callables
 from doe.surrogate.gp import ResponseSurrogate, SurrogateSet
 

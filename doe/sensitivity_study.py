@@ -1,8 +1,8 @@
 """Sensitivity of a study: its input distribution, and the surrogate or the direct route to its indices.
 
 ``doe sensitivity`` calls :func:`study_sensitivity` (and :func:`study_screening`
-for ``--screen``); the numerical work is in :mod:`doe.sensitivity` and
-:mod:`doe.screening`, the presentation in :mod:`doe.sensitivity_report`.
+for ``--screen``); the numerical work is in :mod:`doe.sensitivity.sobol` and
+:mod:`doe.sensitivity.morris`, the presentation in :mod:`doe.sensitivity.words`.
 
 Routes
 ------
@@ -23,11 +23,11 @@ import warnings
 
 import numpy as np
 
-from .distributions import InputDistribution
+from .sensitivity.inputs import InputDistribution
 from .errors import SensitivityError
-from .screening import ScreeningResult, morris_screening
-from .sensitivity import SobolResult, sobol_indices
-from .sensitivity_report import to_json
+from .sensitivity.morris import ScreeningResult, morris_screening
+from .sensitivity.sobol import SobolResult, sobol_indices
+from .sensitivity.words import to_json
 
 __all__ = ["evaluate_points", "parse_around", "nominal_point", "study_inputs", "surrogate_callables", "evaluator_model", "study_sensitivity",
            "study_sensitivity_json", "study_screening", "DIRECT_MAX_EVALUATIONS"]
@@ -105,7 +105,7 @@ def study_inputs(study, around=None) -> InputDistribution:
 
 
 def surrogate_callables(surrogates):
-    """``(model, paths)`` for :func:`~doe.sensitivity.sobol_indices` from a fitted ``SurrogateSet``.
+    """``(model, paths)`` for :func:`~doe.sensitivity.sobol.sobol_indices` from a fitted ``SurrogateSet``.
 
     ``model`` is the posterior mean of every response (no standard deviation
     is computed); ``paths`` the set's joint posterior draws.
@@ -126,7 +126,7 @@ def evaluator_model(evaluator, names, responses):
     """A model callable that runs an evaluator at each point (serially).
 
     A failed run gives NaN for every response (so that
-    :func:`~doe.sensitivity.sobol_indices` can drop its base row); the
+    :func:`~doe.sensitivity.sobol.sobol_indices` can drop its base row); the
     callable's ``failures`` list keeps ``(run_id, message)`` of each.
     """
     counter = [0]
@@ -266,7 +266,7 @@ def study_screening(study, *, trajectories: int = 20, levels: int = 4, seed: int
                     evaluator=None) -> ScreeningResult:
     """Morris screening of a study with its (cheap) evaluator over the bounds.
 
-    See :func:`doe.screening.morris_screening`; ``r (d + 1)`` evaluator calls.
+    See :func:`doe.sensitivity.morris.morris_screening`; ``r (d + 1)`` evaluator calls.
     """
     model = _study_model(study, evaluator, "screening")
     return morris_screening(model, study.space, trajectories=trajectories, levels=levels,

@@ -1,4 +1,4 @@
-"""A scikit-learn Gaussian process wrapped into the callables of :func:`doe.sensitivity.sobol_indices`.
+"""A scikit-learn Gaussian process wrapped into the callables of :func:`doe.sensitivity.sobol.sobol_indices`.
 
 Reference library for the surrogate route's tests (scikit-learn's
 ``GaussianProcessRegressor``, Rasmussen & Williams 2006, Alg. 2.1), independent

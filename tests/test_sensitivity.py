@@ -1,4 +1,4 @@
-"""Sobol indices (doe.sensitivity) against analytic indices and a reference library."""
+"""Sobol indices (doe.sensitivity.sobol) against analytic indices and a reference library."""
 import json
 import math
 import sys
@@ -10,10 +10,10 @@ from scipy import stats
 from scipy.stats import qmc
 
 from doe.testing import functions as tf
-from doe.distributions import InputDistribution
+from doe.sensitivity.inputs import InputDistribution
 from doe.errors import SensitivityError
-from doe.sensitivity import sobol_indices
-from doe.sensitivity_report import describe, to_json
+from doe.sensitivity.sobol import sobol_indices
+from doe.sensitivity.words import describe, to_json
 from doe.sensitivity_study import surrogate_callables
 from doe.space import Parameter, Space
 from doe.surrogate.gp import ResponseSurrogate, SurrogateSet

@@ -232,7 +232,7 @@ class SensitivitySettings:
         The setting the scatter is around, study units; a parameter left out
         sits at the middle of its range.
     base_samples : int or None
-        Saltelli base sample (a power of two); None chooses it (see doe.sensitivity).
+        Saltelli base sample (a power of two); None chooses it (see doe.sensitivity.sobol).
     second_order : bool
         Also estimate second-order indices.
     paths : int

@@ -99,8 +99,8 @@ import numpy as np
 from SALib.analyze import sobol as _sobol_analyze
 from SALib.sample import sobol as _sobol_sample
 
-from .distributions import InputDistribution
-from .errors import SensitivityError
+from .inputs import InputDistribution
+from ..errors import SensitivityError
 
 __all__ = ["sobol_indices", "SobolResult", "ResponseIndices", "Z95", "NEGLIGIBLE"]
 
@@ -524,7 +524,7 @@ def sobol_indices(model, inputs: InputDistribution, *, paths=None, responses=Non
         the cheap model itself (direct route). Called in chunks of at most
         16384 points.
     inputs : InputDistribution
-        Distribution of the inputs (:mod:`doe.distributions`).
+        Distribution of the inputs (:mod:`doe.sensitivity.inputs`).
     paths : callable, optional
         ``paths(X, n_paths, seed) -> (n_paths, n)`` array (or a dict of them
         per response): joint draws of the surrogate's posterior at the points

@@ -29,8 +29,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from .errors import SensitivityError
-from .space import Space
+from ..errors import SensitivityError
+from ..space import Space
 
 __all__ = ["DISTRIBUTIONS", "InputDistribution"]
 

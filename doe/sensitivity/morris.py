@@ -20,7 +20,7 @@ A parameter is called *inert* when, for every response, the upper end of the
 95 % bootstrap interval of its ``mu_star`` is below ``inert_fraction`` (5 %)
 of the largest ``mu_star`` of that response (common practice, no source).
 Screening ranks; it does not measure shares of variance: use
-:mod:`doe.sensitivity` on the parameters that remain.
+:mod:`doe.sensitivity.sobol` on the parameters that remain.
 
 Screening JSON: ``{"<response>": {"<parameter>": {"mu_star": x, "mu_star_conf":
 x, "mu": x, "sigma": x, "mu_star_rel": x, "inert": bool}, ...}, ...,
@@ -50,9 +50,9 @@ import numpy as np
 from SALib.analyze import morris as _morris_analyze
 from SALib.sample import morris as _morris_sample
 
-from .errors import SensitivityError
-from .sensitivity import evaluate_model, output_names
-from .space import Space
+from ..errors import SensitivityError
+from .sobol import evaluate_model, output_names
+from ..space import Space
 
 __all__ = ["ScreeningResult", "morris_screening", "INERT_FRACTION"]
 
@@ -116,7 +116,7 @@ def morris_screening(model, space: Space, *, trajectories: int = 20, levels: int
     levels : int
         Grid levels (an even number, at least 4).
     responses : list of str, optional
-        Names of the model's outputs (see :func:`doe.sensitivity.sobol_indices`).
+        Names of the model's outputs (see :func:`doe.sensitivity.sobol.sobol_indices`).
     n_resamples : int
         Bootstrap resamples of ``mu_star``'s interval.
     inert_fraction : float

@@ -38,8 +38,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .errors import SensitivityError
-from .sensitivity import NEGLIGIBLE, ResponseIndices, SobolResult
+from ..errors import SensitivityError
+from .sobol import NEGLIGIBLE, ResponseIndices, SobolResult
 
 __all__ = ["to_json", "describe", "statements", "SMALL", "META_KEY"]
 

@@ -1,0 +1,1 @@
+"""Sensitivity: input distributions, Sobol indices, Morris screening and their words."""
