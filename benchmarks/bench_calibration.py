@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from doe.aero.model import COEFFICIENT_RANGES
-from doe.calibration import builtin_settings_for, calibrate, synthetic_results
+from doe.calibration.solver import builtin_settings_for, calibrate, synthetic_results
 from doe.study.reader import read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]

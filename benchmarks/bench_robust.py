@@ -6,7 +6,7 @@ import time
 
 import numpy as np
 
-from doe.robust import find_settings, propagate, scatter_draws
+from doe.robust.search import find_settings, propagate, scatter_draws
 from doe.space import Parameter, Space
 from doe.testing.functions import get
 from doe.vehicle import Aero, Segment, Track, Vehicle, lap_time

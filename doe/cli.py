@@ -301,7 +301,7 @@ def _add_robust(sub):
 
 
 def _cmd_robust(args):
-    from .robust import only_responses, study_responses, study_robust, study_tradeoff, write_tradeoff
+    from .robust.search import only_responses, study_responses, study_robust, study_tradeoff, write_tradeoff
 
     study, results, seed = _study_results(args)
     sset = _surrogates(args, study, results, seed)
@@ -343,7 +343,7 @@ def _add_calibrate(sub):
 
 
 def _cmd_calibrate(args):
-    from .calibration import calibrate_study, parse_names, parse_noise
+    from .calibration.solver import calibrate_study, parse_names, parse_noise
     from .study.reader import load_study
 
     study, results, seed = _study_results(args)

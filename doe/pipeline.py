@@ -253,7 +253,7 @@ def _sensitivity_step(study, sset, files: StudyFiles, steps):
 
 
 def _robust_step(study, sset, results, files: StudyFiles, steps):
-    from .robust import study_robust, study_tradeoff, write_tradeoff
+    from .robust.search import study_robust, study_tradeoff, write_tradeoff
 
     if study.robust is None:
         steps("robust", "skipped: no response has a goal and there is no [robust] table")

@@ -1,4 +1,4 @@
-"""Calibration of the builtin model's coefficients (doe.calibration) and its use as an evaluator.
+"""Calibration of the builtin model's coefficients (doe.calibration.solver) and its use as an evaluator.
 
 The check from outside the fit itself is recovery of a known truth: a synthetic "CFD" set is made by
 the builtin model with some coefficients changed, plus Gaussian noise of stated size; the calibration
@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 
 from doe.aero.model import COEFFICIENT_RANGES
-from doe.calibration import (CORRELATION_LIMIT, builtin_settings_for, calibrate, load_calibration, parse_noise,
+from doe.calibration.solver import (CORRELATION_LIMIT, builtin_settings_for, calibrate, load_calibration, parse_noise,
                              read_calibrated_coefficients, synthetic_results)
 from doe.cli import main
 from doe.errors import CalibrationError, DoeError, StudyError

@@ -1,4 +1,4 @@
-"""Checks of doe.robust on analytic functions posing as surrogates."""
+"""Checks of doe.robust.search on analytic functions posing as surrogates."""
 import math
 
 import numpy as np
@@ -6,7 +6,7 @@ import pytest
 from scipy.special import ndtr
 
 from doe.errors import DoeError
-from doe.robust import (find_settings, fragility, nondominated, propagate, scatter_draws, tradeoff_set,
+from doe.robust.search import (find_settings, fragility, nondominated, propagate, scatter_draws, tradeoff_set,
                         write_tradeoff)
 from doe.space import LinearConstraint, Parameter, Space
 from doe.study.reader import ResponseLimit

@@ -263,7 +263,7 @@ class ResponseLimit:
 
 @dataclass(frozen=True)
 class RobustSettings:
-    """``[robust]``: what the robust search looks for (see :mod:`doe.robust`).
+    """``[robust]``: what the robust search looks for (see :mod:`doe.robust.search`).
 
     Attributes
     ----------

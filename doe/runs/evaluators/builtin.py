@@ -49,7 +49,7 @@ Study keys (all optional; defaults in brackets)::
     body_3d_factor = 0.30
     ...
 
-A calibration written by ``doe calibrate`` (see :mod:`doe.calibration`) gives
+A calibration written by ``doe calibrate`` (see :mod:`doe.calibration.solver`) gives
 the coefficients' defaults with ``calibration = "calibration.json"`` in
 ``[evaluator]`` (relative to the study file); coefficients written in
 ``[evaluator.coefficients]`` still win.
@@ -135,7 +135,7 @@ def _calibrated(study, t) -> dict:
     name = t.take("calibration", str, default=None)
     if name is None:
         return {}
-    from ...calibration import read_calibrated_coefficients
+    from ...calibration.solver import read_calibrated_coefficients
 
     try:
         return read_calibrated_coefficients(study.resolve(name))

@@ -59,8 +59,8 @@ from pathlib import Path
 import numpy as np
 from scipy import optimize, stats
 
-from .aero.model import COEFFICIENT_RANGES, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
-from .errors import CalibrationError, DoeError, where
+from ..aero.model import COEFFICIENT_RANGES, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
+from ..errors import CalibrationError, DoeError, where
 
 __all__ = ["Calibration", "CoefficientEstimate", "Discrepancy", "calibrate", "calibrate_study",
            "builtin_settings_for", "load_calibration", "read_calibrated_coefficients", "FITTABLE", "SWITCHES",
@@ -223,7 +223,7 @@ class Calibration:
         The study's builtin settings come from :func:`builtin_settings_for`;
         every coefficient is replaced by the calibrated set.
         """
-        from .runs.evaluators.builtin import BuiltinEvaluator
+        from ..runs.evaluators.builtin import BuiltinEvaluator
 
         settings, conversion = builtin_settings_for(study)
         return BuiltinEvaluator(self.settings(settings), conversion, study.response_names)
@@ -255,7 +255,7 @@ class Calibration:
 
     def save(self, path) -> Path:
         """Write :meth:`to_json` atomically to ``path``; returns the path."""
-        from .runs.results import write_json
+        from ..runs.results import write_json
 
         path = Path(path)
         write_json(self.to_json(), path)
@@ -311,7 +311,7 @@ def builtin_settings_for(study) -> tuple[ModelSettings, dict]:
     CalibrationError
         When neither table is of kind ``builtin``.
     """
-    from .runs.evaluators.builtin import read_builtin_settings
+    from ..runs.evaluators.builtin import read_builtin_settings
 
     if study.evaluator.kind == "builtin":
         return read_builtin_settings(study)
@@ -417,7 +417,7 @@ def _check_names(coefficients) -> list:
 
 
 def _check_responses(responses, results, units) -> list:
-    from .runs.evaluators.builtin import same_output_unit
+    from ..runs.evaluators.builtin import same_output_unit
 
     names = list(responses) if responses is not None else list(results.responses)
     if not names:
@@ -878,8 +878,8 @@ def synthetic_results(study, truth: dict, noise: dict | None = None, runs: int |
     -------
     ResultsTable
     """
-    from .design.plans import make_plan
-    from .runs.results import ResultsTable
+    from ..design.plans import make_plan
+    from ..runs.results import ResultsTable
 
     settings, conversion = builtin_settings_for(study)
     try:

@@ -96,10 +96,10 @@ import pandas as pd
 from scipy.special import ndtr, ndtri
 from scipy.stats import qmc
 
-from .errors import DoeError
-from .space import Space
-from .study.reader import ResponseLimit
-from .vehicle import Aero, VehicleFigures, compare_figures, vehicle_figures
+from ..errors import DoeError
+from ..space import Space
+from ..study.reader import ResponseLimit
+from ..vehicle import Aero, VehicleFigures, compare_figures, vehicle_figures
 
 __all__ = ["scatter_draws", "propagate", "Spread", "Fragility", "fragility", "PointResult", "RobustResult",
            "find_settings", "nondominated", "tradeoff_set", "write_tradeoff", "study_robust", "study_tradeoff",

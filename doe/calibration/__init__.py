@@ -1,0 +1,1 @@
+"""Calibration: the built-in model's empirical coefficients fitted to recorded results."""

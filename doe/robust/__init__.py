@@ -1,0 +1,1 @@
+"""Robust settings: setup-scatter propagation, the robust search and the trade-off set."""
