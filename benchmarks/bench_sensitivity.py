@@ -21,7 +21,7 @@ from doe.testing import functions as tf
 from doe.sensitivity.inputs import InputDistribution
 from doe.design.plans import maximin_lhs
 from doe.sensitivity.sobol import sobol_indices
-from doe.sensitivity_study import surrogate_callables
+from doe.workflow.sensitivity import surrogate_callables
 from doe.surrogate.gp import ResponseSurrogate, SurrogateSet
 
 TARGETS = (0.05, 0.02)
@@ -147,7 +147,7 @@ def _builtin_agreement() -> list:
     import warnings
 
     from doe.runs.evaluators import make_evaluator
-    from doe.sensitivity_study import evaluate_points, study_sensitivity
+    from doe.workflow.sensitivity import evaluate_points, study_sensitivity
     from doe.study.reader import load_study
 
     full = load_study(demo)

@@ -96,7 +96,7 @@ def _add_evaluate(sub):
 
 
 def _cmd_evaluate(args):
-    from .cheapruns import cheap_study
+    from .workflow.cheap import cheap_study
     from .runs.evaluators import make_evaluator
     from .runs.execution import evaluate_plan
     from .runs.results import read_plan
@@ -142,7 +142,7 @@ def _study_results(args):
 
 def _surrogates(args, study, results, seed):
     """Surrogates loaded from ``--surrogate`` when given, else fitted to the results."""
-    from .cheapruns import study_surrogates
+    from .workflow.cheap import study_surrogates
     from .surrogate.gp import load_surrogates
 
     if getattr(args, "surrogate", None):
@@ -259,7 +259,7 @@ def _add_sensitivity(sub):
 
 
 def _cmd_sensitivity(args):
-    from . import sensitivity_study as ss
+    from .workflow import sensitivity as ss
     from .runs.results import read_results
     from .study.reader import load_study
 
@@ -419,7 +419,7 @@ def _add_report(sub):
 
 
 def _cmd_report(args):
-    from .pipeline import NEXT_RUNS_DEFAULT, StudyFiles, analyse_and_report
+    from .workflow.pipeline import NEXT_RUNS_DEFAULT, StudyFiles, analyse_and_report
     from .study.reader import load_study
 
     study = load_study(args.study)
@@ -445,7 +445,7 @@ def _add_run(sub):
 
 
 def _cmd_run(args):
-    from .pipeline import NEXT_RUNS_DEFAULT, run_study
+    from .workflow.pipeline import NEXT_RUNS_DEFAULT, run_study
     from .study.reader import load_study
 
     study = load_study(args.study)

@@ -10,10 +10,10 @@ from pathlib import Path
 
 from doe.runs.evaluators import make_evaluator
 from doe.runs.execution import evaluate_plan
-from doe.pipeline import StudyFiles, analyse_and_report
+from doe.workflow.pipeline import StudyFiles, analyse_and_report
 from doe.design.plans import make_plan
 from doe.runs.results import read_results, write_plan
-from doe.sensitivity_study import study_sensitivity
+from doe.workflow.sensitivity import study_sensitivity
 from doe.study.reader import load_study
 from doe.surrogate.gp import fit_surrogates
 

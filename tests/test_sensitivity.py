@@ -14,7 +14,7 @@ from doe.sensitivity.inputs import InputDistribution
 from doe.errors import SensitivityError
 from doe.sensitivity.sobol import sobol_indices
 from doe.sensitivity.words import describe, to_json
-from doe.sensitivity_study import surrogate_callables
+from doe.workflow.sensitivity import surrogate_callables
 from doe.space import Parameter, Space
 from doe.surrogate.gp import ResponseSurrogate, SurrogateSet
 

@@ -11,7 +11,7 @@ from doe.cli import main
 from doe.errors import SensitivityError, StudyError
 from doe.runs.evaluators.base import Evaluator, Outcome
 from doe.sensitivity.morris import morris_screening
-from doe.sensitivity_study import (evaluate_points, evaluator_model, study_inputs, study_screening,
+from doe.workflow.sensitivity import (evaluate_points, evaluator_model, study_inputs, study_screening,
                                   study_sensitivity)
 from doe.study.reader import read_study_text
 

@@ -1,4 +1,4 @@
-"""Two-fidelity surrogates (doe.surrogate.twofidelity), cheap runs (doe.cheapruns) and nested next runs (doe.design.nested)."""
+"""Two-fidelity surrogates (doe.surrogate.twofidelity), cheap runs (doe.workflow.cheap) and nested next runs (doe.design.nested)."""
 import json
 import sys
 import textwrap
@@ -249,7 +249,7 @@ def test_sensitivity_and_robust_run_on_two_fidelity_surrogates(two_level_study, 
 def test_nested_plan_spreads_more_cheap_runs_when_the_cheap_map_is_poor(two_level_study, tmp_path, monkeypatch):
     import doe.design.nested as nestedplan
     from doe.design.adaptive import propose_runs
-    from doe.cheapruns import study_surrogates
+    from doe.workflow.cheap import study_surrogates
     from doe.runs.results import read_results
 
     study = load_study(two_level_study)

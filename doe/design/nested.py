@@ -4,7 +4,7 @@ When a study's surrogates lean on a cheap model (:mod:`doe.surrogate.twofidelity
 ``doe next`` proposes expensive runs as usual (:mod:`doe.design.adaptive`: the
 two-fidelity variance already counts the cheap level's share) and a nested
 plan of cheap runs: one at every proposed expensive run, so that the
-discrepancy is measured exactly there (:mod:`doe.cheapruns`).
+discrepancy is measured exactly there (:mod:`doe.workflow.cheap`).
 
 How many expensive runs the cheap model saves is estimated from learning
 curves: for the expensive runs made so far, with the fitted
@@ -227,7 +227,7 @@ def nested_runs(study, sset, proposal, seed=0):
     """
     import pandas as pd
 
-    from ..cheapruns import cheap_plan
+    from ..workflow.cheap import cheap_plan
     from .plans import augment_plan
 
     cheap = cheap_plan(study, proposal.frame, spread=0)

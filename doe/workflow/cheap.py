@@ -15,7 +15,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from .errors import DoeError
+from ..errors import DoeError
 
 __all__ = ["cheap_plan", "run_cheap", "cheap_study", "study_surrogates", "wants_two_fidelity", "default_cheap_path",
            "NESTED_PREFIX"]
@@ -48,7 +48,7 @@ def cheap_plan(study, expensive: pd.DataFrame, spread: int | None = None) -> pd.
     DataFrame
         ``run_id`` then the parameter columns, study units.
     """
-    from .design.plans import make_plan
+    from ..design.plans import make_plan
 
     low = _settings(study)
     names = study.space.names
@@ -89,9 +89,9 @@ def run_cheap(study, expensive: pd.DataFrame, path, jobs: int = 1, progress: boo
     results : ResultsTable
         Every run in the file (the ok ones are fitted).
     """
-    from .runs.evaluators import make_evaluator
-    from .runs.execution import evaluate_plan
-    from .runs.results import read_results
+    from ..runs.evaluators import make_evaluator
+    from ..runs.execution import evaluate_plan
+    from ..runs.results import read_results
 
     path = Path(path)
     workspace = workspace if workspace is not None else path.parent / "cheap_cases"
@@ -152,7 +152,7 @@ def study_surrogates(study, results, seed: int = 0, fidelity: str | None = None,
     -------
     SurrogateSet
     """
-    from .surrogate.gp import fit_surrogates
+    from ..surrogate.gp import fit_surrogates
 
     if not wants_two_fidelity(study, fidelity):
         return fit_surrogates(study, results, seed=seed, fidelity="single")

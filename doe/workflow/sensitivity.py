@@ -23,11 +23,11 @@ import warnings
 
 import numpy as np
 
-from .sensitivity.inputs import InputDistribution
-from .errors import SensitivityError
-from .sensitivity.morris import ScreeningResult, morris_screening
-from .sensitivity.sobol import SobolResult, sobol_indices
-from .sensitivity.words import to_json
+from ..sensitivity.inputs import InputDistribution
+from ..errors import SensitivityError
+from ..sensitivity.morris import ScreeningResult, morris_screening
+from ..sensitivity.sobol import SobolResult, sobol_indices
+from ..sensitivity.words import to_json
 
 __all__ = ["evaluate_points", "parse_around", "nominal_point", "study_inputs", "surrogate_callables", "evaluator_model", "study_sensitivity",
            "study_sensitivity_json", "study_screening", "DIRECT_MAX_EVALUATIONS"]
@@ -153,7 +153,7 @@ def evaluate_points(study, X, evaluator):
     """
     import pandas as pd
 
-    from .runs.results import ResultsTable
+    from ..runs.results import ResultsTable
 
     names, ids = study.space.names, [f"r{i}" for i in range(len(X))]
     outcomes = evaluator.evaluate_many(ids, [dict(zip(names, map(float, x))) for x in X])
@@ -179,7 +179,7 @@ def _study_model(study, evaluator, what: str):
         if study.evaluator.kind == "recorded":
             raise SensitivityError(f"{study.name}: {what} needs an evaluator that can run new points; "
                                    "a 'recorded' evaluator cannot (use the surrogate route)")
-        from .runs.evaluators import make_evaluator
+        from ..runs.evaluators import make_evaluator
 
         evaluator = make_evaluator(study)
     return evaluator_model(evaluator, study.space.names, study.response_names)
@@ -250,7 +250,7 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
     if surrogates is None:
         if results is None:
             raise SensitivityError(f"{study.name}: the surrogate route needs results (or use the direct route)")
-        from .cheapruns import study_surrogates
+        from .cheap import study_surrogates
 
         surrogates = study_surrogates(study, results, seed=seed, progress=False)
     model, paths = surrogate_callables(surrogates)

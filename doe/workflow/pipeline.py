@@ -31,8 +31,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from .errors import DoeError
-from .runs.results import write_json
+from ..errors import DoeError
+from ..runs.results import write_json
 
 __all__ = ["StudyFiles", "run_study", "analyse_and_report", "NEXT_RUNS_DEFAULT"]
 
@@ -144,15 +144,15 @@ def run_study(study, out=None, jobs: int = 1, scheduler: str | None = None, prog
     next_runs : int
         Runs to propose for the next round (0: none).
     """
-    from .runs.evaluators import make_evaluator
-    from .runs.execution import evaluate_plan
-    from .design.plans import make_plan
-    from .runs.results import read_plan, write_plan
+    from ..runs.evaluators import make_evaluator
+    from ..runs.execution import evaluate_plan
+    from ..design.plans import make_plan
+    from ..runs.results import read_plan, write_plan
 
     files = StudyFiles(Path(out) if out is not None else study.default_output)
     steps = _Steps(7)
     if study.evaluator.kind == "recorded":
-        from .runs.evaluators.recorded import RecordedSettings
+        from ..runs.evaluators.recorded import RecordedSettings
 
         recorded = study.resolve(RecordedSettings.read(study).file)
         steps("plan", "none needed: the study's results are recorded")
@@ -183,8 +183,8 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
     runs' results file of a two-fidelity fit (default ``cheap_results.csv``
     in the output folder).
     """
-    from .report import ReportInputs, build_report
-    from .runs.results import read_results
+    from ..report import ReportInputs, build_report
+    from ..runs.results import read_results
 
     steps = steps or _Steps(5)  # fit, sensitivity, robust, next runs, report
     results_path = Path(results_path)
@@ -222,8 +222,8 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
 
 
 def _fit_step(study, results, results_path: Path, files: StudyFiles, steps, fidelity=None, cheap_path=None):
-    from .cheapruns import study_surrogates, wants_two_fidelity
-    from .surrogate.gp import load_surrogates
+    from .cheap import study_surrogates, wants_two_fidelity
+    from ..surrogate.gp import load_surrogates
 
     two = wants_two_fidelity(study, fidelity)
     cheap_path = Path(cheap_path) if cheap_path is not None else files.cheap_results
@@ -240,7 +240,7 @@ def _fit_step(study, results, results_path: Path, files: StudyFiles, steps, fide
 
 
 def _sensitivity_step(study, sset, files: StudyFiles, steps):
-    from .sensitivity_study import study_sensitivity, study_sensitivity_json
+    from .sensitivity import study_sensitivity, study_sensitivity_json
 
     if _fresh(files.sensitivity, files.fit):
         steps("sensitivity", f"reusing {files.sensitivity}")
@@ -253,7 +253,7 @@ def _sensitivity_step(study, sset, files: StudyFiles, steps):
 
 
 def _robust_step(study, sset, results, files: StudyFiles, steps):
-    from .robust.search import study_robust, study_tradeoff, write_tradeoff
+    from ..robust.search import study_robust, study_tradeoff, write_tradeoff
 
     if study.robust is None:
         steps("robust", "skipped: no response has a goal and there is no [robust] table")
@@ -275,9 +275,9 @@ def _robust_step(study, sset, results, files: StudyFiles, steps):
 
 
 def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
-    from .design.adaptive import accuracy_status, propose_runs
-    from .design.nested import is_two_fidelity, nested_runs
-    from .runs.results import read_plan, write_plan
+    from ..design.adaptive import accuracy_status, propose_runs
+    from ..design.nested import is_two_fidelity, nested_runs
+    from ..runs.results import read_plan, write_plan
 
     met, sentence = accuracy_status(sset)
     if k <= 0 or met:
