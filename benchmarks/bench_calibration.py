@@ -7,7 +7,9 @@ from pathlib import Path
 import numpy as np
 
 from doe.aero.model import COEFFICIENT_RANGES
-from doe.calibration.solver import builtin_settings_for, calibrate, synthetic_results
+from doe.calibration.settings import builtin_settings_for
+from doe.calibration.solver import calibrate
+from doe.testing.synthetic import synthetic_results
 from doe.study.reader import read_study_text
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -6,7 +6,8 @@ import time
 
 import numpy as np
 
-from doe.robust.search import find_settings, propagate, scatter_draws
+from doe.robust.scatter import propagate, scatter_draws
+from doe.robust.search import find_settings
 from doe.space import Parameter, Space
 from doe.testing.functions import get
 from doe.vehicle import Aero, Segment, Track, Vehicle, lap_time
@@ -75,7 +76,7 @@ def _on_surrogate(quick: bool) -> list[str]:
     from doe.design.plans import make_plan
     from doe.runs.results import ResultsTable
     from doe.study.reader import read_study_text
-    from doe.surrogate.gp import fit_surrogates
+    from doe.workflow.fit import fit_surrogates
 
     tf = get("hartmann3")
     params = "".join(f'[[parameters]]\nname = "{n}"\nunit = "-"\nlow = 0.0\nhigh = 1.0\ntolerance = 0.03\n\n'

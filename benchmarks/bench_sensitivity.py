@@ -22,7 +22,8 @@ from doe.sensitivity.inputs import InputDistribution
 from doe.design.plans import maximin_lhs
 from doe.sensitivity.sobol import sobol_indices
 from doe.workflow.sensitivity import surrogate_callables
-from doe.surrogate.gp import ResponseSurrogate, SurrogateSet
+from doe.surrogate.gp import ResponseSurrogate
+from doe.surrogate.set import SurrogateSet
 
 TARGETS = (0.05, 0.02)
 #: Surrogate settings: kernel chosen by leave-one-out as in ``doe fit``, one optimiser restart to keep this short.

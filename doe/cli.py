@@ -11,7 +11,7 @@ import sys
 import warnings
 from pathlib import Path
 
-from .errors import DoeError
+from .errors import CalibrationError, DoeError
 
 __all__ = ["main", "build_parser"]
 
@@ -143,7 +143,7 @@ def _study_results(args):
 def _surrogates(args, study, results, seed):
     """Surrogates loaded from ``--surrogate`` when given, else fitted to the results."""
     from .workflow.cheap import study_surrogates
-    from .surrogate.gp import load_surrogates
+    from .surrogate.set import load_surrogates
 
     if getattr(args, "surrogate", None):
         return load_surrogates(args.surrogate, study)
@@ -167,7 +167,7 @@ def _add_fit(sub):
 
 def _cmd_fit(args):
     from .runs.results import read_points, write_plan
-    from .surrogate.gp import prediction_frame
+    from .surrogate.set import prediction_frame
 
     study, results, seed = _study_results(args)
     sset = _surrogates(args, study, results, seed)
@@ -301,7 +301,8 @@ def _add_robust(sub):
 
 
 def _cmd_robust(args):
-    from .robust.search import only_responses, study_responses, study_robust, study_tradeoff, write_tradeoff
+    from .robust.tradeoff import write_tradeoff
+    from .workflow.robust import only_responses, study_responses, study_robust, study_tradeoff
 
     study, results, seed = _study_results(args)
     sset = _surrogates(args, study, results, seed)
@@ -343,7 +344,7 @@ def _add_calibrate(sub):
 
 
 def _cmd_calibrate(args):
-    from .calibration.solver import calibrate_study, parse_names, parse_noise
+    from .workflow.calibration import calibrate_study
     from .study.reader import load_study
 
     study, results, seed = _study_results(args)
@@ -357,6 +358,33 @@ def _cmd_calibrate(args):
     for note in calibration.notes:
         _say(f"note: {note}")
     print(f"wrote {out}")
+
+
+# option values of `doe calibrate`
+def parse_names(text: str | None, option: str) -> list | None:
+    """``"a,b"`` -> ``["a", "b"]`` (None stays None); an empty item is an error naming ``option``."""
+    if text is None:
+        return None
+    names = [s.strip() for s in text.split(",")]
+    if not all(names):
+        raise CalibrationError(f"{option} {text!r}: give names separated by commas, e.g. body_3d_factor,base_pressure")
+    return names
+
+
+def parse_noise(text: str | None) -> dict | None:
+    """``"cla_total=0.004,cda_total=0.002"`` -> ``{"cla_total": 0.004, ...}`` (one standard deviation, its unit)."""
+    if text is None:
+        return None
+    out = {}
+    for item in text.split(","):
+        name, sep, value = item.partition("=")
+        try:
+            out[name.strip()] = float(value)
+        except ValueError:
+            sep = ""
+        if not sep or not name.strip():
+            raise CalibrationError(f"--noise {item.strip()!r}: write RESPONSE=STD, e.g. cla_total=0.004")
+    return out
 
 
 def _add_section(sub):

@@ -163,7 +163,8 @@ class Space:
         raise DoeError(f"no parameter named '{name}'; the study has {self.names}")
 
     # -- scaling -----------------------------------------------------------
-    def _check_shape(self, X) -> np.ndarray:
+    def as_points(self, X) -> np.ndarray:
+        """``X`` as a float array of shape ``(n, dim)`` (one point may be given flat); a DoeError otherwise."""
         X = np.asarray(X, dtype=float)
         if X.ndim == 1:
             X = X.reshape(1, -1)
@@ -184,24 +185,24 @@ class Space:
         ndarray, shape (n, d)
             ``(X - low) / (high - low)``, column by column.
         """
-        X = self._check_shape(X)
+        X = self.as_points(X)
         return (X - self.lower) / (self.upper - self.lower)
 
     def from_unit(self, U) -> np.ndarray:
         """Map points of the unit hypercube to study units (inverse of :meth:`to_unit`)."""
-        U = self._check_shape(U)
+        U = self.as_points(U)
         return self.lower + U * (self.upper - self.lower)
 
     # -- feasibility -------------------------------------------------------
     def in_bounds(self, X, rtol: float = 1e-9) -> np.ndarray:
         """Boolean array: which rows lie inside the bounds (with a relative slack)."""
-        X = self._check_shape(X)
+        X = self.as_points(X)
         slack = rtol * (self.upper - self.lower)
         return np.all((X >= self.lower - slack) & (X <= self.upper + slack), axis=1)
 
     def feasible(self, X) -> np.ndarray:
         """Boolean array: which rows meet the bounds and every constraint."""
-        X = self._check_shape(X)
+        X = self.as_points(X)
         ok = self.in_bounds(X)
         for c in self.constraints:
             ok &= c.satisfied(X, self.names)

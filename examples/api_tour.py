@@ -15,7 +15,7 @@ from doe.design.plans import make_plan
 from doe.runs.results import read_results, write_plan
 from doe.workflow.sensitivity import study_sensitivity
 from doe.study.reader import load_study
-from doe.surrogate.gp import fit_surrogates
+from doe.workflow.fit import fit_surrogates
 
 ROOT = Path(__file__).resolve().parents[1]
 

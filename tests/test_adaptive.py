@@ -8,7 +8,8 @@ from doe.design.adaptive import MIN_DISTANCE, propose_runs, run_adaptive
 from doe.errors import SurrogateError
 from doe.design.plans import _candidates, greedy_maximin, maximin_lhs
 from doe.study.reader import read_study_text
-from doe.surrogate.gp import ResponseSurrogate, fit_surrogates
+from doe.surrogate.gp import ResponseSurrogate
+from doe.workflow.fit import fit_surrogates
 from test_surrogate import STUDY, branin_results
 
 FAST = dict(kernel="sqexp", trend="constant", restarts=2)

@@ -19,8 +19,12 @@ import numpy as np
 import pytest
 
 from doe.aero.model import COEFFICIENT_RANGES
-from doe.calibration.solver import (CORRELATION_LIMIT, builtin_settings_for, calibrate, load_calibration, parse_noise,
-                             read_calibrated_coefficients, synthetic_results)
+from doe.calibration.result import load_calibration
+from doe.calibration.settings import builtin_settings_for
+from doe.calibration.solver import CORRELATION_LIMIT, calibrate
+from doe.cli import parse_noise
+from doe.runs.evaluators.calibration_file import read_calibrated_coefficients
+from doe.testing.synthetic import synthetic_results
 from doe.cli import main
 from doe.errors import CalibrationError, DoeError, StudyError
 from doe.runs.evaluators import make_evaluator
@@ -158,7 +162,7 @@ def test_coefficient_without_effect_is_not_determined(model_study, noisy):
     assert "no effect" in est["forebody_cd"].note
     assert math.isinf(est["forebody_cd"].std_error)
     assert est["body_3d_factor"].determined
-    data = cal.to_json()
+    data = cal.to_dict()
     assert data["fitted"]["forebody_cd"]["std_error"] is None
     json.dumps(data, allow_nan=False)
 
@@ -259,7 +263,7 @@ def test_cli_writes_the_calibration(cli_files, model_study):
         assert data["coefficients"][name] == pytest.approx(value, abs=1e-6)    # exact data: optimiser tolerance
     assert set(data["responses"]["cla_total"]["after"]) == {"bias", "rms", "max_abs", "r2"}
     back = load_calibration(out)
-    assert back.to_json() == data
+    assert back.to_dict() == data
     co = back.evaluator(model_study).model.settings.coefficients
     assert co.body_3d_factor == pytest.approx(TRUTH["body_3d_factor"], abs=1e-6)
 

@@ -6,8 +6,9 @@ import pytest
 from scipy.special import ndtr
 
 from doe.errors import DoeError
-from doe.robust.search import (find_settings, fragility, nondominated, propagate, scatter_draws, tradeoff_set,
-                        write_tradeoff)
+from doe.robust.scatter import fragility, propagate, scatter_draws
+from doe.robust.search import find_settings
+from doe.robust.tradeoff import nondominated, tradeoff_set, write_tradeoff
 from doe.space import LinearConstraint, Parameter, Space
 from doe.study.reader import ResponseLimit
 

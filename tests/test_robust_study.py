@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from doe.errors import StudyError
-from doe.robust.search import study_robust, study_tradeoff, study_vehicle_figures
+from doe.workflow.robust import study_robust, study_tradeoff, study_vehicle_figures
 from doe.study.reader import read_study_text
 
 DEMO = (Path(__file__).parents[1] / "studies" / "demo_vehicle.toml").read_text()
@@ -189,7 +189,7 @@ def test_cli_robust_end_to_end(tmp_path):
 
 
 def test_study_responses_lists_what_robust_reads():
-    from doe.robust.search import study_responses
+    from doe.workflow.robust import study_responses
 
     assert study_responses(read_study_text(HEAD + DEMO)) == ["cla_total", "cda_total", "cla_front", "cla_rear"]
 

@@ -16,7 +16,8 @@ from doe.sensitivity.sobol import sobol_indices
 from doe.sensitivity.words import describe, to_json
 from doe.workflow.sensitivity import surrogate_callables
 from doe.space import Parameter, Space
-from doe.surrogate.gp import ResponseSurrogate, SurrogateSet
+from doe.surrogate.gp import ResponseSurrogate
+from doe.surrogate.set import SurrogateSet
 
 sys.path.insert(0, str(Path(__file__).parent))
 from gp_reference import fit_reference_gp  # noqa: E402

@@ -13,7 +13,9 @@ from doe.errors import NotFittedError, StudyError, SurrogateError
 from doe.design.plans import maximin_lhs
 from doe.runs.results import ResultsTable
 from doe.study.reader import read_study_text
-from doe.surrogate.gp import ResponseSurrogate, fit_surrogates, load_surrogates
+from doe.surrogate.gp import ResponseSurrogate
+from doe.surrogate.set import load_surrogates
+from doe.workflow.fit import fit_surrogates
 
 FAST = dict(kernel="sqexp", trend="constant", restarts=2)  # one kernel: tests of other things stay fast
 

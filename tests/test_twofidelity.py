@@ -11,7 +11,8 @@ from doe.cli import main
 from doe.design.nested import runs_to_target
 from doe.runs.results import read_plan
 from doe.study.reader import load_study, read_study_text
-from doe.surrogate.gp import ResponseSurrogate, load_surrogates
+from doe.surrogate.gp import ResponseSurrogate
+from doe.surrogate.set import load_surrogates
 from doe.testing.functions import branin
 from doe.surrogate.twofidelity import TwoFidelitySurrogate
 

@@ -308,8 +308,8 @@ def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed,
     rng = np.random.default_rng(seed)
     space = sset.space
     first = next(iter(sset.models.values()))
-    P = sset._unit_points(pending) if pending is not None and len(pending) else np.zeros((0, space.dim))
-    A = sset._unit_points(avoid) if avoid is not None and len(avoid) else np.zeros((0, space.dim))
+    P = sset.unit_points(pending) if pending is not None and len(pending) else np.zeros((0, space.dim))
+    A = sset.unit_points(avoid) if avoid is not None and len(avoid) else np.zeros((0, space.dim))
     models = {n: (m.conditioned(P) if len(P) else m) for n, m in sset.models.items()}
     C = _candidates(space, n_candidates, rng)
     if aim == "optimum":
@@ -392,7 +392,8 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
     model : ResponseSurrogate
         Fitted (hyperparameters estimated) on all runs.
     """
-    from ..surrogate.gp import ResponseSurrogate, SurrogateSet
+    from ..surrogate.gp import ResponseSurrogate
+    from ..surrogate.set import SurrogateSet
 
     U = np.asarray(U0, dtype=float)
     y = np.asarray(func(U), dtype=float)

@@ -88,23 +88,19 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from functools import cached_property
 
 import numpy as np
-import pandas as pd
-from scipy.special import ndtr, ndtri
 from scipy.stats import qmc
 
 from ..errors import DoeError
 from ..space import Space
 from ..study.reader import ResponseLimit
-from ..vehicle import Aero, VehicleFigures, compare_figures, vehicle_figures
+from ..vehicle import VehicleFigures, compare_figures
+from .scatter import fragility, predict_checked, propagate, scatter_draws, goal_sign
 
-__all__ = ["scatter_draws", "propagate", "Spread", "Fragility", "fragility", "PointResult", "RobustResult",
-           "find_settings", "nondominated", "tradeoff_set", "write_tradeoff", "study_robust", "study_tradeoff",
-           "study_vehicle_figures", "study_responses", "only_responses", "DEFAULT_MAXITER",
-           "DEFAULT_RESTARTS"]
+__all__ = ["PointResult", "RobustResult", "find_settings", "DEFAULT_MAXITER", "DEFAULT_RESTARTS"]
 
 #: Generations of each differential-evolution run.
 DEFAULT_MAXITER = 100
@@ -120,212 +116,7 @@ MODEL_STD_SHARE = 0.05
 
 
 # ---------------------------------------------------------------------------
-# propagation of setup scatter
-def scatter_draws(dim: int, samples: int, seed) -> np.ndarray:
-    """Standard-normal draws for the propagation of setup scatter (randomised quasi-Monte Carlo).
-
-    Parameters
-    ----------
-    dim : int
-        Number of parameters.
-    samples : int
-        Number of draws, rounded up to a power of two (Sobol' points keep their
-        balance only there).
-    seed : int or numpy.random.Generator
-        Seed of the scrambling; same seed, same draws.
-
-    Returns
-    -------
-    ndarray, shape (2**m, dim)
-        ``ndtri(u)`` for scrambled Sobol' points ``u`` in ``(0, 1)^dim``.
-
-    References
-    ----------
-    Owen, A. B. (1997). Scrambled net variance for integrals of smooth
-    functions. Ann. Statist. 25:1541-1562.
-    """
-    if samples < 2:
-        raise DoeError(f"robust: samples must be at least 2, got {samples}")
-    m = int(math.ceil(math.log2(samples)))
-    u = qmc.Sobol(dim, scramble=True, seed=np.random.default_rng(seed)).random_base2(m)
-    return ndtri(np.clip(u, 1e-12, 1.0 - 1e-12))
-
-
-def _predict_checked(predict, X: np.ndarray, names) -> dict:
-    out = predict(X)
-    result = {}
-    for name in names:
-        if name not in out:
-            raise DoeError(f"robust: the surrogate gives no response '{name}' (it gives {sorted(out)})")
-        mean, std = (np.asarray(a, dtype=float).reshape(-1) for a in out[name])
-        if mean.shape != (len(X),) or std.shape != (len(X),):
-            raise DoeError(f"robust: the surrogate's '{name}' has shape {mean.shape}, expected ({len(X)},)")
-        result[name] = (mean, np.maximum(std, 0.0))
-    return result
-
-
-@dataclass(frozen=True)
-class Spread:
-    """A response under setup scatter at each of ``m`` settings (arrays of shape ``(m,)``).
-
-    Attributes
-    ----------
-    mean, std : ndarray
-        Mean and standard deviation (ddof 1) of the surrogate mean over the draws, response unit.
-    model_std : ndarray
-        Root-mean-square surrogate standard deviation over the draws, response unit.
-    draws_mean, draws_std : ndarray, shape (m, n)
-        Surrogate mean and standard deviation at each of the ``n`` scattered
-        settings around each of the ``m`` settings, response unit.
-    """
-
-    mean: np.ndarray
-    std: np.ndarray
-    model_std: np.ndarray
-    draws_mean: np.ndarray = field(repr=False)
-    draws_std: np.ndarray = field(repr=False)
-
-    def probability(self, low: float | None, high: float | None) -> np.ndarray:
-        """Chance that ``low <= response <= high`` under scatter and surrogate error, -."""
-        m, s = self.draws_mean, self.draws_std
-        with np.errstate(divide="ignore", invalid="ignore"):
-            up = np.ones_like(m) if high is None else np.where(s > 0, ndtr((high - m) / s), m <= high)
-            down = np.zeros_like(m) if low is None else np.where(s > 0, ndtr((low - m) / s), m < low)
-        return np.mean(up - down, axis=1)
-
-
-def propagate(predict, space: Space, X, draws: np.ndarray, responses) -> dict:
-    """Mean and spread of responses under setup scatter, by Monte Carlo on the surrogate.
-
-    Parameters
-    ----------
-    predict : callable
-        ``predict(X) -> {response: (mean, std)}`` (see the module docstring).
-    space : Space
-        Gives each parameter's tolerance (one standard deviation, parameter unit).
-    X : array_like, shape (m, d)
-        Settings, study units.
-    draws : ndarray, shape (n, d)
-        Standard-normal draws (:func:`scatter_draws`); the same for every setting.
-    responses : sequence of str
-
-    Returns
-    -------
-    dict of str to Spread
-    """
-    X = space._check_shape(X)
-    m, n = len(X), len(draws)
-    tol = space.tolerances
-    if not np.any(tol > 0):
-        draws = draws[:1] * 0.0
-        n = 1
-    cloud = (X[:, None, :] + draws[None, :, :] * tol).reshape(m * n, space.dim)
-    pred = _predict_checked(predict, cloud, responses)
-    out = {}
-    for name, (mean, std) in pred.items():
-        mean, std = mean.reshape(m, n), std.reshape(m, n)
-        spread = mean.std(axis=1, ddof=1) if n > 1 else np.zeros(m)
-        out[name] = Spread(mean.mean(axis=1), spread, np.sqrt(np.mean(std**2, axis=1)), mean, std)
-    return out
-
-
-# ---------------------------------------------------------------------------
-# fragility
-@dataclass(frozen=True)
-class Fragility:
-    """How much the objective suffers from an error in one parameter, at a setting.
-
-    Attributes
-    ----------
-    parameter, unit : str
-        The parameter and its unit (in JSON also ``per_unit``, e.g. ``"m^2/deg"``).
-    step : float
-        Error tried on each side: the tolerance, or 1 % of the range when the
-        tolerance is 0 (parameter unit).
-    slope : float
-        Central-difference derivative of the surrogate mean (objective unit per parameter unit).
-    curvature : float or None
-        Second difference (objective unit per parameter unit squared); None at a bound.
-    drop : float
-        Worst loss of the objective, in its goal's direction, for an error of
-        ``step`` either way (objective unit, >= 0).
-    drop_per_unit : float
-        ``drop / step`` (objective unit per parameter unit).
-    rank : int
-        1 for the parameter whose error costs most; measure that one most carefully.
-    """
-
-    parameter: str
-    unit: str
-    step: float
-    slope: float
-    curvature: float | None
-    drop: float
-    drop_per_unit: float
-    rank: int = 0
-
-    def to_dict(self, objective_unit: str = "") -> dict:
-        """Plain dict without the parameter name; ``per_unit`` spells the unit of ``drop_per_unit``."""
-        return {"unit": self.unit, "per_unit": f"{objective_unit or '-'}/{self.unit}", "step": self.step,
-                "slope": self.slope, "curvature": self.curvature, "drop": self.drop,
-                "drop_per_unit": self.drop_per_unit, "rank": self.rank}
-
-
-def fragility(predict, space: Space, objective: str, goal: str, x) -> list:
-    """Local sensitivity of the objective to an error in each parameter (a fragility map).
-
-    Parameters
-    ----------
-    predict : callable
-    space : Space
-    objective : str
-    goal : {"maximize", "minimize"}
-    x : array_like, shape (d,)
-        The setting, study units.
-
-    Returns
-    -------
-    list of Fragility
-        One per parameter, in the space's order; ``rank`` orders them by ``drop``.
-    """
-    sense = _sense(goal)
-    x = space._check_shape(x)[0]
-    d = space.dim
-    steps = np.where(space.tolerances > 0, space.tolerances, 0.01 * (space.upper - space.lower))
-    probes = [x]
-    for i in range(d):
-        for side in (-1.0, 1.0):
-            p = x.copy()
-            p[i] = np.clip(x[i] + side * steps[i], space.lower[i], space.upper[i])
-            probes.append(p)
-    P = np.asarray(probes)
-    f = _predict_checked(predict, P, [objective])[objective][0]
-    out = []
-    for i, par in enumerate(space.parameters):
-        lo, hi = P[1 + 2 * i, i], P[2 + 2 * i, i]
-        f0, fl, fh = f[0], f[1 + 2 * i], f[2 + 2 * i]
-        slope = (fh - fl) / (hi - lo) if hi > lo else 0.0
-        both = np.isclose(hi - x[i], steps[i]) and np.isclose(x[i] - lo, steps[i])
-        curv = float((fh - 2 * f0 + fl) / steps[i] ** 2) if both else None
-        drop = max(0.0, sense * (f0 - fl), sense * (f0 - fh))
-        out.append(Fragility(par.name, par.unit, float(steps[i]), float(slope), curv, float(drop),
-                             float(drop / steps[i])))
-    order = np.argsort([-fr.drop for fr in out], kind="stable")
-    ranks = np.empty(d, dtype=int)
-    ranks[order] = np.arange(1, d + 1)
-    return [replace(fr, rank=int(r)) for fr, r in zip(out, ranks)]
-
-
-# ---------------------------------------------------------------------------
 # the search
-def _sense(goal: str) -> float:
-    if goal == "maximize":
-        return 1.0
-    if goal == "minimize":
-        return -1.0
-    raise DoeError(f"robust: goal {goal!r} is not 'maximize' or 'minimize'")
-
-
 @dataclass(frozen=True)
 class _Problem:
     predict: object
@@ -519,7 +310,7 @@ def _confirm_runs(space: Space, x: np.ndarray) -> list:
 
 def _describe_point(problem: _Problem, x: np.ndarray, robust: bool, runs_X, vehicle_block) -> PointResult:
     spreads = propagate(problem.predict, problem.space, x[None, :], problem.draws, problem.responses)
-    exact = _predict_checked(problem.predict, x[None, :], problem.responses)
+    exact = predict_checked(problem.predict, x[None, :], problem.responses)
     obj = spreads[problem.objective]
     mean, std = float(obj.mean[0]), float(obj.std[0])
     limits, ok = [], bool(problem.space.feasible(x[None, :])[0])
@@ -598,7 +389,7 @@ class RobustResult:
 
 def _ranges(predict, space: Space, responses, seed) -> dict:
     U = qmc.Sobol(space.dim, scramble=True, seed=np.random.default_rng(seed)).random_base2(8)
-    pred = _predict_checked(predict, space.from_unit(U), responses)
+    pred = predict_checked(predict, space.from_unit(U), responses)
     return {n: float(np.ptp(m)) for n, (m, _) in pred.items()}
 
 
@@ -651,14 +442,14 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     Storn & Price (1997), J. Global Optim. 11:341; Beyer & Sendhoff (2007),
     Comput. Methods Appl. Mech. Engrg. 196:3190.
     """
-    sense = _sense(goal)
+    sense = goal_sign(goal)
     if not (k >= 0 and math.isfinite(k)):
         raise DoeError(f"robust: k must be a finite number >= 0, got {k!r}")
     if not 0 < probability < 1:
         raise DoeError(f"robust: probability must be between 0 and 1, got {probability!r}")
     space.check_feasible()
     if baseline is not None:
-        baseline = space._check_shape(baseline)[0]
+        baseline = space.as_points(baseline)[0]
         if not space.in_bounds(baseline[None, :])[0]:
             raise DoeError(f"robust: the baseline {dict(zip(space.names, baseline.tolist()))} is outside the bounds")
     limits = tuple(_as_limit(lim) for lim in limits)
@@ -717,189 +508,3 @@ def _vehicle_change(a: PointResult, b: PointResult) -> dict | None:
     if a.vehicle is None or b.vehicle is None:
         return None
     return compare_figures(a.vehicle, b.vehicle)
-
-
-# ---------------------------------------------------------------------------
-# a study's settings
-def study_vehicle_figures(study, predict, x) -> VehicleFigures | None:
-    """Vehicle figures at setting ``x`` (study units) from the surrogate means of the ``[vehicle]`` responses.
-
-    Returns None when the study has no ``[vehicle]`` table. The lap time needs ``[track]``.
-    """
-    v = study.vehicle
-    if v is None:
-        return None
-    axles = v.cla_front_response is not None
-    names = [v.cda_response] + ([v.cla_front_response, v.cla_rear_response] if axles else [v.cla_response]) + (
-        [v.front_share_response] if v.front_share_response else [])
-    value = {n: float(m[0]) for n, (m, _) in _predict_checked(predict, study.space._check_shape(x), names).items()}
-    cda = max(value[v.cda_response], 0.0)
-    if axles:
-        aero = Aero(value[v.cla_front_response], value[v.cla_rear_response], cda)
-    else:
-        share = value[v.front_share_response] if v.front_share_response else v.aero_front_share
-        aero = Aero.from_total(value[v.cla_response], cda, share)
-    return vehicle_figures(v.car, aero, study.track, v.speeds_kph, v.radii_m)
-
-
-def study_responses(study) -> list:
-    """Responses the robust analysis of a study reads: objective, limits, trade-off, ``[vehicle]`` aero."""
-    names = []
-    if study.robust is not None:
-        names += [study.robust.objective] + [lim.response for lim in study.robust.limits] + list(study.robust.tradeoff)
-    v = study.vehicle
-    if v is not None:
-        names += [n for n in (v.cla_response, v.cda_response, v.cla_front_response, v.cla_rear_response,
-                              v.front_share_response) if n is not None]
-    return list(dict.fromkeys(names))
-
-
-def only_responses(surrogates, names):
-    """A fitted surrogate set reduced to the responses ``names``, so each prediction costs only those.
-
-    Parameters
-    ----------
-    surrogates : doe.surrogate.gp.SurrogateSet
-    names : sequence of str
-
-    Returns
-    -------
-    doe.surrogate.gp.SurrogateSet
-        The same models for ``names``; the others are left out.
-    """
-    missing = [n for n in names if n not in surrogates.models]
-    if missing:
-        raise DoeError(f"robust: no surrogate for {missing}; the surrogates cover {list(surrogates.models)}")
-    return replace(surrogates, models={n: surrogates.models[n] for n in names})
-
-
-def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) -> RobustResult:
-    """:func:`find_settings` with a study's ``[robust]`` goals, units and ``[vehicle]`` figures.
-
-    Parameters
-    ----------
-    study : doe.study.reader.Study
-    predict : callable
-        E.g. the ``predict`` of a fitted surrogate set.
-    runs_X : array_like, optional
-        Settings already run (study units).
-    maxiter : int
-    """
-    r = study.robust
-    if r is None:
-        raise DoeError("robust: the study has no [robust] settings")
-    units = {resp.name: resp.unit for resp in study.responses}
-    block = (lambda x: study_vehicle_figures(study, predict, x[None, :])) if study.vehicle is not None else None
-    baseline = [r.baseline[n] for n in study.space.names] if r.baseline is not None else None
-    return find_settings(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
-                         probability=r.probability, samples=r.samples, seed=r.seed, runs_X=runs_X, units=units,
-                         vehicle_block=block, baseline=baseline, maxiter=maxiter)
-
-
-def study_tradeoff(study, predict, samples: int = 4096) -> pd.DataFrame:
-    """:func:`tradeoff_set` of a study's ``[robust] tradeoff`` responses (goals from ``[[responses]]``)."""
-    r = study.robust
-    if r is None or len(r.tradeoff) < 2:
-        raise DoeError("trade-off: give at least two responses in [robust] tradeoff "
-                       "(by default the responses with a goal)")
-    goals = {resp.name: resp.goal for resp in study.responses}
-    return tradeoff_set(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed)
-
-
-# ---------------------------------------------------------------------------
-# trade-off sets
-def nondominated(F) -> np.ndarray:
-    """Which rows of ``F`` no other row dominates (every column is minimised).
-
-    Row ``j`` dominates row ``i`` when ``F[j] <= F[i]`` in every column and
-    ``<`` in at least one ([D]_ def. 2.5). Rows are visited in lexicographic
-    order, so a row can only be dominated by one visited before it.
-
-    Parameters
-    ----------
-    F : array_like, shape (n, m)
-
-    Returns
-    -------
-    ndarray of bool, shape (n,)
-    """
-    F = np.asarray(F, dtype=float)
-    if F.ndim != 2 or not np.all(np.isfinite(F)):
-        raise DoeError("trade-off: the values must be a finite 2-D array")
-    keep = np.zeros(len(F), dtype=bool)
-    front = np.empty((0, F.shape[1]))
-    for i in np.lexsort(F.T[::-1]):
-        f = F[i]
-        if len(front) and np.any(np.all(front <= f, axis=1) & np.any(front < f, axis=1)):
-            continue
-        keep[i] = True
-        front = np.vstack([front, f])
-    return keep
-
-
-def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, samples: int = 4096, seed=0,
-                 candidates=None) -> pd.DataFrame:
-    """Non-dominated settings of several responses on the surrogate mean (e.g. downforce vs drag).
-
-    Parameters
-    ----------
-    predict : callable
-    space : Space
-    responses : sequence of str
-        At least two.
-    goals : dict of str to str
-        ``"minimize"``, ``"maximize"`` or ``"none"`` per response; ``"none"``
-        needs a target.
-    targets : dict of str to float, optional
-        Aim for a response with goal ``"none"``: the distance to it is minimised.
-    samples : int
-        Size of the scrambled Sobol' sample of candidates (rounded up to a power of 2).
-    seed : int
-    candidates : array_like, shape (n, d), optional
-        Settings to filter instead of the sample (study units).
-
-    Returns
-    -------
-    pandas.DataFrame
-        Parameters, then ``<response>`` and ``<response>_std`` per response,
-        sorted by the first response; only feasible settings.
-    """
-    responses = list(responses)
-    targets = targets or {}
-    if len(responses) < 2:
-        raise DoeError(f"trade-off: give at least two responses, got {responses}")
-    if candidates is None:
-        m = int(math.ceil(math.log2(max(samples, 2))))
-        U = qmc.Sobol(space.dim, scramble=True, seed=np.random.default_rng(seed)).random_base2(m)
-        X = space.from_unit(U)
-    else:
-        X = space._check_shape(candidates)
-    X = X[space.feasible(X)]
-    if len(X) == 0:
-        raise DoeError("trade-off: no candidate setting meets the constraints")
-    pred = _predict_checked(predict, X, responses)
-    cols = []
-    for name in responses:
-        goal = goals.get(name, "none")
-        mean = pred[name][0]
-        if goal == "none":
-            if name not in targets:
-                raise DoeError(f"trade-off: response '{name}' has no goal; give it a target")
-            cols.append(np.abs(mean - targets[name]))
-        else:
-            cols.append(-_sense(goal) * mean)
-    keep = nondominated(np.column_stack(cols))
-    frame = pd.DataFrame(X[keep], columns=space.names)
-    for name in responses:
-        frame[name] = pred[name][0][keep]
-        frame[f"{name}_std"] = pred[name][1][keep]
-    return frame.sort_values(responses[0], kind="stable").reset_index(drop=True)
-
-
-def write_tradeoff(frame: pd.DataFrame, path) -> None:
-    """Write a trade-off table as CSV (columns in the module docstring)."""
-    from pathlib import Path
-
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    frame.to_csv(path, index=False, float_format="%.10g")

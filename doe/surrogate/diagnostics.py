@@ -63,6 +63,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..files import json_number
+from .kernels import AMPLITUDE_BOUNDS, LENGTH_SCALE_BOUNDS, NOISE_BOUNDS, kernel_label
+
 __all__ = ["hyperparameter_statements", "verdict", "response_report", "OUTLIER_Z", "OUTLIER_RATIO", "OUTLIER_SPREAD", "NOISE_SHARE_MAX",
            "FEW_RUNS_PER_PARAMETER"]
 
@@ -98,8 +101,6 @@ def hyperparameter_statements(model) -> list:
     -------
     list of str
     """
-    from .gp import AMPLITUDE_BOUNDS, LENGTH_SCALE_BOUNDS, NOISE_BOUNDS
-
     out = []
     if model.constant_:
         return out
@@ -188,8 +189,6 @@ def response_report(model, sset, name: str) -> dict:
     z = loo.standardised
     label, reason = verdict(loo, noise_share, sset.target_q2, ["+".join(ids[i] for i in g) for g in model.groups_],
                             model.constant_)
-    from .gp import _label
-
     points = [{"run_ids": [ids[i] for i in g], "observed": float(o), "predicted": float(p), "std": float(s)}
               for g, o, p, s in zip(model.groups_, loo.observed, loo.predicted, loo.std)]
     extra = {"fidelity": getattr(model, "fidelity", "single")}
@@ -197,15 +196,15 @@ def response_report(model, sset, name: str) -> dict:
         extra["two_fidelity"] = model.two_fidelity_record()
     return {
         "unit": sset.units[name],
-        "q2_loo": _num(loo.q2), "rmse_loo": _num(loo.rmse),
+        "q2_loo": json_number(loo.q2), "rmse_loo": json_number(loo.rmse),
         "verdict": label, "verdict_reason": reason,
         "target_q2": sset.target_q2, "meets_target": bool(np.isfinite(loo.q2) and loo.q2 >= sset.target_q2),
         "runs": int(sum(len(g) for g in model.groups_)), "points": int(len(model.groups_)),
-        "kernel": _label(model.family_, model.trend_), "family": model.family_, "trend": model.trend_,
+        "kernel": kernel_label(model.family_, model.trend_), "family": model.family_, "trend": model.trend_,
         "noise": "learned" if model.learn_noise_ else "fixed",
         "noise_reason": sset.noise_reason.get(name, "") or ("" if model.learn_noise_ else
                                                             "deterministic evaluator: a small fixed nugget"),
-        "noise_std": _num(model.noise_std_), "noise_share": noise_share,
+        "noise_std": json_number(model.noise_std_), "noise_share": noise_share,
         "length_scales": {n: float(ls * s) for n, ls, s in zip(names, model.length_scales_, spans)},
         "relative_length_scales": {n: float(ls) for n, ls in zip(names, model.length_scales_)},
         "standardised_residuals": {ids[i]: float(zz) for g, zz in zip(model.groups_, z) for i in g},
@@ -213,13 +212,8 @@ def response_report(model, sset, name: str) -> dict:
         "loo": points,
         "statements": list(model.statements_),
         "candidates": model.candidates_,
-        "log_marginal_likelihood": _num(model.log_marginal_likelihood_),
+        "log_marginal_likelihood": json_number(model.log_marginal_likelihood_),
         "fit_seconds": float(model.fit_seconds_),
         **extra,
     }
 
-
-def _num(x):
-    """A float for JSON, or None for NaN/inf."""
-    x = float(x)
-    return x if np.isfinite(x) else None

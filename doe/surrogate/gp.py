@@ -1,10 +1,10 @@
-"""Gaussian-process surrogates of the responses: fitting, kernel choice, leave-one-out checks, save/load.
+"""Gaussian-process surrogate of one response: fitting, kernel choice, leave-one-out checks.
 
 One :class:`ResponseSurrogate` per response (a scikit-learn
 ``GaussianProcessRegressor`` with kernels, bounds, restarts and seed set here,
-never the library's defaults); a :class:`SurrogateSet` holds one per response
-of a study together with its design space, predicts in the study's units, and
-is saved to a folder of JSON and NPZ files that loading never executes.
+never the library's defaults); :class:`doe.surrogate.set.SurrogateSet` holds
+one per response of a study, predicts in the study's units and is saved to a
+folder of JSON and NPZ files that loading never executes.
 
 Model
 -----
@@ -56,12 +56,9 @@ References
 from __future__ import annotations
 
 import copy
-import json
-import os
 import time
 import warnings
-from dataclasses import dataclass, field
-from pathlib import Path
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import cho_solve, solve_triangular
@@ -69,61 +66,21 @@ from scipy.optimize import minimize
 from sklearn.exceptions import ConvergenceWarning
 from threadpoolctl import threadpool_limits
 from sklearn.gaussian_process import GaussianProcessRegressor
-from sklearn.gaussian_process.kernels import RBF, ConstantKernel, DotProduct, Matern, WhiteKernel
 
+from .. import defaults
 from . import paths as gppaths
 from ..errors import NotFittedError, SurrogateError
-from .diagnostics import hyperparameter_statements, response_report
+from .diagnostics import hyperparameter_statements
+from .kernels import FAMILIES, NU, TRENDS, build_kernel, kernel_label
 
-__all__ = ["ResponseSurrogate", "SurrogateSet", "LooResult", "fit_surrogates", "load_surrogates", "prediction_frame",
-           "FAMILIES", "TRENDS", "NOISE_MODES", "SELECTIONS", "LENGTH_SCALE_BOUNDS", "NOISE_BOUNDS",
-           "DEFAULT_NUGGET", "FORMAT"]
+__all__ = ["ResponseSurrogate", "LooResult", "NOISE_MODES", "SELECTIONS", "DUPLICATE_TOL", "CHUNK"]
 
-FAMILIES = ("sqexp", "matern52", "matern32")
-TRENDS = ("constant", "linear")
 NOISE_MODES = ("auto", "learn", "fixed")
 SELECTIONS = ("loo", "likelihood")
-#: Length-scale bounds, in fractions of each parameter's range.
-LENGTH_SCALE_BOUNDS = (1e-2, 1e2)
-#: Bounds of the signal variance ``s^2``, relative to the response's variance.
-AMPLITUDE_BOUNDS = (1e-3, 1e2)
-#: Bounds of the trend variance ``c``, relative to the response's variance.
-TREND_BOUNDS = (1e-5, 1e2)
-#: Bounds of a learned noise variance, relative to the response's variance.
-NOISE_BOUNDS = (1e-8, 1.0)
-#: Fixed nugget of a deterministic evaluator, relative to the response's variance.
-DEFAULT_NUGGET = 1e-6
-#: Standard deviation of the log-normal prior on length scales (natural log; 0: maximum likelihood).
-DEFAULT_LENGTH_SCALE_PRIOR = 1.5
 #: Two points closer than this in every scaled coordinate are the same point.
 DUPLICATE_TOL = 1e-9
 #: Query points predicted at once (bounds memory at CHUNK x runs).
 CHUNK = 20000
-#: Name and version written in a saved surrogate folder.
-FORMAT = ("doe-surrogate", 1)
-_NU = {"matern52": 2.5, "matern32": 1.5}
-
-
-def _build_kernel(family: str, trend: str, d: int, learn_noise: bool):
-    """The kernel structure (initial values; the optimiser sets them). See the module docstring."""
-    ls = np.full(d, 0.3)
-    if family == "sqexp":
-        base = RBF(ls, LENGTH_SCALE_BOUNDS)
-    else:
-        base = Matern(ls, LENGTH_SCALE_BOUNDS, nu=_NU[family])
-    kernel = ConstantKernel(1.0, AMPLITUDE_BOUNDS) * base
-    if trend == "linear":
-        kernel = kernel + ConstantKernel(0.1, TREND_BOUNDS) * DotProduct(sigma_0=1.0, sigma_0_bounds="fixed")
-    else:
-        kernel = kernel + ConstantKernel(0.1, TREND_BOUNDS)
-    if learn_noise:
-        kernel = kernel + WhiteKernel(1e-2, NOISE_BOUNDS)
-    return kernel
-
-
-def _label(family: str, trend: str) -> str:
-    names = {"sqexp": "squared-exponential", "matern52": "Matern 5/2", "matern32": "Matern 3/2"}
-    return f"{names[family]}, {trend} trend"
 
 
 @dataclass
@@ -231,8 +188,9 @@ class ResponseSurrogate:
     Rasmussen & Williams (2006), ch. 2, 4.2, 5.4; Dubrule (1983). See the module docstring.
     """
 
-    def __init__(self, kernel="auto", trend="auto", noise="auto", restarts=3, nugget=DEFAULT_NUGGET,
-                 selection="loo", seed=0, names=None, length_scale_prior=DEFAULT_LENGTH_SCALE_PRIOR):
+    def __init__(self, kernel=defaults.KERNEL, trend=defaults.TREND, noise=defaults.NOISE, restarts=defaults.RESTARTS,
+                 nugget=defaults.NUGGET, selection=defaults.SELECTION, seed=0, names=None,
+                 length_scale_prior=defaults.LENGTH_SCALE_PRIOR):
         self.kernel = kernel
         self.trend = trend
         self.noise = noise
@@ -361,7 +319,7 @@ class ResponseSurrogate:
         family = min(good, key=key)["family"]
         fits += [self._fit_one(family, trend, learn, int(rng.integers(2**31 - 1))) for trend in trends[1:]]
         best = min((f for f in fits if f["gp"] is not None), key=key)
-        table = [{"kernel": _label(f["family"], f["trend"]), "family": f["family"], "trend": f["trend"],
+        table = [{"kernel": kernel_label(f["family"], f["trend"]), "family": f["family"], "trend": f["trend"],
                   "rmse_loo": (float(np.sqrt(f["loo_mse"])) * self.y_std_ if f["gp"] is not None else None),
                   "log_marginal_likelihood": f["lml"] if f["gp"] is not None else None,
                   "chosen": f is best} for f in fits]
@@ -372,7 +330,7 @@ class ResponseSurrogate:
         alpha = float(self.nugget)
         notes, error = [], ""
         for _ in range(4):
-            gp = GaussianProcessRegressor(_build_kernel(family, trend, self.Z_.shape[1], learn), alpha=alpha,
+            gp = GaussianProcessRegressor(build_kernel(family, trend, self.Z_.shape[1], learn), alpha=alpha,
                                           optimizer=self._optimizer(), n_restarts_optimizer=int(self.restarts),
                                           normalize_y=False, copy_X_train=True, random_state=seed)
             with warnings.catch_warnings(record=True) as caught:
@@ -444,7 +402,7 @@ class ResponseSurrogate:
         """Hyperparameters by name (normalised units), from ``theta_``."""
         d = self.X_unit_.shape[1]
         p = np.exp(self.theta_)
-        return {"family": self.family_, "trend": self.trend_, "nu": _NU.get(self.family_),
+        return {"family": self.family_, "trend": self.trend_, "nu": NU.get(self.family_),
                 "amplitude": float(p[0]), "length_scales": p[1:1 + d], "trend_variance": float(p[1 + d]),
                 "noise": float(p[2 + d]) if self.learn_noise_ else 0.0}
 
@@ -554,7 +512,7 @@ class ResponseSurrogate:
         self.y_ = y
         self.Z_ = X - 0.5
         self.yn_ = (y - self.y_mean_) / self.y_std_
-        kernel = _build_kernel(self.family_, self.trend_, X.shape[1], self.learn_noise_)
+        kernel = build_kernel(self.family_, self.trend_, X.shape[1], self.learn_noise_)
         kernel.theta = self.theta_
         gp = GaussianProcessRegressor(kernel, alpha=self.nugget_, optimizer=None, normalize_y=False,
                                       copy_X_train=True)
@@ -669,292 +627,3 @@ def _optimiser_notes(caught, starts: int) -> list:
         notes.append(f"the optimiser stopped early on {failed} of {starts} start(s); the best start was kept")
     notes += sorted(set(other))
     return notes
-
-
-# ---------------------------------------------------------------------------
-# a surrogate per response of a study
-
-
-@dataclass
-class SurrogateSet:
-    """One fitted :class:`ResponseSurrogate` per response of a study, in the study's units.
-
-    Attributes
-    ----------
-    space : Space
-    models : dict of str to ResponseSurrogate
-    units : dict of str to str
-        Unit of each response.
-    goals : dict of str to str
-    run_ids : list of str
-        The runs the surrogates were fitted on, in row order.
-    target_q2 : float
-        The accuracy wanted (``[fit] target_q2``), for verdicts and the stopping rule.
-    study_name : str
-    noise_reason : dict of str to str
-        Why a noise level was learned for a response (empty when it was not
-        decided by the runs' sources).
-    """
-
-    space: object
-    models: dict
-    units: dict
-    goals: dict
-    run_ids: list
-    target_q2: float = 0.9
-    study_name: str = ""
-    noise_reason: dict = field(default_factory=dict)
-
-    @property
-    def responses(self) -> list:
-        """Response names, in study order."""
-        return list(self.models)
-
-    def _unit_points(self, X) -> np.ndarray:
-        from ..errors import DoeError
-
-        try:
-            return self.space.to_unit(X)
-        except DoeError as exc:
-            raise SurrogateError(str(exc)) from exc
-
-    def predict(self, X) -> dict:
-        """Mean and standard deviation of every response.
-
-        Parameters
-        ----------
-        X : array_like, shape (n, d)
-            Points in the STUDY'S UNITS, columns in ``space.names`` order.
-
-        Returns
-        -------
-        dict of str to (ndarray, ndarray)
-            ``{response: (mean, std)}``, each of shape ``(n,)``, in the
-            response's unit; ``std`` is the surrogate's own uncertainty.
-        """
-        U = self._unit_points(X)
-        return {name: m.predict(U, return_std=True) for name, m in self.models.items()}
-
-    def sample_paths(self, X, n_paths: int, seed=0, method: str = "auto") -> dict:
-        """Joint posterior draws per response at points in study units.
-
-        Returns
-        -------
-        dict of str to ndarray, shape (n_paths, n)
-            Response unit. Each response gets its own stream from ``seed``.
-            Cost: see :meth:`ResponseSurrogate.sample_paths`.
-        """
-        U = self._unit_points(X)
-        seeds = np.random.default_rng(seed).integers(2**63 - 1, size=len(self.models))
-        return {name: m.sample_paths(U, n_paths, int(s), method) for (name, m), s in zip(self.models.items(), seeds)}
-
-    def fit_report(self) -> dict:
-        """The content of ``fit.json``: ``{response: {...}}`` (keys in :mod:`doe.surrogate.diagnostics`)."""
-        return {name: response_report(m, self, name) for name, m in self.models.items()}
-
-    def accuracy_met(self) -> bool:
-        """Whether every response has ``q2_loo >= target_q2`` (the stopping rule; constant responses pass)."""
-        return all(m.constant_ or m.loo_.q2 >= self.target_q2 for m in self.models.values())
-
-    # -- save / load -------------------------------------------------------
-    def save(self, folder) -> Path:
-        """Write ``model.json`` (hyperparameters, scaling), ``data.npz`` (training data) and ``fit.json``.
-
-        Nothing in the folder is code or a pickle: loading reads JSON and NPZ
-        (``allow_pickle=False``) and refits with the stored hyperparameters.
-        """
-        folder = Path(folder)
-        folder.mkdir(parents=True, exist_ok=True)
-        meta = {"format": FORMAT[0], "version": FORMAT[1], "study": self.study_name,
-                "parameters": [{"name": p.name, "unit": p.unit, "low": p.low, "high": p.high}
-                               for p in self.space.parameters],
-                "run_ids": list(self.run_ids), "target_q2": self.target_q2,
-                "responses": {name: {"unit": self.units[name], "goal": self.goals[name],
-                                     "noise_reason": self.noise_reason.get(name, ""), **m.to_record()}
-                              for name, m in self.models.items()}}
-        arrays = {}
-        for i, m in enumerate(self.models.values()):
-            arrays.update({f"{key}{i}": value for key, value in m.to_arrays().items()})
-        _atomic_write(folder / "model.json", json.dumps(meta, indent=1, allow_nan=False))
-        tmp = folder / "data.tmp.npz"
-        np.savez(tmp, **arrays)
-        os.replace(tmp, folder / "data.npz")
-        _atomic_write(folder / "fit.json", json.dumps(self.fit_report(), indent=2, allow_nan=False))
-        return folder
-
-
-def _atomic_write(path: Path, text: str) -> None:
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(text + "\n")
-    os.replace(tmp, path)
-
-
-def load_surrogates(folder, study) -> SurrogateSet:
-    """Load a surrogate folder written by :meth:`SurrogateSet.save`.
-
-    Parameters
-    ----------
-    folder : str or Path
-    study : Study
-        Its parameters (names and bounds) must match those saved.
-
-    Returns
-    -------
-    SurrogateSet
-        Predictions are identical to those of the saved set.
-
-    Raises
-    ------
-    SurrogateError
-        Missing or malformed files, or a study that does not match.
-    """
-    folder = Path(folder)
-    try:
-        meta = json.loads((folder / "model.json").read_text())
-        with np.load(folder / "data.npz", allow_pickle=False) as data:
-            arrays = {k: data[k] for k in data.files}
-    except (OSError, ValueError) as exc:
-        raise SurrogateError(f"{folder}: cannot read the saved surrogate ({exc})") from exc
-    if not isinstance(meta, dict) or meta.get("format") != FORMAT[0] or meta.get("version") != FORMAT[1]:
-        raise SurrogateError(f"{folder}/model.json: not a '{FORMAT[0]}' version {FORMAT[1]} file")
-    saved = [(p["name"], float(p["low"]), float(p["high"])) for p in meta["parameters"]]
-    ours = [(p.name, p.low, p.high) for p in study.space.parameters]
-    if saved != ours:
-        raise SurrogateError(f"{folder}: saved for parameters {saved}, but the study has {ours}; refit with 'doe fit'")
-    models, units, goals, reasons = {}, {}, {}, {}
-    for i, (name, rec) in enumerate(meta["responses"].items()):
-        if f"X{i}" not in arrays or f"y{i}" not in arrays:
-            raise SurrogateError(f"{folder}/data.npz: training data of '{name}' are missing")
-        if rec.get("fidelity") == "two":
-            from .twofidelity import TwoFidelitySurrogate
-
-            mine = {k[:-len(str(i))]: v for k, v in arrays.items() if k.endswith(str(i)) and k[:-len(str(i))].isalpha()}
-            models[name] = TwoFidelitySurrogate.from_record(rec, mine, study.space.names)
-        else:
-            models[name] = ResponseSurrogate.from_record(rec, arrays[f"X{i}"], arrays[f"y{i}"], study.space.names)
-        units[name], goals[name], reasons[name] = rec["unit"], rec["goal"], rec.get("noise_reason", "")
-    return SurrogateSet(study.space, models, units, goals, list(meta["run_ids"]), float(meta["target_q2"]),
-                        str(meta["study"]), reasons)
-
-
-def fit_surrogates(study, results, seed=0, low_results=None, **options) -> SurrogateSet:
-    """Fit one surrogate per response of a study to its ok runs.
-
-    Parameters
-    ----------
-    study : Study
-        Supplies the space and the ``[fit]`` settings.
-    results : ResultsTable
-        Only ``status == "ok"`` rows are used.
-    seed : int
-        Seed of the optimiser restarts.
-    low_results : ResultsTable, optional
-        Cheap runs of the study's low-fidelity model (``[low_fidelity]``).
-        With them (and ``fidelity`` not ``"single"``) each response gets a
-        :class:`doe.surrogate.twofidelity.TwoFidelitySurrogate`: ``results`` are the
-        expensive level.
-    **options
-        Override ``[fit]`` settings: ``kernel``, ``trend``, ``noise``,
-        ``restarts``, ``nugget``, ``selection``, ``target_q2``,
-        ``exact_sources``, ``length_scale_prior``, ``fidelity``.
-
-    Returns
-    -------
-    SurrogateSet
-
-    Raises
-    ------
-    SurrogateError
-        No ok runs, a response that cannot be fitted, or ``fidelity = "two"``
-        without cheap runs.
-
-    Notes
-    -----
-    With ``noise = "auto"``, a noise level is learned for every response when
-    any run comes from a source other than the study's exact sources
-    (``[fit] exact_sources``, by default ``builtin`` and ``command``), and for
-    a response whose replicated points disagree.
-    """
-    settings = _settings(study, options)
-    ok = results.ok
-    if len(ok) == 0:
-        raise SurrogateError(f"{results.path or 'results'}: no ok runs to fit")
-    two = _two_fidelity(settings["fidelity"], low_results)
-    X = study.space.to_unit(results.X())
-    given = ok["source"] if "source" in ok.columns else ["recorded"] * len(ok)
-    sources = sorted({str(s) for s in given} - set(settings["exact_sources"]))
-    noise, reason = settings["noise"], ""
-    if noise == "auto" and sources:
-        noise, reason = "learn", f"runs from {', '.join(sources)} are treated as noisy: a noise level is learned"
-    models, reasons = {}, {}
-    names = study.space.names
-    for k, resp in enumerate(study.responses):
-        options = dict(kernel=settings["kernel"], trend=settings["trend"], noise=noise,
-                       restarts=settings["restarts"], nugget=settings["nugget"], selection=settings["selection"],
-                       seed=int(seed) + 1000 * k, names=names, length_scale_prior=settings["length_scale_prior"])
-        try:
-            if two:
-                from .twofidelity import TwoFidelitySurrogate
-
-                cheap = low_results.ok[np.isfinite(low_results.ok[resp.name].to_numpy(float))]
-                model = TwoFidelitySurrogate(**options).fit(study.space.to_unit(cheap[names].to_numpy(float)),
-                                                            cheap[resp.name].to_numpy(float),
-                                                            X, results.y(resp.name))
-            else:
-                model = ResponseSurrogate(**options).fit(X, results.y(resp.name))
-        except SurrogateError as exc:
-            raise SurrogateError(f"response '{resp.name}': {exc}") from exc
-        models[resp.name] = model
-        reasons[resp.name] = reason
-    return SurrogateSet(study.space, models, {r.name: r.unit for r in study.responses},
-                        {r.name: r.goal for r in study.responses}, list(ok["run_id"]), settings["target_q2"],
-                        study.name, reasons)
-
-
-def _two_fidelity(fidelity: str, low_results) -> bool:
-    """Whether to fit two fidelities (``[fit] fidelity``: auto, single or two)."""
-    if fidelity not in ("auto", "single", "two"):
-        raise SurrogateError(f"fidelity={fidelity!r} is not one of auto, single, two")
-    if fidelity == "two" and (low_results is None or len(low_results.ok) == 0):
-        raise SurrogateError("a two-fidelity fit needs cheap runs: add a [low_fidelity] table to the study "
-                             "(or give them with --low-results)")
-    return fidelity != "single" and low_results is not None and len(low_results.ok) > 0
-
-
-def _settings(study, options) -> dict:
-    fit = getattr(study, "fit", None)
-    base = {"kernel": "auto", "trend": "auto", "noise": "auto", "restarts": 3, "nugget": DEFAULT_NUGGET,
-            "selection": "loo", "target_q2": 0.9, "exact_sources": ("builtin", "command"),
-            "length_scale_prior": DEFAULT_LENGTH_SCALE_PRIOR, "fidelity": "auto"}
-    if fit is not None:
-        base.update({k: getattr(fit, k) for k in base})
-    unknown = set(options) - set(base)
-    if unknown:
-        raise SurrogateError(f"unknown surrogate option(s) {sorted(unknown)}; known: {', '.join(base)}")
-    base.update(options)
-    return base
-
-
-def prediction_frame(sset: SurrogateSet, points):
-    """Predictions as a table: ``run_id`` (if given), the parameters, ``<response>_mean``, ``<response>_std``.
-
-    Parameters
-    ----------
-    sset : SurrogateSet
-    points : DataFrame
-        Parameter columns in study units, ``run_id`` optional.
-
-    Returns
-    -------
-    DataFrame
-        Means and standard deviations in each response's unit; the standard
-        deviation is the surrogate's own uncertainty (no observation noise).
-    """
-    import pandas as pd
-
-    names = sset.space.names
-    out = pd.DataFrame(points[[c for c in ["run_id", *names] if c in points.columns]]).reset_index(drop=True)
-    for name, (mean, std) in sset.predict(points[names].to_numpy(dtype=float)).items():
-        out[f"{name}_mean"] = mean
-        out[f"{name}_std"] = std
-    return out

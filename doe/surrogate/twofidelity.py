@@ -61,8 +61,9 @@ import numpy as np
 from scipy.linalg import cho_solve
 from scipy.optimize import minimize_scalar
 
+from .. import defaults
 from ..errors import NotFittedError, SurrogateError
-from .diagnostics import _num
+from ..files import json_number
 from .gp import DUPLICATE_TOL, LooResult, ResponseSurrogate
 
 __all__ = ["TwoFidelitySurrogate", "match_points", "RHO_GRID"]
@@ -145,8 +146,9 @@ class TwoFidelitySurrogate:
 
     fidelity = "two"
 
-    def __init__(self, kernel="auto", trend="auto", noise="auto", restarts=3, nugget=1e-6, selection="loo",
-                 seed=0, names=None, length_scale_prior=1.5, compare=True):
+    def __init__(self, kernel=defaults.KERNEL, trend=defaults.TREND, noise=defaults.NOISE, restarts=defaults.RESTARTS,
+                 nugget=defaults.NUGGET, selection=defaults.SELECTION, seed=0, names=None,
+                 length_scale_prior=defaults.LENGTH_SCALE_PRIOR, compare=True):
         self.kernel = kernel
         self.trend = trend
         self.noise = noise
@@ -369,11 +371,11 @@ class TwoFidelitySurrogate:
         """The ``two_fidelity`` entry of ``fit.json`` (keys in :mod:`doe.surrogate.diagnostics`)."""
         self._check_fitted()
         return {"rho": float(self.rho_), "cheap_runs": int(len(self.low_.y_)),
-                "cheap_q2_loo": _num(self.low_.loo_.q2),
+                "cheap_q2_loo": json_number(self.low_.loo_.q2),
                 "cheap_kernel": f"{self.low_.family_}, {self.low_.trend_} trend",
-                "single_fidelity_q2_loo": _num(self.single_q2_) if self.single_q2_ is not None else None,
+                "single_fidelity_q2_loo": json_number(self.single_q2_) if self.single_q2_ is not None else None,
                 "nested_points": int(self.nested_.sum()),
-                "rho_profile": [{"rho": float(r), "log_marginal_likelihood": _num(v)} for r, v in self.rho_profile_]}
+                "rho_profile": [{"rho": float(r), "log_marginal_likelihood": json_number(v)} for r, v in self.rho_profile_]}
 
     # -- prediction ------------------------------------------------------------
     def predict(self, X_unit, return_std=False):
@@ -456,7 +458,7 @@ class TwoFidelitySurrogate:
         self._check_fitted()
         return {"fidelity": "two", "rho": float(self.rho_), "low": self.low_.to_record(),
                 "delta": self.delta_.to_record(), "single_q2": self.single_q2_,
-                "rho_profile": [[float(r), _num(v)] for r, v in self.rho_profile_],
+                "rho_profile": [[float(r), json_number(v)] for r, v in self.rho_profile_],
                 "statements": list(self.statements_), "fit_seconds": float(self.fit_seconds_),
                 "options": {**{k: v for k, v in self._options().items() if k != "names"}, "compare": self.compare}}
 

@@ -152,7 +152,7 @@ def study_surrogates(study, results, seed: int = 0, fidelity: str | None = None,
     -------
     SurrogateSet
     """
-    from ..surrogate.gp import fit_surrogates
+    from .fit import fit_surrogates
 
     if not wants_two_fidelity(study, fidelity):
         return fit_surrogates(study, results, seed=seed, fidelity="single")

@@ -223,7 +223,7 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
 
 def _fit_step(study, results, results_path: Path, files: StudyFiles, steps, fidelity=None, cheap_path=None):
     from .cheap import study_surrogates, wants_two_fidelity
-    from ..surrogate.gp import load_surrogates
+    from ..surrogate.set import load_surrogates
 
     two = wants_two_fidelity(study, fidelity)
     cheap_path = Path(cheap_path) if cheap_path is not None else files.cheap_results
@@ -253,7 +253,8 @@ def _sensitivity_step(study, sset, files: StudyFiles, steps):
 
 
 def _robust_step(study, sset, results, files: StudyFiles, steps):
-    from ..robust.search import study_robust, study_tradeoff, write_tradeoff
+    from ..robust.tradeoff import write_tradeoff
+    from .robust import study_robust, study_tradeoff
 
     if study.robust is None:
         steps("robust", "skipped: no response has a goal and there is no [robust] table")

@@ -8,7 +8,7 @@ Routes
 ------
 surrogate (default)
     One Gaussian process per response is fitted to the study's ok runs
-    (:func:`doe.surrogate.gp.fit_surrogates`); indices are computed on the
+    (:func:`doe.workflow.fit.fit_surrogates`); indices are computed on the
     posterior mean and their intervals include the posterior's spread.
 direct (``direct=True``)
     The study's evaluator is called at every point of the Saltelli sample:

@@ -49,7 +49,7 @@ Study keys (all optional; defaults in brackets)::
     body_3d_factor = 0.30
     ...
 
-A calibration written by ``doe calibrate`` (see :mod:`doe.calibration.solver`) gives
+A calibration written by ``doe calibrate`` (see :mod:`doe.calibration`) gives
 the coefficients' defaults with ``calibration = "calibration.json"`` in
 ``[evaluator]`` (relative to the study file); coefficients written in
 ``[evaluator.coefficients]`` still win.
@@ -65,6 +65,7 @@ from ...aero.car import CarGeometry
 from ...aero.model import DESIGN_INPUTS, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
 from ...errors import AeroError, DoeError
 from .base import Evaluator, Outcome, failed
+from .calibration_file import read_calibrated_coefficients
 
 __all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings", "same_output_unit"]
 
@@ -135,8 +136,6 @@ def _calibrated(study, t) -> dict:
     name = t.take("calibration", str, default=None)
     if name is None:
         return {}
-    from ...calibration.solver import read_calibrated_coefficients
-
     try:
         return read_calibrated_coefficients(study.resolve(name))
     except DoeError as exc:

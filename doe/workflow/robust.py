@@ -1,0 +1,101 @@
+"""The robust step of a study: its ``[robust]`` goals, limits and trade-off, its ``[vehicle]`` figures."""
+from __future__ import annotations
+
+from dataclasses import replace
+
+import pandas as pd
+
+from ..errors import DoeError
+from ..robust.scatter import predict_checked
+from ..robust.search import DEFAULT_MAXITER, RobustResult, find_settings
+from ..robust.tradeoff import tradeoff_set
+from ..vehicle import Aero, VehicleFigures, vehicle_figures
+
+__all__ = ["study_vehicle_figures", "study_responses", "only_responses", "study_robust", "study_tradeoff"]
+
+
+# ---------------------------------------------------------------------------
+# a study's settings
+def study_vehicle_figures(study, predict, x) -> VehicleFigures | None:
+    """Vehicle figures at setting ``x`` (study units) from the surrogate means of the ``[vehicle]`` responses.
+
+    Returns None when the study has no ``[vehicle]`` table. The lap time needs ``[track]``.
+    """
+    v = study.vehicle
+    if v is None:
+        return None
+    axles = v.cla_front_response is not None
+    names = [v.cda_response] + ([v.cla_front_response, v.cla_rear_response] if axles else [v.cla_response]) + (
+        [v.front_share_response] if v.front_share_response else [])
+    value = {n: float(m[0]) for n, (m, _) in predict_checked(predict, study.space.as_points(x), names).items()}
+    cda = max(value[v.cda_response], 0.0)
+    if axles:
+        aero = Aero(value[v.cla_front_response], value[v.cla_rear_response], cda)
+    else:
+        share = value[v.front_share_response] if v.front_share_response else v.aero_front_share
+        aero = Aero.from_total(value[v.cla_response], cda, share)
+    return vehicle_figures(v.car, aero, study.track, v.speeds_kph, v.radii_m)
+
+
+def study_responses(study) -> list:
+    """Responses the robust analysis of a study reads: objective, limits, trade-off, ``[vehicle]`` aero."""
+    names = []
+    if study.robust is not None:
+        names += [study.robust.objective] + [lim.response for lim in study.robust.limits] + list(study.robust.tradeoff)
+    v = study.vehicle
+    if v is not None:
+        names += [n for n in (v.cla_response, v.cda_response, v.cla_front_response, v.cla_rear_response,
+                              v.front_share_response) if n is not None]
+    return list(dict.fromkeys(names))
+
+
+def only_responses(surrogates, names):
+    """A fitted surrogate set reduced to the responses ``names``, so each prediction costs only those.
+
+    Parameters
+    ----------
+    surrogates : doe.surrogate.set.SurrogateSet
+    names : sequence of str
+
+    Returns
+    -------
+    doe.surrogate.set.SurrogateSet
+        The same models for ``names``; the others are left out.
+    """
+    missing = [n for n in names if n not in surrogates.models]
+    if missing:
+        raise DoeError(f"robust: no surrogate for {missing}; the surrogates cover {list(surrogates.models)}")
+    return replace(surrogates, models={n: surrogates.models[n] for n in names})
+
+
+def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) -> RobustResult:
+    """:func:`find_settings` with a study's ``[robust]`` goals, units and ``[vehicle]`` figures.
+
+    Parameters
+    ----------
+    study : doe.study.reader.Study
+    predict : callable
+        E.g. the ``predict`` of a fitted surrogate set.
+    runs_X : array_like, optional
+        Settings already run (study units).
+    maxiter : int
+    """
+    r = study.robust
+    if r is None:
+        raise DoeError("robust: the study has no [robust] settings")
+    units = {resp.name: resp.unit for resp in study.responses}
+    block = (lambda x: study_vehicle_figures(study, predict, x[None, :])) if study.vehicle is not None else None
+    baseline = [r.baseline[n] for n in study.space.names] if r.baseline is not None else None
+    return find_settings(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
+                         probability=r.probability, samples=r.samples, seed=r.seed, runs_X=runs_X, units=units,
+                         vehicle_block=block, baseline=baseline, maxiter=maxiter)
+
+
+def study_tradeoff(study, predict, samples: int = 4096) -> pd.DataFrame:
+    """:func:`tradeoff_set` of a study's ``[robust] tradeoff`` responses (goals from ``[[responses]]``)."""
+    r = study.robust
+    if r is None or len(r.tradeoff) < 2:
+        raise DoeError("trade-off: give at least two responses in [robust] tradeoff "
+                       "(by default the responses with a goal)")
+    goals = {resp.name: resp.goal for resp in study.responses}
+    return tradeoff_set(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed)
