@@ -41,7 +41,7 @@ def _max_error(res, exact) -> float:
 
 
 def _covered(res, exact) -> np.ndarray:
-    return np.r_[np.abs(res.S1 - exact["S1"]) <= res.S1_conf, np.abs(res.ST - exact["ST"]) <= res.ST_conf]
+    return np.r_[np.abs(res.S1 - exact["S1"]) <= res.S1_pm95, np.abs(res.ST - exact["ST"]) <= res.ST_pm95]
 
 
 def _needed(counts, errors, target):
@@ -172,10 +172,10 @@ def _builtin_agreement() -> list:
     for r in keep:
         d, s = direct[r], surrogate[r]
         for i, p in enumerate(d.parameters):
-            agree = (abs(d.S1[i] - s.S1[i]) <= d.S1_conf[i] + s.S1_conf[i]
-                     and abs(d.ST[i] - s.ST[i]) <= d.ST_conf[i] + s.ST_conf[i])
-            lines.append(f"| {r} | {p} | {d.S1[i]:.3f} ± {d.S1_conf[i]:.3f} | {s.S1[i]:.3f} ± {s.S1_conf[i]:.3f} | "
-                         f"{d.ST[i]:.3f} ± {d.ST_conf[i]:.3f} | {s.ST[i]:.3f} ± {s.ST_conf[i]:.3f} | "
+            agree = (abs(d.S1[i] - s.S1[i]) <= d.S1_pm95[i] + s.S1_pm95[i]
+                     and abs(d.ST[i] - s.ST[i]) <= d.ST_pm95[i] + s.ST_pm95[i])
+            lines.append(f"| {r} | {p} | {d.S1[i]:.3f} ± {d.S1_pm95[i]:.3f} | {s.S1[i]:.3f} ± {s.S1_pm95[i]:.3f} | "
+                         f"{d.ST[i]:.3f} ± {d.ST_pm95[i]:.3f} | {s.ST[i]:.3f} ± {s.ST_pm95[i]:.3f} | "
                          f"{'yes' if agree else 'NO'} |")
     return lines + [""]
 

@@ -11,7 +11,8 @@ import sys
 import warnings
 from pathlib import Path
 
-from .errors import CalibrationError, DoeError
+from .errors import CalibrationError, DoeError, SensitivityError
+from .study.reader import load_study
 
 __all__ = ["main", "build_parser"]
 
@@ -28,12 +29,6 @@ class _Parser(argparse.ArgumentParser):
 
 def _say(text: str) -> None:
     print(text, file=sys.stderr)
-
-
-def _write_json(data, path: Path) -> None:
-    from .runs.results import write_json
-
-    write_json(data, path)
 
 
 # ---------------------------------------------------------------------------
@@ -53,22 +48,11 @@ def _add_plan(sub):
 
 
 def _cmd_plan(args):
-    from .design.plans import augment_plan, make_plan
-    from .runs.results import read_plan, write_plan
-    from .study.reader import load_study
+    from .workflow.steps import plan_step
 
     study = load_study(args.study)
-    seed = args.seed if args.seed is not None else study.plan.seed
     out = args.out or study.default_output / "plan.csv"
-    if args.add_to is not None:
-        if args.runs is None:
-            raise DoeError("--add-to needs --runs (how many runs to add)")
-        plan = augment_plan(study.space, read_plan(args.add_to, study), args.runs, seed)
-    else:
-        runs = args.runs if args.runs is not None else study.plan.runs
-        plan = make_plan(study.space, runs, seed, args.method or study.plan.method)
-    write_plan(plan.frame, out)
-    _write_json(plan.record(), out.with_suffix(".quality.json"))
+    plan = plan_step(study, out, runs=args.runs, seed=args.seed, method=args.method, add_to=args.add_to)
     for note in plan.quality.notes:
         _say(f"note: {note}")
     _say(f"plan: {plan.quality.summary()}")
@@ -96,20 +80,14 @@ def _add_evaluate(sub):
 
 
 def _cmd_evaluate(args):
-    from .workflow.cheap import cheap_study
-    from .runs.evaluators import make_evaluator
-    from .runs.execution import evaluate_plan
     from .runs.results import read_plan
-    from .study.reader import load_study
+    from .workflow.steps import evaluate_step
 
     study = load_study(args.study)
     plan = read_plan(args.plan, study)
     out = args.out or study.default_output / ("cheap_results.csv" if args.cheap else "results.csv")
-    evaluator = make_evaluator(cheap_study(study) if args.cheap else study,
-                               workspace=out.parent / ("cheap_cases" if args.cheap else "cases"))
-    summary = evaluate_plan(plan, evaluator, out, study.space.names, jobs=args.jobs,
-                            retry_failed=args.retry_failed, progress=not args.no_progress,
-                            scheduler=args.scheduler)
+    summary = evaluate_step(study, plan, out, jobs=args.jobs, scheduler=args.scheduler, retry_failed=args.retry_failed,
+                            progress=not args.no_progress, cheap=args.cheap)
     _say(summary.line(out))
     if summary.failed:
         _say(f"note: {summary.failed} run(s) failed; their reasons are in the 'message' column; "
@@ -133,7 +111,6 @@ def _add_results_options(p, results_required: bool = True):
 def _study_results(args):
     """The study, its results and the seed, for the verbs that start from a results CSV."""
     from .runs.results import read_results
-    from .study.reader import load_study
 
     study = load_study(args.study)
     results = read_results(args.results, study, accept_outside=args.accept_outside)
@@ -168,17 +145,13 @@ def _add_fit(sub):
 def _cmd_fit(args):
     from .runs.results import read_points, write_plan
     from .surrogate.set import prediction_frame
+    from .workflow.steps import fit_lines, fit_step
 
     study, results, seed = _study_results(args)
-    sset = _surrogates(args, study, results, seed)
     out = args.out or study.default_output / "surrogate"
-    sset.save(out)
-    for name, rep in sset.fit_report().items():
-        _say(f"{name}: q2_loo {rep['q2_loo'] if rep['q2_loo'] is None else round(rep['q2_loo'], 3)}, "
-             f"rmse_loo {rep['rmse_loo']:.3g} {rep['unit']}, {rep['kernel']}, noise {rep['noise']}: "
-             f"{rep['verdict']} ({rep['verdict_reason']})")
-        for note in rep["statements"]:
-            _say(f"  note: {note}")
+    sset = fit_step(study, results, out, seed=seed, fidelity=args.fidelity, cheap_path=args.cheap_results, say=_say)
+    for line in fit_lines(sset.fit_report()):
+        _say(line)
     print(f"wrote {out}/fit.json")
     if args.predict is not None:
         target = args.predict_out or out / "predictions.csv"
@@ -206,31 +179,22 @@ def _add_next(sub):
 
 
 def _cmd_next(args):
-    from .design.adaptive import propose_runs
-    from .design.nested import is_two_fidelity, nested_runs
-    from .runs.results import read_plan, write_plan
+    from .runs.results import read_plan
+    from .workflow.steps import next_step
 
     study, results, seed = _study_results(args)
     pending = read_plan(args.pending, study) if args.pending is not None else None
     sset = _surrogates(args, study, results, seed)
-    taken = list(results.frame["run_id"]) + (list(pending["run_id"]) if pending is not None else [])
-    proposal = propose_runs(sset, args.runs, aim=args.aim, criterion=args.criterion, response=args.response,
-                            pending=None if pending is None else pending[study.space.names].to_numpy(float),
-                            avoid=results.failed[study.space.names].to_numpy(float), taken_ids=taken, seed=seed)
     out = args.out or study.default_output / "next.csv"
-    write_plan(proposal.frame, out)
-    record = proposal.record()
-    if is_two_fidelity(sset):
-        cheap, savings = nested_runs(study, sset, proposal, seed)
-        write_plan(cheap, out.with_suffix(".cheap.csv"))
-        record["two_fidelity"] = {**savings, "cheap_plan": str(out.with_suffix(".cheap.csv"))}
-        _say(f"note: {savings['statement']}")
-        _say(f"note: {savings['cheap_fit']}")
-        print(f"wrote {out.with_suffix('.cheap.csv')} (the cheap runs at the proposed points: a nested plan)")
-    _write_json(record, out.with_suffix(".why.json"))
-    for note in proposal.notes:
+    made = next_step(study, sset, results, args.runs, out, seed=seed, aim=args.aim, criterion=args.criterion,
+                     response=args.response, pending=pending)
+    if made.cheap_path is not None:
+        _say(f"note: {made.savings['statement']}")
+        _say(f"note: {made.savings['cheap_fit']}")
+        print(f"wrote {made.cheap_path} (the cheap runs at the proposed points: a nested plan)")
+    for note in made.proposal.notes:
         _say(f"note: {note}")
-    for pick in proposal.picks:
+    for pick in made.proposal.picks:
         _say(f"{pick.run_id}: {pick.reason}")
     print(f"wrote {out}")
 
@@ -259,15 +223,16 @@ def _add_sensitivity(sub):
 
 
 def _cmd_sensitivity(args):
-    from .workflow import sensitivity as ss
+    from .files import write_json
     from .runs.results import read_results
-    from .study.reader import load_study
+    from .workflow.sensitivity import study_screening
+    from .workflow.steps import sensitivity_step
 
     study = load_study(args.study)
     if args.screen:
-        screening = ss.study_screening(study, trajectories=args.trajectories, seed=args.seed)
+        screening = study_screening(study, trajectories=args.trajectories, seed=args.seed)
         out = args.out or study.default_output / "screening.json"
-        _write_json(screening.to_json(), out)
+        write_json(screening.to_dict(), out)
         print(f"inert for every response: {', '.join(screening.inert) or 'none'}")
         print(f"wrote {out}")
         return
@@ -275,12 +240,10 @@ def _cmd_sensitivity(args):
     surrogates = None
     if args.surrogate is not None or (results is not None and not args.direct):
         surrogates = _surrogates(args, study, results, args.seed if args.seed is not None else study.plan.seed)
-    result = ss.study_sensitivity(study, results, direct=args.direct, around=ss.parse_around(args.around, study),
-                                  second_order=args.second_order or None, base_samples=args.base_samples,
-                                  seed=args.seed, surrogates=surrogates, max_evaluations=args.max_evaluations)
-    data = ss.study_sensitivity_json(study, result)
     out = args.out or study.default_output / "sensitivity.json"
-    _write_json(data, out)
+    data = sensitivity_step(study, out, results=results, direct=args.direct, around=parse_around(args.around, study),
+                            second_order=args.second_order or None, base_samples=args.base_samples, seed=args.seed,
+                            surrogates=surrogates, max_evaluations=args.max_evaluations)
     for name, info in data["_meta"]["responses"].items():
         print(f"{name}: {info['statement']}")
     print(f"wrote {out}")
@@ -301,22 +264,17 @@ def _add_robust(sub):
 
 
 def _cmd_robust(args):
-    from .robust.tradeoff import write_tradeoff
-    from .workflow.robust import only_responses, study_responses, study_robust, study_tradeoff
+    from .workflow.steps import robust_step
 
     study, results, seed = _study_results(args)
     sset = _surrogates(args, study, results, seed)
-    sset = only_responses(sset, study_responses(study))
-    result = study_robust(study, sset.predict, runs_X=results.X())
     out = args.out or study.default_output / "robust.json"
-    _write_json(result.to_dict(), out)
+    target = args.tradeoff_out or out.with_name("tradeoff.csv")
+    result, table = robust_step(study, sset, results, out, target)
     for label, point in (("nominal", result.nominal), ("robust", result.robust)):
         _say(point.summary(label, result.objective, result.unit))
     print(f"wrote {out}")
-    if len(study.robust.tradeoff) >= 2:
-        target = args.tradeoff_out or out.with_name("tradeoff.csv")
-        table = study_tradeoff(study, sset.predict)
-        write_tradeoff(table, target)
+    if table is not None:
         _say(f"trade-off: {len(table)} non-dominated settings of {', '.join(study.robust.tradeoff)}")
         print(f"wrote {target}")
 
@@ -345,7 +303,6 @@ def _add_calibrate(sub):
 
 def _cmd_calibrate(args):
     from .workflow.calibration import calibrate_study
-    from .study.reader import load_study
 
     study, results, seed = _study_results(args)
     model = load_study(args.model_study) if args.model_study is not None else None
@@ -358,6 +315,33 @@ def _cmd_calibrate(args):
     for note in calibration.notes:
         _say(f"note: {note}")
     print(f"wrote {out}")
+
+
+# option values of `doe sensitivity`
+def parse_around(tokens, study):
+    """``--around`` words as :func:`doe.workflow.sensitivity.study_inputs` takes them: None, ``"nominal"`` or ``{name: value}``.
+
+    Parameters
+    ----------
+    tokens : list of str or None
+        ``["nominal"]`` or ``["flap_angle=12", "wing_aoa=8"]`` (study units).
+    study : Study
+    """
+    if not tokens:
+        return None
+    if tokens == ["nominal"]:
+        return "nominal"
+    point = {}
+    for token in tokens:
+        name, sep, value = token.partition("=")
+        if not sep or name not in study.space.names:
+            raise SensitivityError(f"--around: {token!r} is not NAME=VALUE with a parameter name "
+                                   f"({', '.join(study.space.names)}), nor 'nominal'")
+        try:
+            point[name] = float(value)
+        except ValueError:
+            raise SensitivityError(f"--around: {value!r} in {token!r} is not a number") from None
+    return point
 
 
 # option values of `doe calibrate`
@@ -448,7 +432,6 @@ def _add_report(sub):
 
 def _cmd_report(args):
     from .workflow.pipeline import NEXT_RUNS_DEFAULT, StudyFiles, analyse_and_report
-    from .study.reader import load_study
 
     study = load_study(args.study)
     files = StudyFiles(args.out or study.default_output)
@@ -474,7 +457,6 @@ def _add_run(sub):
 
 def _cmd_run(args):
     from .workflow.pipeline import NEXT_RUNS_DEFAULT, run_study
-    from .study.reader import load_study
 
     study = load_study(args.study)
     k = NEXT_RUNS_DEFAULT if args.next_runs is None else args.next_runs

@@ -6,7 +6,7 @@ import pytest
 from doe.testing import functions as tf
 from doe.design.adaptive import MIN_DISTANCE, propose_runs, run_adaptive
 from doe.errors import SurrogateError
-from doe.design.plans import _candidates, greedy_maximin, maximin_lhs
+from doe.design.plans import candidates, greedy_maximin, maximin_lhs
 from doe.study.reader import read_study_text
 from doe.surrogate.gp import ResponseSurrogate
 from doe.workflow.fit import fit_surrogates
@@ -46,7 +46,7 @@ def test_proposals_are_feasible_new_and_explained(fitted, aim, criterion):
     assert dist[len(old):].min() > MIN_DISTANCE          # no duplicate of an old, pending or picked run
     last = max(int(r[1:]) for r in res.frame["run_id"])
     assert list(p.frame["run_id"]) == [f"r{i:03d}" for i in range(last + 1, last + 6)]  # numbering continues
-    assert all(pick.reason for pick in p.picks) and p.record()["criterion"] == criterion
+    assert all(pick.reason for pick in p.picks) and p.to_dict()["criterion"] == criterion
 
 
 def test_bad_requests_are_refused(fitted):
@@ -99,7 +99,7 @@ def test_adaptive_beats_space_filling_additions(name, n0, n_add):
     adaptive, filling = [], []
     for seed in range(4):
         U0 = maximin_lhs(n0, f.dim, seed=seed)
-        C = _candidates(space, 4096, np.random.default_rng(seed))
+        C = candidates(space, 4096, np.random.default_rng(seed))
         Ua = np.vstack([U0, greedy_maximin(C, n_add, existing=U0)])
         filling.append(_test_error(ResponseSurrogate(seed=seed, **FAST).fit(Ua, f.on_unit(Ua)), f, Ut, yt))
         _, _, model = run_adaptive(f.on_unit, space, U0, n_add, batch=2, refit_every=2, seed=seed, **FAST)

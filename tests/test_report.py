@@ -108,8 +108,8 @@ def test_report_numbers_equal_the_files_it_was_built_from(built):
     for r in ("y", "z"):
         for p in ("x1", "x2"):
             cell = sens[r][p]
-            assert f"{fmt(cell['S1'])} ± {fmt(cell['S1_conf'])}" in text
-            assert f"{fmt(cell['ST'])} ± {fmt(cell['ST_conf'])}" in text
+            assert f"{fmt(cell['S1'])} ± {fmt(cell['S1_pm95'])}" in text
+            assert f"{fmt(cell['ST'])} ± {fmt(cell['ST_pm95'])}" in text
         assert sens["_meta"]["responses"][r]["statement"] in text
     rob = json.loads((built / "robust.json").read_text())
     for key in ("nominal", "robust"):

@@ -13,7 +13,7 @@ from doe.testing import functions as tf
 from doe.sensitivity.inputs import InputDistribution
 from doe.errors import SensitivityError
 from doe.sensitivity.sobol import sobol_indices
-from doe.sensitivity.words import describe, to_json
+from doe.sensitivity.words import describe, to_dict
 from doe.workflow.sensitivity import surrogate_callables
 from doe.space import Parameter, Space
 from doe.surrogate.gp import ResponseSurrogate
@@ -74,8 +74,8 @@ def test_ishigami_direct_within_001(ishigami_direct):
     # 0.01: the accuracy for the direct route; Saltelli 2010 / Jansen estimators at N = 2^15
     np.testing.assert_allclose(res.S1, s1, atol=0.01)
     np.testing.assert_allclose(res.ST, st, atol=0.01)
-    assert np.all(np.abs(res.S1 - s1) <= res.S1_conf) and np.all(np.abs(res.ST - st) <= res.ST_conf)
-    assert np.all(res.S1_conf_surrogate == 0) and ishigami_direct.route == "direct"
+    assert np.all(np.abs(res.S1 - s1) <= res.S1_pm95) and np.all(np.abs(res.ST - st) <= res.ST_pm95)
+    assert np.all(res.S1_pm95_surrogate == 0) and ishigami_direct.route == "direct"
     assert res.ranking() == ["x1", "x2", "x3"] and res.unresolved == []
 
 
@@ -143,8 +143,8 @@ def test_coverage_of_direct_intervals_over_seeds():
         inputs = InputDistribution.uniform(f.space())
         for seed in range(12):
             res = sobol_indices(f, inputs, base_samples=2**9, seed=seed)["y"]
-            hits.extend(np.abs(res.S1 - exact[0]) <= res.S1_conf)
-            hits.extend(np.abs(res.ST - exact[1]) <= res.ST_conf)
+            hits.extend(np.abs(res.S1 - exact[0]) <= res.S1_pm95)
+            hits.extend(np.abs(res.ST - exact[1]) <= res.ST_pm95)
     assert np.mean(hits) >= 0.90
 
 
@@ -154,7 +154,7 @@ def test_same_seed_same_numbers_and_seed_zero_is_seeded():
     a = sobol_indices(f, inputs, base_samples=2**9, seed=0)["y"]
     b = sobol_indices(f, inputs, base_samples=2**9, seed=0)["y"]
     c = sobol_indices(f, inputs, base_samples=2**9, seed=1)["y"]
-    np.testing.assert_array_equal(a.ST_conf, b.ST_conf)  # exact: same seed, same bootstrap
+    np.testing.assert_array_equal(a.ST_pm95, b.ST_pm95)  # exact: same seed, same bootstrap
     assert not np.array_equal(a.ST, c.ST)
 
 
@@ -191,9 +191,9 @@ def test_ishigami_surrogate_within_003(ishigami_surrogate):
     # 0.03: the accuracy for the surrogate route from at most 200 runs
     np.testing.assert_allclose(res.S1, s1, atol=0.03)
     np.testing.assert_allclose(res.ST, st, atol=0.03)
-    assert np.all(np.abs(res.S1 - s1) <= res.S1_conf) and np.all(np.abs(res.ST - st) <= res.ST_conf)
+    assert np.all(np.abs(res.S1 - s1) <= res.S1_pm95) and np.all(np.abs(res.ST - st) <= res.ST_pm95)
     assert result.route == "surrogate" and result.n_paths == 64 and result.path_base_samples == 256
-    assert np.any(res.ST_conf_surrogate > 0)
+    assert np.any(res.ST_pm95_surrogate > 0)
 
 
 def test_surrogate_share_vanishes_without_posterior_spread():
@@ -201,8 +201,8 @@ def test_surrogate_share_vanishes_without_posterior_spread():
     inputs = InputDistribution.uniform(f.space())
     exact_paths = lambda X, n, seed: np.tile(f(X), (n, 1))  # noqa: E731 - a posterior with no spread
     res = sobol_indices(f, inputs, paths=exact_paths, base_samples=2**10, seed=0)["y"]
-    np.testing.assert_array_equal(res.ST_conf_surrogate, 0.0)  # exact: the control variate cancels
-    np.testing.assert_array_equal(res.ST_conf, res.ST_conf_mc)
+    np.testing.assert_array_equal(res.ST_pm95_surrogate, 0.0)  # exact: the control variate cancels
+    np.testing.assert_array_equal(res.ST_pm95, res.ST_pm95_mc)
 
 
 def test_surrogate_share_grows_with_posterior_spread():
@@ -215,7 +215,7 @@ def test_surrogate_share_grows_with_posterior_spread():
         X = space.from_unit(qmc.LatinHypercube(3, seed=1).random(runs))
         model, paths = fit_reference_gp(space, X, f(X), seed=1)
         res = sobol_indices(model, inputs, paths=paths, base_samples=2**10, n_paths=32, seed=1)["y"]
-        half.append(res.ST_conf_surrogate.max())
+        half.append(res.ST_pm95_surrogate.max())
     assert half[0] > 2 * half[1]  # fewer runs, a wider posterior: a clearly wider surrogate share
 
 
@@ -244,10 +244,10 @@ def test_interaction_is_named_with_second_order():
 
 
 def test_json_keys_and_finite_values(ishigami_surrogate):
-    data = to_json(ishigami_surrogate[0])
+    data = to_dict(ishigami_surrogate[0])
     json.dumps(data, allow_nan=False)
     for p in ("x1", "x2", "x3"):
-        assert {"S1", "S1_conf", "ST", "ST_conf", "S1_conf_mc", "S1_conf_surrogate", "rank"} <= set(data["y"][p])
+        assert {"S1", "S1_pm95", "ST", "ST_pm95", "S1_pm95_mc", "S1_pm95_surrogate", "rank"} <= set(data["y"][p])
     meta = data["_meta"]
     assert meta["route"] == "surrogate" and meta["inputs"]["kind"] == "uniform"
     assert meta["responses"]["y"]["ranking"] == ["x1", "x2", "x3"]

@@ -117,9 +117,9 @@ def test_direct_and_surrogate_routes_agree_within_intervals(study, tmp_path):
     direct = study_sensitivity(study, direct=True, evaluator=FunctionEvaluator(["y"]), base_samples=2**11)["y"]
     surrogate = study_sensitivity(study, read_results(tmp_path / "results.csv", study), base_samples=2**11)["y"]
     # each route within its 95 % interval of the exact value, and within the combined intervals of each other
-    assert np.all(np.abs(direct.ST - st) <= direct.ST_conf) and np.all(np.abs(surrogate.ST - st) <= surrogate.ST_conf)
-    assert np.all(np.abs(direct.S1 - surrogate.S1) <= direct.S1_conf + surrogate.S1_conf)
-    assert np.all(np.abs(direct.ST - surrogate.ST) <= direct.ST_conf + surrogate.ST_conf)
+    assert np.all(np.abs(direct.ST - st) <= direct.ST_pm95) and np.all(np.abs(surrogate.ST - st) <= surrogate.ST_pm95)
+    assert np.all(np.abs(direct.S1 - surrogate.S1) <= direct.S1_pm95 + surrogate.S1_pm95)
+    assert np.all(np.abs(direct.ST - surrogate.ST) <= direct.ST_pm95 + surrogate.ST_pm95)
     assert ("x2", "x3") in surrogate.unresolved or ("x3", "x2") in surrogate.unresolved  # equal by symmetry
 
 
@@ -152,7 +152,7 @@ def test_cli_writes_documented_json(study, tmp_path, capsys):
     assert code == 0
     data = json.loads(out.read_text())
     for p in ("x1", "x2", "x3"):
-        assert {"S1", "S1_conf", "ST", "ST_conf"} <= set(data["y"][p])
+        assert {"S1", "S1_pm95", "ST", "ST_pm95"} <= set(data["y"][p])
     meta = data["_meta"]
     assert meta["route"] == "surrogate" and meta["base_samples"] == 1024 and meta["second_order"]
     pairs = {tuple(e["parameters"]): e["S2"] for e in meta["responses"]["y"]["second_order"]}
@@ -191,12 +191,12 @@ def test_morris_screens_out_inert_g_function_inputs():
     assert res.inert == ["x5", "x6", "x7", "x8"]
     mu = res.measures["y"]["mu_star"]
     assert list(np.argsort(-mu)[:4]) == [0, 1, 2, 3]
-    json.dumps(res.to_json(), allow_nan=False)
+    json.dumps(res.to_dict(), allow_nan=False)
 
 
 def test_study_screening_through_the_evaluator(study):
     res = study_screening(study, trajectories=6, evaluator=FunctionEvaluator(["y"]))
-    assert res.evaluations == 6 * 4 and res.to_json()["_meta"]["trajectories"] == 6
+    assert res.evaluations == 6 * 4 and res.to_dict()["_meta"]["trajectories"] == 6
 
 
 def test_evaluator_model_reports_shape():
@@ -228,6 +228,6 @@ def test_direct_and_surrogate_agree_on_the_builtin_model():
     surrogate = study_sensitivity(study, results, base_samples=1024)
     for r in study.response_names:
         d, s = direct[r], surrogate[r]
-        assert np.all(np.abs(d.S1 - s.S1) <= d.S1_conf + s.S1_conf), r
-        assert np.all(np.abs(d.ST - s.ST) <= d.ST_conf + s.ST_conf), r
+        assert np.all(np.abs(d.S1 - s.S1) <= d.S1_pm95 + s.S1_pm95), r
+        assert np.all(np.abs(d.ST - s.ST) <= d.ST_pm95 + s.ST_pm95), r
         assert d.ranking()[0] == s.ranking()[0] == "wing_aoa", r

@@ -248,7 +248,7 @@ def test_sensitivity_and_robust_run_on_two_fidelity_surrogates(two_level_study, 
 
 
 def test_nested_plan_spreads_more_cheap_runs_when_the_cheap_map_is_poor(two_level_study, tmp_path, monkeypatch):
-    import doe.design.nested as nestedplan
+    import doe.workflow.cheap as nestedplan
     from doe.design.adaptive import propose_runs
     from doe.workflow.cheap import study_surrogates
     from doe.runs.results import read_results

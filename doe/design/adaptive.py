@@ -54,7 +54,7 @@ from scipy.stats import norm
 from threadpoolctl import threadpool_limits
 
 from ..errors import PlanError, SurrogateError
-from .plans import _candidates, _next_ids
+from .plans import candidates, next_ids
 
 __all__ = ["propose_runs", "run_adaptive", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
 
@@ -117,7 +117,7 @@ class Proposal:
     accuracy_met: bool
     notes: list = field(default_factory=list)
 
-    def record(self) -> dict:
+    def to_dict(self) -> dict:
         """The ``<plan>.why.json`` sidecar: the criterion and, per run, its score and reason."""
         return {"aim": self.aim, "criterion": self.criterion, "criterion_source": _SOURCES[self.criterion],
                 "batch": "kriging believer: each pick assumes the earlier picks and pending runs return the "
@@ -229,7 +229,7 @@ def _eigf(models, sset, C, R, response):
 _CRITERIA = {"ivr": _ivr, "variance": _variance, "ei": _ei, "eigf": _eigf}
 
 
-def _local_candidates(sset, response, rng, n_each=128, spread=0.05):
+def _localcandidates(sset, response, rng, n_each=128, spread=0.05):
     """Points around the best runs so far, for the expected improvement."""
     m = sset.models[response]
     sign = 1.0 if sset.goals[response] == "minimize" else -1.0
@@ -311,17 +311,17 @@ def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed,
     P = sset.unit_points(pending) if pending is not None and len(pending) else np.zeros((0, space.dim))
     A = sset.unit_points(avoid) if avoid is not None and len(avoid) else np.zeros((0, space.dim))
     models = {n: (m.conditioned(P) if len(P) else m) for n, m in sset.models.items()}
-    C = _candidates(space, n_candidates, rng)
+    C = candidates(space, n_candidates, rng)
     if aim == "optimum":
-        C = np.vstack([C, _local_candidates(sset, response, rng)])
+        C = np.vstack([C, _localcandidates(sset, response, rng)])
     C = C[_far_from(C, np.vstack([first.X_unit_, P, A]))]
-    R = _candidates(space, N_REFERENCE, rng) if criterion == "ivr" else None
+    R = candidates(space, N_REFERENCE, rng) if criterion == "ivr" else None
     met, status = accuracy_status(sset)
     notes = [status]
     if len(P):
         notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean")
     chosen, picks = [], []
-    ids = _next_ids(list(sset.run_ids) + list(taken_ids), k)
+    ids = next_ids(list(sset.run_ids) + list(taken_ids), k)
     for j in range(k):
         if len(C) == 0:
             raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; ask for fewer runs")

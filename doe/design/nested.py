@@ -29,8 +29,6 @@ References
 """
 from __future__ import annotations
 
-import copy
-
 import numpy as np
 
 from ..errors import SurrogateError
@@ -45,12 +43,6 @@ SUBSET_FRACTIONS = (0.5, 0.625, 0.75, 0.875)
 SPLITS = 16
 #: Largest number of runs an extrapolation may report (beyond it: "more than").
 EXTRAPOLATION_CAP = 5000
-
-
-def _refit(model, X, y):
-    other = copy.copy(model)
-    other._refit_fixed(X, y)
-    return other
 
 
 def learning_curve(model, seed=0) -> tuple[np.ndarray, np.ndarray]:
@@ -89,7 +81,7 @@ def learning_curve(model, seed=0) -> tuple[np.ndarray, np.ndarray]:
             idx = rng.permutation(n)
             train, test = idx[:m], idx[m:]
             try:
-                sub = _refit(base, X[train], target[train])
+                sub = base.refitted(X[train], target[train])
             except SurrogateError:       # a singular subset: skip that split
                 continue
             pred = sub.predict(X[test]) + offset[test]
@@ -159,7 +151,7 @@ def expected_savings(sset, seed=0) -> dict:
         n_now = len(model.y_)
         if n_now < MIN_RUNS:
             continue
-        single = ResponseSurrogate(**{**model._options(), "seed": int(seed)}).fit(model.X_unit_, model.y_)
+        single = ResponseSurrogate(**{**model.options(), "seed": int(seed)}).fit(model.X_unit_, model.y_)
         a = runs_to_target(*learning_curve(model, seed), sset.target_q2)
         b = runs_to_target(*learning_curve(single, seed), sset.target_q2)
         out[name] = {"with_cheap_model": a, "expensive_only": b}
@@ -199,59 +191,3 @@ def expected_savings(sset, seed=0) -> dict:
 def is_two_fidelity(sset) -> bool:
     """Whether any response of a surrogate set leans on a cheap model."""
     return any(getattr(m, "fidelity", "single") == "two" for m in sset.models.values())
-
-
-def nested_runs(study, sset, proposal, seed=0):
-    """The cheap runs to go with proposed expensive runs, and the savings estimate.
-
-    Parameters
-    ----------
-    study : Study
-        With a ``[low_fidelity]`` table.
-    sset : SurrogateSet
-        Two-fidelity surrogates.
-    proposal : Proposal
-        From :func:`doe.design.adaptive.propose_runs`.
-    seed : int
-
-    Returns
-    -------
-    cheap : DataFrame
-        ``run_id`` and parameter columns: one cheap run at every proposed
-        expensive run (``at_<expensive run id>``) and, when the cheap runs'
-        own fit is below :data:`CHEAP_Q2`, more cheap runs spread by greedy
-        maximin where they are sparsest (``cx<n>_<k>``).
-    savings : dict
-        :func:`expected_savings`, plus ``cheap_fit``: a statement on the
-        cheap level's own accuracy.
-    """
-    import pandas as pd
-
-    from ..workflow.cheap import cheap_plan
-    from .plans import augment_plan
-
-    cheap = cheap_plan(study, proposal.frame, spread=0)
-    savings = expected_savings(sset, seed)
-    two = {n: m for n, m in sset.models.items() if getattr(m, "fidelity", "single") == "two"}
-    worst = min((m.low_.loo_.q2, n) for n, m in two.items())
-    text = f"the cheap runs' own fit reaches q2 {worst[0]:.3f} ({worst[1]})"
-    if worst[0] < CHEAP_Q2:           # the cheap map limits the two-fidelity one: spread more cheap runs
-        low = two[worst[1]].low_
-        done = pd.DataFrame(sset.space.from_unit(low.X_unit_), columns=sset.space.names)
-        done.insert(0, "run_id", [f"r{i + 1}" for i in range(len(done))])
-        k = max(CHEAP_EXTRA_PER_PARAMETER * sset.space.dim, len(done) // 2)
-        extra = augment_plan(sset.space, done, k, seed).frame.iloc[len(done):].copy()
-        extra["run_id"] = [f"cx{len(done)}_{i + 1:04d}" for i in range(len(extra))]
-        cheap = pd.concat([cheap, extra], ignore_index=True)
-        text += (f", below {CHEAP_Q2:g}: {k} more cheap runs spread where the cheap runs are sparsest are in the "
-                 "cheap plan (or raise [low_fidelity] runs)")
-    else:
-        text += "; enough"
-    savings["cheap_fit"] = text
-    return cheap, savings
-
-
-#: Leave-one-out q2 of the cheap runs' own fit below which more cheap runs are proposed ...
-CHEAP_Q2 = 0.995
-#: ... at least this many per parameter (or half as many again as there are).
-CHEAP_EXTRA_PER_PARAMETER = 10

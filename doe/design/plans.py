@@ -229,7 +229,7 @@ def sobol_points(n: int, d: int, seed=None) -> tuple[np.ndarray, list]:
     return engine.random_base2(m)[:n], notes
 
 
-def _candidates(space, count: int, rng) -> np.ndarray:
+def candidates(space, count: int, rng) -> np.ndarray:
     """Feasible candidate points in the unit cube (scrambled Sobol', then rejection)."""
     m = int(math.ceil(math.log2(max(count, 64))))
     U = qmc.Sobol(space.dim, scramble=True, seed=rng).random_base2(m)
@@ -289,12 +289,12 @@ def constrained_maximin(space, n: int, seed=None) -> tuple[np.ndarray, list]:
     if n > GREEDY_LIMIT:
         # Greedy selection costs n x candidates distance evaluations; for big plans the feasible
         # points of one scrambled Sobol' sequence, in sequence order, fill the space well enough.
-        C = _candidates(space, int(n / max(space.feasible_fraction(), 1e-3) * 1.2) + 64, rng)
+        C = candidates(space, int(n / max(space.feasible_fraction(), 1e-3) * 1.2) + 64, rng)
         if len(C) < n:
             raise PlanError(f"asked for {n} runs but only {len(C)} candidate points are feasible")
         return C[:n], [f"{share}: the plan is the feasible part of a scrambled Sobol' sequence (more than "
                        f"{GREEDY_LIMIT} runs), so the one-run-per-stratum (Latin) property does not hold"]
-    C = _candidates(space, min(max(64 * n, 4096), 65536), rng)
+    C = candidates(space, min(max(64 * n, 4096), 65536), rng)
     U = greedy_maximin(C, n, rng=rng)
     notes = [f"{share}: the plan is a maximin selection of feasible points, so the one-run-per-stratum (Latin) "
              "property does not hold in general"]
@@ -326,7 +326,7 @@ class Plan:
     method: str
     seed: int
 
-    def record(self) -> dict:
+    def to_dict(self) -> dict:
         """What is written beside the plan CSV as JSON."""
         return {"method": self.method, "seed": self.seed, "quality": self.quality.to_dict(),
                 "units": "distances and discrepancy measured on parameters scaled to [0, 1]"}
@@ -404,17 +404,18 @@ def augment_plan(space, existing: pd.DataFrame, k: int, seed: int = 0) -> Plan:
         raise PlanError(f"the number of runs to add must be at least 1, got {k}")
     rng = np.random.default_rng(seed)
     U0 = space.to_unit(existing[space.names].to_numpy(dtype=float))
-    C = _candidates(space, min(max(64 * (len(U0) + k), 4096), 65536), rng)
+    C = candidates(space, min(max(64 * (len(U0) + k), 4096), 65536), rng)
     new = greedy_maximin(C, k, existing=U0, rng=rng)
     U = np.vstack([U0, new])
-    ids = _next_ids(list(existing["run_id"]), k)
+    ids = next_ids(list(existing["run_id"]), k)
     frame = pd.concat([existing[["run_id", *space.names]].reset_index(drop=True), _frame(space, new, ids)],
                       ignore_index=True)
     notes = [f"{len(U0)} runs kept, {k} added by greedy maximin selection"]
     return Plan(frame, plan_quality(U, notes), "augment", seed)
 
 
-def _next_ids(old: list, k: int) -> list:
+def next_ids(old: list, k: int) -> list:
+    """``k`` new run ids after those in ``old`` (``r<n>``, numbered on from the largest)."""
     nums = [int(r[1:]) for r in old if r.startswith("r") and r[1:].isdigit()]
     start = max(nums, default=0) + 1
     ids = run_ids(k, start)

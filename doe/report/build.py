@@ -141,7 +141,7 @@ def _sensitivity_blocks(study, data: dict, folder: Path) -> list:
         if not isinstance(rec, dict):
             continue
         params = [p for p in study.space.parameters if isinstance(rec.get(p.name), dict)]
-        rows = [{"name": p.name, **{k: rec[p.name].get(k) for k in ("S1", "S1_conf", "ST", "ST_conf")}}
+        rows = [{"name": p.name, **{k: rec[p.name].get(k) for k in ("S1", "S1_pm95", "ST", "ST_pm95")}}
                 for p in params]
         rows.sort(key=lambda row: -(row["ST"] or 0.0))
         about = meta.get(r.name, {})
@@ -150,8 +150,18 @@ def _sensitivity_blocks(study, data: dict, folder: Path) -> list:
         blocks.append({"response": r.name, "unit": r.unit, "rows": rows, "words": words,
                        "unresolved": "; ".join(" vs ".join(pair) if isinstance(pair, (list, tuple)) else str(pair)
                                                for pair in unresolved),
-                       "figure": F.sobol_bars(r.name, r.unit, rec, params, folder)})
+                       "figure": F.sobol_bars(r.name, r.unit, _bars_record(rec, params), params, folder)})
     return blocks
+
+
+def _bars_record(rec: dict, params) -> dict:
+    """The sensitivity record with the interval keys ``figures.sobol_bars`` reads (``S1_conf``, ``ST_conf``).
+
+    The sensitivity JSON names the 95 % half-widths ``S1_pm95`` and ``ST_pm95``; until the figure
+    module reads those names itself, they are handed to it under the names it knows.
+    """
+    return {p.name: {**rec[p.name], "S1_conf": rec[p.name].get("S1_pm95"), "ST_conf": rec[p.name].get("ST_pm95")}
+            for p in params}
 
 
 def _rank_words(response: str, rows: list) -> str:
@@ -159,7 +169,7 @@ def _rank_words(response: str, rows: list) -> str:
     parts = []
     for row in rows[:3]:
         st = row["ST"] or 0.0
-        parts.append(f"{row['name']} takes part in about {100 * st:.0f} % (± {100 * (row['ST_conf'] or 0):.0f})")
+        parts.append(f"{row['name']} takes part in about {100 * st:.0f} % (± {100 * (row['ST_pm95'] or 0):.0f})")
     return f"Of the variation in {response}, " + "; ".join(parts) + "."
 
 
@@ -296,7 +306,7 @@ def build_report(inputs: ReportInputs, folder) -> Path:
     folder : str or Path
         Created when missing; its figures and ``index.html`` are replaced.
     """
-    from .. import __version__
+    from ..version import __version__
 
     study = inputs.study
     folder = Path(folder)

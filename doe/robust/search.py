@@ -95,6 +95,7 @@ import numpy as np
 from scipy.stats import qmc
 
 from ..errors import DoeError
+from ..seeds import child_seeds, seed_value
 from ..space import Space
 from ..study.reader import ResponseLimit
 from ..vehicle import VehicleFigures, compare_figures
@@ -453,8 +454,7 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
         if not space.in_bounds(baseline[None, :])[0]:
             raise DoeError(f"robust: the baseline {dict(zip(space.names, baseline.tolist()))} is outside the bounds")
     limits = tuple(_as_limit(lim) for lim in limits)
-    rng = np.random.default_rng(seed)
-    seeds = rng.integers(0, 2**63 - 1, size=3)
+    seeds = child_seeds(seed, 3)
     responses = list(dict.fromkeys([objective] + [lim.response for lim in limits]))
     ranges = _ranges(predict, space, responses, seeds[0])
     problem = _Problem(predict, space, objective, sense, float(k), tuple(limits), float(probability),
@@ -475,7 +475,7 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     method = {"propagation": "randomised quasi-Monte Carlo on the surrogate mean: scrambled Sobol' points "
                              "mapped to normal draws of setup scatter (tolerance = one standard deviation), "
                              "the same draws for every candidate",
-              "samples": len(problem.draws), "seed": seed if isinstance(seed, int) else None,
+              "samples": len(problem.draws), "seed": seed_value(seed),
               "search": f"best of {restarts} differential-evolution runs over the unit cube, {maxiter} "
                         "generations each, penalty for broken constraints and limits",
               "probability_target": float(probability)}

@@ -22,11 +22,11 @@ of the largest ``mu_star`` of that response (common practice, no source).
 Screening ranks; it does not measure shares of variance: use
 :mod:`doe.sensitivity.sobol` on the parameters that remain.
 
-Screening JSON: ``{"<response>": {"<parameter>": {"mu_star": x, "mu_star_conf":
+Screening JSON: ``{"<response>": {"<parameter>": {"mu_star": x, "mu_star_pm95":
 x, "mu": x, "sigma": x, "mu_star_rel": x, "inert": bool}, ...}, ...,
 "_meta": {"method", "trajectories", "levels", "evaluations", "inert_fraction",
-"inert": [parameters inert for every response], "seed"}}``; ``mu_star``,
-``mu_star_conf`` (95 % half-width), ``mu`` and ``sigma`` in the response's
+"inert": [parameters inert for every response], "seed", "library"}}``; ``mu_star``,
+``mu_star_pm95`` (95 % half-width), ``mu`` and ``sigma`` in the response's
 unit per full range of the parameter, ``mu_star_rel`` as a share of the
 largest ``mu_star`` of the response.
 
@@ -51,7 +51,9 @@ from SALib.analyze import morris as _morris_analyze
 from SALib.sample import morris as _morris_sample
 
 from ..errors import SensitivityError
+from ..seeds import seed_value
 from .sobol import evaluate_model, output_names
+from .words import LIBRARY
 from ..space import Space
 
 __all__ = ["ScreeningResult", "morris_screening", "INERT_FRACTION"]
@@ -68,7 +70,7 @@ class ScreeningResult:
     ----------
     parameters : tuple of str
     measures : dict of str to dict
-        Per response: ``mu_star``, ``mu_star_conf``, ``mu``, ``sigma`` (response
+        Per response: ``mu_star``, ``mu_star_pm95``, ``mu``, ``sigma`` (response
         unit per full range of the parameter), ``mu_star_rel``, ``inert``.
     trajectories, levels, evaluations : int
     inert_fraction : float
@@ -89,7 +91,7 @@ class ScreeningResult:
         flags = np.all([m["inert"] for m in self.measures.values()], axis=0)
         return [p for p, f in zip(self.parameters, flags) if f]
 
-    def to_json(self) -> dict:
+    def to_dict(self) -> dict:
         """The screening JSON (keys in the module docstring)."""
         out = {}
         for r, m in self.measures.items():
@@ -97,7 +99,8 @@ class ScreeningResult:
                       for i, p in enumerate(self.parameters)}
         out["_meta"] = {"method": "Morris elementary effects (Morris 1991; mu_star of Campolongo et al. 2007; SALib)",
                         "trajectories": self.trajectories, "levels": self.levels, "evaluations": self.evaluations,
-                        "inert_fraction": self.inert_fraction, "inert": self.inert, "seed": self.seed}
+                        "inert_fraction": self.inert_fraction, "inert": self.inert, "seed": self.seed,
+                        "library": LIBRARY}
         return out
 
 
@@ -149,7 +152,7 @@ def morris_screening(model, space: Space, *, trajectories: int = 20, levels: int
     Y = evaluate_model(model, X, responses)
     measures = {r: _measures(problem, U, Y[r], levels, n_resamples, boot_seed, inert_fraction) for r in responses}
     return ScreeningResult(tuple(space.names), measures, int(trajectories), int(levels), len(X),
-                           float(inert_fraction), int(seed) if isinstance(seed, (int, np.integer)) else -1)
+                           float(inert_fraction), seed_value(seed))
 
 
 def _measures(problem, U, y, levels, n_resamples, boot_seed, inert_fraction) -> dict:
@@ -157,11 +160,12 @@ def _measures(problem, U, y, levels, n_resamples, boot_seed, inert_fraction) -> 
         warnings.simplefilter("ignore", RuntimeWarning)
         si = _morris_analyze.analyze(problem, U, y, num_resamples=n_resamples, conf_level=0.95,
                                      num_levels=int(levels), seed=boot_seed)
-    m = {k: np.asarray(si[k], dtype=float) for k in ("mu_star", "mu_star_conf", "mu", "sigma")}
+    m = {k: np.asarray(si[k], dtype=float) for k in ("mu_star", "mu", "sigma")}
+    m["mu_star_pm95"] = np.asarray(si["mu_star_conf"], dtype=float)    # the library's key, our name
     top = float(np.max(m["mu_star"]))
     m["mu_star_rel"] = m["mu_star"] / top if top > 0 else np.zeros_like(m["mu_star"])
     if top > 0:
-        m["inert"] = (m["mu_star"] + m["mu_star_conf"]) < inert_fraction * top
+        m["inert"] = (m["mu_star"] + m["mu_star_pm95"]) < inert_fraction * top
     else:  # a constant response: nothing moves it
         m["inert"] = np.ones(len(m["mu"]), dtype=bool)
     return m

@@ -101,6 +101,7 @@ from SALib.sample import sobol as _sobol_sample
 
 from .inputs import InputDistribution
 from ..errors import SensitivityError
+from ..seeds import seed_value
 
 __all__ = ["sobol_indices", "SobolResult", "ResponseIndices", "Z95", "NEGLIGIBLE"]
 
@@ -126,16 +127,16 @@ class ResponseIndices:
     S1, ST : ndarray
         First-order and total indices (shares of the variance, 0..1), computed
         on the surrogate's mean (or the model itself in the direct route).
-    S1_conf_mc, ST_conf_mc : ndarray
+    S1_pm95_mc, ST_pm95_mc : ndarray
         Half-widths from the Monte-Carlo estimator (bootstrap).
-    S1_conf_surrogate, ST_conf_surrogate : ndarray
+    S1_pm95_surrogate, ST_pm95_surrogate : ndarray
         Half-widths from the surrogate's own uncertainty (zero in the direct route).
     fixed : ndarray of bool
         Parameters that do not vary under the input distribution.
     mean, std : float
         Mean and standard deviation of the response under the input
         distribution, in the response's unit.
-    S2, S2_conf : ndarray (d, d) or None
+    S2, S2_pm95 : ndarray (d, d) or None
         Second-order indices and combined half-widths (upper triangle; NaN elsewhere).
     unresolved : list of (str, str)
         Pairs whose order by total index the data do not settle.
@@ -147,27 +148,27 @@ class ResponseIndices:
     parameters: tuple
     S1: np.ndarray
     ST: np.ndarray
-    S1_conf_mc: np.ndarray
-    ST_conf_mc: np.ndarray
-    S1_conf_surrogate: np.ndarray
-    ST_conf_surrogate: np.ndarray
+    S1_pm95_mc: np.ndarray
+    ST_pm95_mc: np.ndarray
+    S1_pm95_surrogate: np.ndarray
+    ST_pm95_surrogate: np.ndarray
     fixed: np.ndarray
     mean: float
     std: float
     S2: np.ndarray | None = None
-    S2_conf: np.ndarray | None = None
+    S2_pm95: np.ndarray | None = None
     unresolved: list = field(default_factory=list)
     notes: list = field(default_factory=list)
 
     @property
-    def S1_conf(self) -> np.ndarray:
+    def S1_pm95(self) -> np.ndarray:
         """Combined 95 % half-width of ``S1``: ``hypot(mc, surrogate)``."""
-        return np.hypot(self.S1_conf_mc, self.S1_conf_surrogate)
+        return np.hypot(self.S1_pm95_mc, self.S1_pm95_surrogate)
 
     @property
-    def ST_conf(self) -> np.ndarray:
+    def ST_pm95(self) -> np.ndarray:
         """Combined 95 % half-width of ``ST``."""
-        return np.hypot(self.ST_conf_mc, self.ST_conf_surrogate)
+        return np.hypot(self.ST_pm95_mc, self.ST_pm95_surrogate)
 
     def ranking(self) -> list[str]:
         """Varying parameters, most influential first (by total index)."""
@@ -462,11 +463,11 @@ def _combine(response: str, inputs: InputDistribution, est: _Estimate, spread: _
         full(conf(spread.S1_var)), full(conf(spread.ST_var)),
         np.array([i not in idx for i in range(d)]), est.mean, est.std)
     if second_order:
-        res.S2, res.S2_conf = np.full((d, d), np.nan), np.full((d, d), np.nan)
+        res.S2, res.S2_pm95 = np.full((d, d), np.nan), np.full((d, d), np.nan)
         sub = np.ix_(idx, idx)
         res.S2[sub] = est.S2
-        res.S2_conf[sub] = conf(np.nan_to_num(est.S2_var) + spread.S2_var)
-        res.S2_conf[np.isnan(res.S2)] = np.nan
+        res.S2_pm95[sub] = conf(np.nan_to_num(est.S2_var) + spread.S2_var)
+        res.S2_pm95[np.isnan(res.S2)] = np.nan
     diff_var = np.var(_pair_diffs(est.ST_boot), axis=0, ddof=1) + spread.ST_diff_var
     res.unresolved = _unresolved(res, idx, est.ST, conf(diff_var))
     res.notes = _notes(res, est, spread_given)
@@ -475,7 +476,7 @@ def _combine(response: str, inputs: InputDistribution, est: _Estimate, spread: _
 
 def _unresolved(res: ResponseIndices, idx: list, st: np.ndarray, diff_conf: np.ndarray) -> list:
     """Pairs whose total-index difference is within its interval (both-negligible pairs left out)."""
-    high = st + res.ST_conf[idx]
+    high = st + res.ST_pm95[idx]
     pairs = []
     order = np.argsort(-st, kind="stable")
     for a in range(len(order)):
@@ -492,7 +493,7 @@ def _notes(res: ResponseIndices, est: _Estimate, surrogate: bool) -> list:
     if est.std == 0.0:
         return [f"'{res.response}' does not vary under this input distribution; every index is set to 0"]
     notes = []
-    s1c, stc = res.S1_conf, res.ST_conf
+    s1c, stc = res.S1_pm95, res.ST_pm95
     for i, name in enumerate(res.parameters):
         if res.fixed[i]:
             continue
@@ -500,7 +501,7 @@ def _notes(res: ResponseIndices, est: _Estimate, surrogate: bool) -> list:
             notes.append(f"{name}: first-order index above the total one beyond their intervals (not resolved)")
         if res.S1[i] + s1c[i] < 0 or res.ST[i] + stc[i] < 0:
             notes.append(f"{name}: negative index beyond its interval (not resolved)")
-        if surrogate and res.ST[i] < NEGLIGIBLE and res.ST_conf_surrogate[i] < 1e-4:
+        if surrogate and res.ST[i] < NEGLIGIBLE and res.ST_pm95_surrogate[i] < 1e-4:
             notes.append(f"{name}: the surrogate shows no effect at all (its posterior does not vary along "
                          f"{name}), so its interval cannot include one; with few runs this can be an artefact of "
                          "the fit (a length scale at its bound): check before dropping the parameter")
@@ -623,7 +624,7 @@ def sobol_indices(model, inputs: InputDistribution, *, paths=None, responses=Non
             res.notes.append(f"{dropped} of {n_base} base rows were left out because the model failed at one of "
                              "their points: the indices describe the inputs where the model runs")
     return SobolResult(out, inputs, "surrogate" if paths is not None else "direct", n_base, n_evals,
-                       float(target_conf), reached, cfg.second_order, _seed_value(seed),
+                       float(target_conf), reached, cfg.second_order, seed_value(seed),
                        n_p, n_paths if paths is not None else None, dropped)
 
 
@@ -643,7 +644,3 @@ def _check_int(value, least: int, what: str) -> int:
     if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < least:
         raise SensitivityError(f"{what} must be a whole number of at least {least}, got {value!r}")
     return int(value)
-
-
-def _seed_value(seed) -> int:
-    return int(seed) if isinstance(seed, (int, np.integer)) else -1

@@ -4,25 +4,25 @@ Sensitivity JSON
 ----------------
 One object per response, one entry per parameter (the documented interface)::
 
-    {"<response>": {"<parameter>": {"S1": x, "S1_conf": x, "ST": x, "ST_conf": x, ...}, ...},
+    {"<response>": {"<parameter>": {"S1": x, "S1_pm95": x, "ST": x, "ST_pm95": x, ...}, ...},
      ...,
      "_meta": {...}}
 
 Per parameter (all indices are shares of the response's variance, 0..1;
-``_conf`` keys are half-widths of 95 % intervals):
+``_pm95`` keys, "plus or minus at 95 %", are half-widths of 95 % intervals):
 
 ==========================  ===================================================
 ``S1``, ``ST``              first-order and total index
-``S1_conf``, ``ST_conf``    combined half-width (estimator and surrogate)
-``S1_conf_mc``,             half-width from the Monte-Carlo estimator alone
-``ST_conf_mc``
-``S1_conf_surrogate``,      half-width from the surrogate's uncertainty alone
-``ST_conf_surrogate``       (0 in the direct route)
+``S1_pm95``, ``ST_pm95``    combined half-width (estimator and surrogate)
+``S1_pm95_mc``,             half-width from the Monte-Carlo estimator alone
+``ST_pm95_mc``
+``S1_pm95_surrogate``,      half-width from the surrogate's uncertainty alone
+``ST_pm95_surrogate``       (0 in the direct route)
 ``rank``                    1 = largest total index; null for a fixed parameter
 ``fixed``                   true when the input distribution holds it constant
 ==========================  ===================================================
 
-``_meta``: ``route`` ("surrogate" or "direct"), ``method``,
+``_meta``: ``route`` ("surrogate" or "direct"), ``method``, ``library`` (credit),
 ``confidence_level`` (0.95), ``inputs`` (distribution kind and, per parameter,
 bounds or mean and sd in its unit), ``base_samples``, ``evaluations``,
 ``target_conf``, ``target_reached``, ``path_base_samples``, ``n_paths``,
@@ -32,7 +32,7 @@ the model failed at one of their points), and ``responses``: per response its ``
 ``ranking`` (parameters by total index), ``unresolved`` (pairs whose order the
 data do not settle), ``notes``, ``statement`` (plain words) and, with second
 order, ``second_order``: a list of ``{"parameters": [a, b], "S2": x,
-"S2_conf": x}``.
+"S2_pm95": x}``.
 """
 from __future__ import annotations
 
@@ -41,10 +41,13 @@ import numpy as np
 from ..errors import SensitivityError
 from .sobol import NEGLIGIBLE, ResponseIndices, SobolResult
 
-__all__ = ["to_json", "describe", "statements", "SMALL", "META_KEY"]
+__all__ = ["to_dict", "describe", "statements", "SMALL", "META_KEY"]
 
 #: Key of the metadata object in the sensitivity JSON.
 META_KEY = "_meta"
+#: Credit for the library behind the estimates, written in ``_meta`` (its interval keys are renamed to ours).
+LIBRARY = ("SALib (Herman and Usher 2017, Journal of Open Source Software 2(9), 97): samples and estimators; "
+           "its *_conf interval results are written here as *_pm95")
 #: Total index under which an effect is called small (common practice, no source).
 SMALL = 0.05
 #: Interaction share (ST - S1) worth a mention (common practice, no source).
@@ -72,12 +75,12 @@ def _partner(res: ResponseIndices, i: int, labels: dict) -> str:
 
 def _effect(res: ResponseIndices, i: int, first: bool, what: str, labels: dict) -> str:
     name = labels.get(res.parameters[i], res.parameters[i])
-    s1, c1 = res.S1[i], res.S1_conf[i]
+    s1, c1 = res.S1[i], res.S1_pm95[i]
     head = (f"{name} explains about {_pct(s1)} % of the variation in {what} on its own" if first
             else f"{name} about {_pct(s1)} %")
     text = f"{head} (95 % interval {_range(s1 - c1, s1 + c1)})"
     inter = res.ST[i] - res.S1[i]
-    total = f"total effect {_pct(res.ST[i])} %, {_range(res.ST[i] - res.ST_conf[i], res.ST[i] + res.ST_conf[i])}"
+    total = f"total effect {_pct(res.ST[i])} %, {_range(res.ST[i] - res.ST_pm95[i], res.ST[i] + res.ST_pm95[i])}"
     if inter > max(_INTERACTION, s1):
         return f"{text}, mostly through interaction{_partner(res, i, labels)} ({total})"
     if inter > _INTERACTION:
@@ -111,7 +114,7 @@ def describe(res: ResponseIndices, what: str | None = None, labels: dict | None 
     if res.std == 0.0:
         return f"{what} does not vary under this input distribution."
     shown = lambda i: labels.get(res.parameters[i], res.parameters[i])  # noqa: E731 - a one-line helper
-    high = res.ST + res.ST_conf
+    high = res.ST + res.ST_pm95
     main, small, negligible = [], [], []
     for name in res.ranking():
         i = res.index_of(name)
@@ -158,7 +161,7 @@ def statements(result: SobolResult, labels: dict | None = None, whats: dict | No
 
 # ---------------------------------------------------------------------------
 def _entry(res: ResponseIndices, i: int, rank: dict) -> dict:
-    keys = ("S1", "S1_conf", "ST", "ST_conf", "S1_conf_mc", "ST_conf_mc", "S1_conf_surrogate", "ST_conf_surrogate")
+    keys = ("S1", "S1_pm95", "ST", "ST_pm95", "S1_pm95_mc", "ST_pm95_mc", "S1_pm95_surrogate", "ST_pm95_surrogate")
     out = {k: float(getattr(res, k)[i]) for k in keys}
     out["rank"] = rank.get(res.parameters[i])
     out["fixed"] = bool(res.fixed[i])
@@ -168,11 +171,11 @@ def _entry(res: ResponseIndices, i: int, rank: dict) -> dict:
 def _second_order(res: ResponseIndices) -> list:
     d = len(res.parameters)
     return [{"parameters": [res.parameters[i], res.parameters[j]], "S2": float(res.S2[i, j]),
-             "S2_conf": float(res.S2_conf[i, j])}
+             "S2_pm95": float(res.S2_pm95[i, j])}
             for i in range(d) for j in range(i + 1, d) if np.isfinite(res.S2[i, j])]
 
 
-def to_json(result: SobolResult, labels: dict | None = None, whats: dict | None = None,
+def to_dict(result: SobolResult, labels: dict | None = None, whats: dict | None = None,
             units: dict | None = None) -> dict:
     """The sensitivity JSON (keys in the module docstring).
 
@@ -206,6 +209,7 @@ def to_json(result: SobolResult, labels: dict | None = None, whats: dict | None 
                    + (", S2 Saltelli 2002" if result.second_order else "") + " (SALib); 95 % intervals from the "
                    "bootstrap" + (" and GP posterior sample paths (Le Gratiet et al. 2014)"
                                   if result.route == "surrogate" else "")),
+        "library": LIBRARY,
         "confidence_level": 0.95, "inputs": result.inputs.describe(), "base_samples": result.base_samples,
         "evaluations": result.evaluations, "target_conf": result.target_conf, "target_reached": result.reached,
         "path_base_samples": result.path_base_samples, "n_paths": result.n_paths,

@@ -70,6 +70,7 @@ from sklearn.gaussian_process import GaussianProcessRegressor
 from .. import defaults
 from . import paths as gppaths
 from ..errors import NotFittedError, SurrogateError
+from ..seeds import seed_value
 from .diagnostics import hyperparameter_statements
 from .kernels import FAMILIES, NU, TRENDS, build_kernel, kernel_label
 
@@ -547,6 +548,16 @@ class ResponseSurrogate:
         other._refit_fixed(np.vstack([self.X_unit_, X]), np.concatenate([self.y_, y]))
         return other
 
+    def refitted(self, X_unit, y) -> "ResponseSurrogate":
+        """A copy conditioned on exactly these runs (unit cube, response unit), hyperparameters unchanged.
+
+        Leave-one-out results are not recomputed for the copy.
+        """
+        self._check_fitted()
+        other = copy.copy(self)
+        other._refit_fixed(np.asarray(X_unit, dtype=float), np.asarray(y, dtype=float))
+        return other
+
     def capped(self, max_length_scale: float) -> "ResponseSurrogate":
         """A copy whose length scales (fractions of each range) are at most ``max_length_scale``.
 
@@ -568,7 +579,7 @@ class ResponseSurrogate:
         self._check_fitted()
         return {"X": self.X_unit_, "y": self.y_}
 
-    def to_record(self) -> dict:
+    def to_dict(self) -> dict:
         """Hyperparameters and scaling as plain JSON values (training data go to NPZ)."""
         self._check_fitted()
         return {"family": self.family_, "trend": self.trend_, "learn_noise": bool(self.learn_noise_),
@@ -577,14 +588,14 @@ class ResponseSurrogate:
                 "log_marginal_likelihood": self.log_marginal_likelihood_,
                 "options": {"kernel": self.kernel, "trend": self.trend, "noise": self.noise,
                             "restarts": int(self.restarts), "nugget": float(self.nugget),
-                            "selection": self.selection, "seed": int(self.seed),
+                            "selection": self.selection, "seed": seed_value(self.seed),
                             "length_scale_prior": float(self.length_scale_prior)},
                 "statements": list(self.statements_), "candidates": self.candidates_,
                 "groups": [[int(i) for i in g] for g in self.groups_], "fit_seconds": self.fit_seconds_}
 
     @classmethod
-    def from_record(cls, record: dict, X_unit, y, names=None) -> "ResponseSurrogate":
-        """Rebuild a fitted surrogate from :meth:`to_record` and its training data (no optimisation)."""
+    def from_dict(cls, record: dict, X_unit, y, names=None) -> "ResponseSurrogate":
+        """Rebuild a fitted surrogate from :meth:`to_dict` and its training data (no optimisation)."""
         try:
             model = cls(names=names, **record["options"])
             model._check_options()

@@ -15,6 +15,7 @@ import numpy as np
 
 from ..errors import DoeError, SurrogateError
 from ..files import write_atomic, write_text
+from ..seeds import child_seeds
 from .diagnostics import response_report
 from .gp import ResponseSurrogate
 from .twofidelity import TwoFidelitySurrogate
@@ -94,7 +95,7 @@ class SurrogateSet:
             Cost: see :meth:`ResponseSurrogate.sample_paths`.
         """
         U = self.unit_points(X)
-        seeds = np.random.default_rng(seed).integers(2**63 - 1, size=len(self.models))
+        seeds = child_seeds(seed, len(self.models))
         return {name: m.sample_paths(U, n_paths, int(s), method) for (name, m), s in zip(self.models.items(), seeds)}
 
     def fit_report(self) -> dict:
@@ -119,7 +120,7 @@ class SurrogateSet:
                                for p in self.space.parameters],
                 "run_ids": list(self.run_ids), "target_q2": self.target_q2,
                 "responses": {name: {"unit": self.units[name], "goal": self.goals[name],
-                                     "noise_reason": self.noise_reason.get(name, ""), **m.to_record()}
+                                     "noise_reason": self.noise_reason.get(name, ""), **m.to_dict()}
                               for name, m in self.models.items()}}
         arrays = {}
         for i, m in enumerate(self.models.values()):
@@ -173,9 +174,9 @@ def load_surrogates(folder, study) -> SurrogateSet:
             raise SurrogateError(f"{folder}/data.npz: training data of '{name}' are missing")
         if rec.get("fidelity") == "two":
             mine = {k[:-len(str(i))]: v for k, v in arrays.items() if k.endswith(str(i)) and k[:-len(str(i))].isalpha()}
-            models[name] = TwoFidelitySurrogate.from_record(rec, mine, study.space.names)
+            models[name] = TwoFidelitySurrogate.from_dict(rec, mine, study.space.names)
         else:
-            models[name] = ResponseSurrogate.from_record(rec, arrays[f"X{i}"], arrays[f"y{i}"], study.space.names)
+            models[name] = ResponseSurrogate.from_dict(rec, arrays[f"X{i}"], arrays[f"y{i}"], study.space.names)
         units[name], goals[name], reasons[name] = rec["unit"], rec["goal"], rec.get("noise_reason", "")
     return SurrogateSet(study.space, models, units, goals, list(meta["run_ids"]), float(meta["target_q2"]),
                         str(meta["study"]), reasons)

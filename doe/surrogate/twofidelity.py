@@ -64,6 +64,7 @@ from scipy.optimize import minimize_scalar
 from .. import defaults
 from ..errors import NotFittedError, SurrogateError
 from ..files import json_number
+from ..seeds import child_seeds
 from .gp import DUPLICATE_TOL, LooResult, ResponseSurrogate
 
 __all__ = ["TwoFidelitySurrogate", "match_points", "RHO_GRID"]
@@ -161,7 +162,8 @@ class TwoFidelitySurrogate:
         self.compare = compare
 
     # -- helpers -------------------------------------------------------------
-    def _options(self, **change) -> dict:
+    def options(self, **change) -> dict:
+        """The estimator options (those of each level's ResponseSurrogate), with ``change`` applied."""
         base = dict(kernel=self.kernel, trend=self.trend, noise=self.noise, restarts=self.restarts,
                     nugget=self.nugget, selection=self.selection, seed=self.seed, names=self.names,
                     length_scale_prior=self.length_scale_prior)
@@ -221,7 +223,7 @@ class TwoFidelitySurrogate:
         seeds = [int(s) for s in rng.integers(2**31 - 1, size=4)]
         self.statements_ = []
         try:
-            self.low_ = ResponseSurrogate(**self._options(noise="auto", restarts=min(int(self.restarts), 1),
+            self.low_ = ResponseSurrogate(**self.options(noise="auto", restarts=min(int(self.restarts), 1),
                                                           seed=seeds[0])).fit(XL, yL)
         except SurrogateError as exc:
             raise SurrogateError(f"cheap runs: {exc}") from exc
@@ -238,7 +240,7 @@ class TwoFidelitySurrogate:
             nested, var = np.ones(len(XH), bool), np.zeros(len(XH))
         self.rho_, self.rho_profile_ = self._find_rho(XH, yH, ylh, yL, seeds[1])
         try:
-            self.delta_ = ResponseSurrogate(**self._options(seed=seeds[2])).fit(XH, yH - self.rho_ * ylh)
+            self.delta_ = ResponseSurrogate(**self.options(seed=seeds[2])).fit(XH, yH - self.rho_ * ylh)
         except SurrogateError as exc:
             raise SurrogateError(f"expensive runs: {exc}") from exc
         groups = self.delta_.groups_
@@ -249,7 +251,7 @@ class TwoFidelitySurrogate:
         self._set_views()
         self.single_q2_ = None
         if self.compare:
-            single = ResponseSurrogate(**self._options(seed=seeds[3])).fit(XH, yH)
+            single = ResponseSurrogate(**self.options(seed=seeds[3])).fit(XH, yH)
             self.single_q2_ = float(single.loo_.q2)
         self._state_fit()
         self.fit_seconds_ = time.perf_counter() - start
@@ -280,7 +282,7 @@ class TwoFidelitySurrogate:
                 profile[rho] = float("inf")
                 return -1e300
             try:
-                m = ResponseSurrogate(**self._options(kernel=family, trend=trend, restarts=PROFILE_RESTARTS, seed=seed,
+                m = ResponseSurrogate(**self.options(kernel=family, trend=trend, restarts=PROFILE_RESTARTS, seed=seed,
                                                       names=None)).fit(XH, d)
             except SurrogateError:
                 return 1e300
@@ -418,7 +420,7 @@ class TwoFidelitySurrogate:
             :meth:`doe.surrogate.gp.ResponseSurrogate.sample_paths`.
         """
         self._check_fitted()
-        a, b = np.random.default_rng(seed).integers(2**63 - 1, size=2)
+        a, b = child_seeds(seed, 2)
         return (self.rho_ * self.low_.sample_paths(X_unit, n_paths, int(a), method)
                 + self.delta_.sample_paths(X_unit, n_paths, int(b), method))
 
@@ -453,14 +455,14 @@ class TwoFidelitySurrogate:
         return other
 
     # -- records -----------------------------------------------------------------
-    def to_record(self) -> dict:
+    def to_dict(self) -> dict:
         """Plain JSON values: both levels' records, ``rho`` and the statements (data go to :meth:`to_arrays`)."""
         self._check_fitted()
-        return {"fidelity": "two", "rho": float(self.rho_), "low": self.low_.to_record(),
-                "delta": self.delta_.to_record(), "single_q2": self.single_q2_,
+        return {"fidelity": "two", "rho": float(self.rho_), "low": self.low_.to_dict(),
+                "delta": self.delta_.to_dict(), "single_q2": self.single_q2_,
                 "rho_profile": [[float(r), json_number(v)] for r, v in self.rho_profile_],
                 "statements": list(self.statements_), "fit_seconds": float(self.fit_seconds_),
-                "options": {**{k: v for k, v in self._options().items() if k != "names"}, "compare": self.compare}}
+                "options": {**{k: v for k, v in self.options().items() if k != "names"}, "compare": self.compare}}
 
     def to_arrays(self) -> dict:
         """Training data for the NPZ file: ``X``, ``y`` (expensive, merged), ``XL``, ``yL``, ``yLH``, ``vLH``, ``nested``."""
@@ -469,8 +471,8 @@ class TwoFidelitySurrogate:
                 "yLH": self.y_low_high_, "vLH": self.var_low_high_, "nested": self.nested_}
 
     @classmethod
-    def from_record(cls, record: dict, arrays: dict, names=None) -> "TwoFidelitySurrogate":
-        """Rebuild a fitted surrogate from :meth:`to_record` and :meth:`to_arrays` (no optimisation)."""
+    def from_dict(cls, record: dict, arrays: dict, names=None) -> "TwoFidelitySurrogate":
+        """Rebuild a fitted surrogate from :meth:`to_dict` and :meth:`to_arrays` (no optimisation)."""
         try:
             model = cls(names=names, **record["options"])
             model.rho_ = float(record["rho"])
@@ -482,8 +484,8 @@ class TwoFidelitySurrogate:
             model.y_low_high_ = np.asarray(arrays["yLH"], float)
             model.var_low_high_ = np.asarray(arrays["vLH"], float)
             model.nested_ = np.asarray(arrays["nested"], bool)
-            model.low_ = ResponseSurrogate.from_record(record["low"], arrays["XL"], arrays["yL"], names)
-            model.delta_ = ResponseSurrogate.from_record(record["delta"], X, y - model.rho_ * model.y_low_high_, names)
+            model.low_ = ResponseSurrogate.from_dict(record["low"], arrays["XL"], arrays["yL"], names)
+            model.delta_ = ResponseSurrogate.from_dict(record["delta"], X, y - model.rho_ * model.y_low_high_, names)
         except (KeyError, TypeError, ValueError) as exc:
             raise SurrogateError(f"the saved two-fidelity record is incomplete or malformed ({exc!r})") from exc
         model.groups_ = model.delta_.groups_

@@ -15,10 +15,16 @@ from pathlib import Path
 
 import pandas as pd
 
+from ..design.nested import expected_savings, is_two_fidelity
+from ..design.plans import augment_plan, make_plan
 from ..errors import DoeError
+from ..runs.evaluators import make_evaluator
+from ..runs.execution import evaluate_plan
+from ..runs.results import read_results
+from .fit import fit_surrogates
 
 __all__ = ["cheap_plan", "run_cheap", "cheap_study", "study_surrogates", "wants_two_fidelity", "default_cheap_path",
-           "NESTED_PREFIX"]
+           "is_two_fidelity", "nested_runs", "NESTED_PREFIX", "CHEAP_Q2", "CHEAP_EXTRA_PER_PARAMETER"]
 
 #: Prefix of the cheap run made at an expensive run's point.
 NESTED_PREFIX = "at_"
@@ -48,8 +54,6 @@ def cheap_plan(study, expensive: pd.DataFrame, spread: int | None = None) -> pd.
     DataFrame
         ``run_id`` then the parameter columns, study units.
     """
-    from ..design.plans import make_plan
-
     low = _settings(study)
     names = study.space.names
     n = low.runs_for(study.space.dim) if spread is None else int(spread)
@@ -89,10 +93,6 @@ def run_cheap(study, expensive: pd.DataFrame, path, jobs: int = 1, progress: boo
     results : ResultsTable
         Every run in the file (the ok ones are fitted).
     """
-    from ..runs.evaluators import make_evaluator
-    from ..runs.execution import evaluate_plan
-    from ..runs.results import read_results
-
     path = Path(path)
     workspace = workspace if workspace is not None else path.parent / "cheap_cases"
     evaluator = make_evaluator(cheap_study(study), workspace=workspace)
@@ -152,8 +152,6 @@ def study_surrogates(study, results, seed: int = 0, fidelity: str | None = None,
     -------
     SurrogateSet
     """
-    from .fit import fit_surrogates
-
     if not wants_two_fidelity(study, fidelity):
         return fit_surrogates(study, results, seed=seed, fidelity="single")
     if cheap_path is None:
@@ -165,3 +163,54 @@ def study_surrogates(study, results, seed: int = 0, fidelity: str | None = None,
     if say is not None:
         say(f"cheap model ({study.low_fidelity.evaluator.kind}): {summary.line(cheap_path)}")
     return fit_surrogates(study, results, seed=seed, low_results=cheap, fidelity="two")
+
+
+#: Leave-one-out q2 of the cheap runs' own fit below which more cheap runs are proposed ...
+CHEAP_Q2 = 0.995
+#: ... at least this many per parameter (or half as many again as there are).
+CHEAP_EXTRA_PER_PARAMETER = 10
+
+
+def nested_runs(study, sset, proposal, seed=0):
+    """The cheap runs to go with proposed expensive runs, and the savings estimate.
+
+    Parameters
+    ----------
+    study : Study
+        With a ``[low_fidelity]`` table.
+    sset : SurrogateSet
+        Two-fidelity surrogates.
+    proposal : Proposal
+        From :func:`doe.design.adaptive.propose_runs`.
+    seed : int
+
+    Returns
+    -------
+    cheap : DataFrame
+        ``run_id`` and parameter columns: one cheap run at every proposed
+        expensive run (``at_<expensive run id>``) and, when the cheap runs'
+        own fit is below :data:`CHEAP_Q2`, more cheap runs spread by greedy
+        maximin where they are sparsest (``cx<n>_<k>``).
+    savings : dict
+        :func:`expected_savings`, plus ``cheap_fit``: a statement on the
+        cheap level's own accuracy.
+    """
+    cheap = cheap_plan(study, proposal.frame, spread=0)
+    savings = expected_savings(sset, seed)
+    two = {n: m for n, m in sset.models.items() if getattr(m, "fidelity", "single") == "two"}
+    worst = min((m.low_.loo_.q2, n) for n, m in two.items())
+    text = f"the cheap runs' own fit reaches q2 {worst[0]:.3f} ({worst[1]})"
+    if worst[0] < CHEAP_Q2:           # the cheap map limits the two-fidelity one: spread more cheap runs
+        low = two[worst[1]].low_
+        done = pd.DataFrame(sset.space.from_unit(low.X_unit_), columns=sset.space.names)
+        done.insert(0, "run_id", [f"r{i + 1}" for i in range(len(done))])
+        k = max(CHEAP_EXTRA_PER_PARAMETER * sset.space.dim, len(done) // 2)
+        extra = augment_plan(sset.space, done, k, seed).frame.iloc[len(done):].copy()
+        extra["run_id"] = [f"cx{len(done)}_{i + 1:04d}" for i in range(len(extra))]
+        cheap = pd.concat([cheap, extra], ignore_index=True)
+        text += (f", below {CHEAP_Q2:g}: {k} more cheap runs spread where the cheap runs are sparsest are in the "
+                 "cheap plan (or raise [low_fidelity] runs)")
+    else:
+        text += "; enough"
+    savings["cheap_fit"] = text
+    return cheap, savings

@@ -31,13 +31,20 @@ from pathlib import Path
 
 import pandas as pd
 
+from .. import defaults
+from ..design.adaptive import accuracy_status
 from ..errors import DoeError
-from ..runs.results import write_json
+from ..report import ReportInputs, build_report
+from ..runs.evaluators.recorded import RecordedSettings
+from ..runs.results import read_plan, read_results
+from ..surrogate.set import load_surrogates
+from .cheap import wants_two_fidelity
+from .steps import evaluate_step, fit_step, fit_verdicts, next_step, plan_step, robust_step, sensitivity_step
 
 __all__ = ["StudyFiles", "run_study", "analyse_and_report", "NEXT_RUNS_DEFAULT"]
 
 #: Runs proposed for the next round when the surrogates are not yet accurate enough.
-NEXT_RUNS_DEFAULT = 4
+NEXT_RUNS_DEFAULT = defaults.NEXT_RUNS
 
 
 @dataclass(frozen=True)
@@ -144,16 +151,9 @@ def run_study(study, out=None, jobs: int = 1, scheduler: str | None = None, prog
     next_runs : int
         Runs to propose for the next round (0: none).
     """
-    from ..runs.evaluators import make_evaluator
-    from ..runs.execution import evaluate_plan
-    from ..design.plans import make_plan
-    from ..runs.results import read_plan, write_plan
-
     files = StudyFiles(Path(out) if out is not None else study.default_output)
     steps = _Steps(7)
     if study.evaluator.kind == "recorded":
-        from ..runs.evaluators.recorded import RecordedSettings
-
         recorded = study.resolve(RecordedSettings.read(study).file)
         steps("plan", "none needed: the study's results are recorded")
         steps("evaluate", f"reading recorded results from {recorded}")
@@ -162,14 +162,10 @@ def run_study(study, out=None, jobs: int = 1, scheduler: str | None = None, prog
         plan = read_plan(files.plan, study)
         steps("plan", f"reusing {files.plan} ({len(plan)} runs)")
     else:
-        made = make_plan(study.space, study.plan.runs, study.plan.seed, study.plan.method)
-        write_plan(made.frame, files.plan)
-        write_json(made.record(), files.plan_quality)
+        made = plan_step(study, files.plan)
         plan = made.frame
         steps("plan", f"{made.quality.summary()} -> {files.plan}")
-    evaluator = make_evaluator(study, workspace=files.cases)
-    summary = evaluate_plan(plan, evaluator, files.results, study.space.names, jobs=jobs, progress=progress,
-                            scheduler=scheduler)
+    summary = evaluate_step(study, plan, files.results, jobs=jobs, scheduler=scheduler, progress=progress)
     steps("evaluate", summary.line(files.results))
     return analyse_and_report(study, files.results, files, steps, next_runs=next_runs)
 
@@ -183,9 +179,6 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
     runs' results file of a two-fidelity fit (default ``cheap_results.csv``
     in the output folder).
     """
-    from ..report import ReportInputs, build_report
-    from ..runs.results import read_results
-
     steps = steps or _Steps(5)  # fit, sensitivity, robust, next runs, report
     results_path = Path(results_path)
     results = read_results(results_path, study, accept_outside=accept_outside)
@@ -222,64 +215,40 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
 
 
 def _fit_step(study, results, results_path: Path, files: StudyFiles, steps, fidelity=None, cheap_path=None):
-    from .cheap import study_surrogates, wants_two_fidelity
-    from ..surrogate.set import load_surrogates
-
     two = wants_two_fidelity(study, fidelity)
     cheap_path = Path(cheap_path) if cheap_path is not None else files.cheap_results
     if _fresh(files.fit, results_path, study.path or results_path, cheap_path) and (not two or cheap_path.exists()):
         sset = load_surrogates(files.surrogate, study)
         steps("fit", f"reusing {files.surrogate}")
         return sset
-    sset = study_surrogates(study, results, seed=study.plan.seed, fidelity=fidelity, cheap_path=cheap_path, say=_say)
-    sset.save(files.surrogate)
-    verdicts = ", ".join(f"{n} {r['verdict']} (q2 {r['q2_loo'] if r['q2_loo'] is None else round(r['q2_loo'], 3)})"
-                         for n, r in sset.fit_report().items())
-    steps("fit", verdicts)
+    sset = fit_step(study, results, files.surrogate, fidelity=fidelity, cheap_path=cheap_path, say=_say)
+    steps("fit", fit_verdicts(sset.fit_report()))
     return sset
 
 
 def _sensitivity_step(study, sset, files: StudyFiles, steps):
-    from .sensitivity import study_sensitivity, study_sensitivity_json
-
     if _fresh(files.sensitivity, files.fit):
         steps("sensitivity", f"reusing {files.sensitivity}")
         return json.loads(files.sensitivity.read_text())
-    result = study_sensitivity(study, surrogates=sset)
-    data = study_sensitivity_json(study, result)
-    write_json(data, files.sensitivity)
-    steps("sensitivity", f"Sobol indices of {len(result.responses)} responses -> {files.sensitivity}")
+    data = sensitivity_step(study, files.sensitivity, surrogates=sset)
+    steps("sensitivity", f"Sobol indices of {len(data['_meta']['responses'])} responses -> {files.sensitivity}")
     return data
 
 
 def _robust_step(study, sset, results, files: StudyFiles, steps):
-    from ..robust.tradeoff import write_tradeoff
-    from .robust import study_robust, study_tradeoff
-
     if study.robust is None:
         steps("robust", "skipped: no response has a goal and there is no [robust] table")
         return None, None
-    if _fresh(files.robust, files.fit):
+    two = len(study.robust.tradeoff) >= 2
+    if _fresh(files.robust, files.fit) and (not two or _fresh(files.tradeoff, files.fit)):
         steps("robust", f"reusing {files.robust}")
-        robust = json.loads(files.robust.read_text())
     else:
-        result = study_robust(study, sset.predict, runs_X=results.X())
-        robust = result.to_dict()
-        write_json(robust, files.robust)
+        result, _ = robust_step(study, sset, results, files.robust, files.tradeoff)
         steps("robust", result.robust.summary("robust", result.objective, result.unit))
-    tradeoff = None
-    if len(study.robust.tradeoff) >= 2:
-        if not _fresh(files.tradeoff, files.fit):
-            write_tradeoff(study_tradeoff(study, sset.predict), files.tradeoff)
-        tradeoff = pd.read_csv(files.tradeoff)
-    return robust, tradeoff
+    return json.loads(files.robust.read_text()), pd.read_csv(files.tradeoff) if two else None
 
 
 def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
-    from ..design.adaptive import accuracy_status, propose_runs
-    from ..design.nested import is_two_fidelity, nested_runs
-    from ..runs.results import read_plan, write_plan
-
     met, sentence = accuracy_status(sset)
     if k <= 0 or met:
         steps("next runs", "none proposed: " + (sentence if met else "asked for none"))
@@ -287,18 +256,10 @@ def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
     if _fresh(files.next, files.fit):
         steps("next runs", f"reusing {files.next}")
     else:
-        proposal = propose_runs(sset, k, aim="map", avoid=results.failed[study.space.names].to_numpy(float),
-                                taken_ids=list(results.frame["run_id"]), seed=study.plan.seed)
-        write_plan(proposal.frame, files.next)
-        record = proposal.record()
-        extra = ""
-        if is_two_fidelity(sset):
-            cheap, savings = nested_runs(study, sset, proposal, study.plan.seed)
-            write_plan(cheap, files.next_cheap)
-            record["two_fidelity"] = {**savings, "cheap_plan": str(files.next_cheap)}
-            extra = f"; cheap runs at the same points -> {files.next_cheap}; {savings['statement']}"
-        write_json(record, files.next_why)
-        steps("next runs", f"{len(proposal.frame)} runs proposed ({sentence}) -> {files.next}{extra}")
+        made = next_step(study, sset, results, k, files.next)
+        extra = (f"; cheap runs at the same points -> {made.cheap_path}; {made.savings['statement']}"
+                 if made.cheap_path is not None else "")
+        steps("next runs", f"{len(made.proposal.frame)} runs proposed ({sentence}) -> {files.next}{extra}")
     why = json.loads(files.next_why.read_text()) if files.next_why.exists() else {"runs": []}
     if "two_fidelity" in why:
         sentence += (f". Each proposed run also needs a cheap-model run at the same point (next.cheap.csv); "

@@ -27,41 +27,15 @@ from ..sensitivity.inputs import InputDistribution
 from ..errors import SensitivityError
 from ..sensitivity.morris import ScreeningResult, morris_screening
 from ..sensitivity.sobol import SobolResult, sobol_indices
-from ..sensitivity.words import to_json
+from ..sensitivity.words import to_dict
 
-__all__ = ["evaluate_points", "parse_around", "nominal_point", "study_inputs", "surrogate_callables", "evaluator_model", "study_sensitivity",
+__all__ = ["evaluate_points", "nominal_point", "study_inputs", "surrogate_callables", "evaluator_model", "study_sensitivity",
            "study_sensitivity_json", "study_screening", "DIRECT_MAX_EVALUATIONS"]
 
 #: Default bound on evaluator calls of the direct route.
 DIRECT_MAX_EVALUATIONS = 20_000
 #: Share of base rows the direct route may drop for failed runs (common practice, no source).
 DIRECT_FAILED_SHARE = 0.01
-
-
-def parse_around(tokens, study):
-    """``--around`` words as :func:`study_inputs` takes them: None, ``"nominal"`` or ``{name: value}``.
-
-    Parameters
-    ----------
-    tokens : list of str or None
-        ``["nominal"]`` or ``["flap_angle=12", "wing_aoa=8"]`` (study units).
-    study : Study
-    """
-    if not tokens:
-        return None
-    if tokens == ["nominal"]:
-        return "nominal"
-    point = {}
-    for token in tokens:
-        name, sep, value = token.partition("=")
-        if not sep or name not in study.space.names:
-            raise SensitivityError(f"--around: {token!r} is not NAME=VALUE with a parameter name "
-                                   f"({', '.join(study.space.names)}), nor 'nominal'")
-        try:
-            point[name] = float(value)
-        except ValueError:
-            raise SensitivityError(f"--around: {value!r} in {token!r} is not a number") from None
-    return point
 
 
 def nominal_point(study) -> dict:
@@ -259,7 +233,7 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
 
 def study_sensitivity_json(study, result: SobolResult) -> dict:
     """The sensitivity JSON of a study, with response units in the statements."""
-    return to_json(result, units={r.name: r.unit for r in study.responses})
+    return to_dict(result, units={r.name: r.unit for r in study.responses})
 
 
 def study_screening(study, *, trajectories: int = 20, levels: int = 4, seed: int | None = None,
