@@ -19,6 +19,7 @@ test: $(STAMP)
 	$(PY) -m pytest; rc=$$?; if [ $$rc -eq 5 ]; then echo "no tests collected"; exit 0; fi; exit $$rc
 
 bench: $(STAMP)
+	$(PY) -m pytest -m slow
 	$(PY) benchmarks/run_all.py $(BENCH_ARGS)
 
 clean:

@@ -95,17 +95,22 @@ def _cmd_evaluate(args):
     print(f"wrote {out}")
 
 
+def _add_fidelity_options(p):
+    """--fidelity and --cheap-results: how the surrogates lean on the study's cheap model."""
+    p.add_argument("--fidelity", choices=("auto", "single", "two"),
+                   help="two: lean on the study's [low_fidelity] cheap model (two-fidelity surrogates); single: "
+                        "the results alone (default: [fit] fidelity, auto = two when [low_fidelity] exists)")
+    p.add_argument("--cheap-results", type=Path, metavar="CSV",
+                   help="results file of the cheap model's runs (made or resumed; default: <results>.low.csv)")
+
+
 def _add_results_options(p, results_required: bool = True):
     """Options shared by the verbs that fit surrogates to a results CSV."""
     p.add_argument("study", type=Path, help="study file (TOML)")
     p.add_argument("--results", type=Path, required=results_required, help="results CSV")
     p.add_argument("--seed", type=int, help="seed (default: the study's [plan] seed)")
     p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
-    p.add_argument("--fidelity", choices=("auto", "single", "two"),
-                   help="two: lean on the study's [low_fidelity] cheap model (two-fidelity surrogates); single: "
-                        "the results alone (default: [fit] fidelity, auto = two when [low_fidelity] exists)")
-    p.add_argument("--cheap-results", type=Path, metavar="CSV",
-                   help="results file of the cheap model's runs (made or resumed; default: <results>.low.csv)")
+    _add_fidelity_options(p)
 
 
 def _study_results(args):
@@ -422,11 +427,7 @@ def _add_report(sub):
                                             "the report goes to its report/ subfolder")
     p.add_argument("--next-runs", type=int, default=None, help="runs to propose for the next round (default 4; 0: none)")
     p.add_argument("--accept-outside", action="store_true", help="keep result rows outside the bounds")
-    p.add_argument("--fidelity", choices=("auto", "single", "two"),
-                   help="two: lean on the study's [low_fidelity] cheap model (two-fidelity surrogates); single: "
-                        "the results alone (default: [fit] fidelity, auto = two when [low_fidelity] exists)")
-    p.add_argument("--cheap-results", type=Path, metavar="CSV",
-                   help="results file of the cheap model's runs (made or resumed; default: <results>.low.csv)")
+    _add_fidelity_options(p)
     p.set_defaults(func=_cmd_report)
 
 

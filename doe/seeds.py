@@ -12,6 +12,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .checks import is_whole
+
 __all__ = ["make_rng", "child_seeds", "seed_value"]
 
 #: Child seeds are drawn below this bound (an int64 seed that any library accepts).
@@ -23,7 +25,7 @@ def make_rng(seed=None) -> np.random.Generator:
 
     Examples
     --------
-    >>> make_rng(3).integers(100) == make_rng(3).integers(100)
+    >>> int(make_rng(3).integers(100)) == int(make_rng(3).integers(100))
     True
     """
     if isinstance(seed, np.random.Generator):
@@ -54,6 +56,6 @@ def seed_value(seed) -> int | None:
     >>> seed_value(7), seed_value(np.random.default_rng(7)), seed_value(None)
     (7, None, None)
     """
-    if isinstance(seed, (int, np.integer)) and not isinstance(seed, bool):
+    if is_whole(seed):
         return int(seed)
     return None

@@ -67,6 +67,39 @@ y = math.sin(math.radians(p["x1"]) * 5) + 0.01 * p["x2"]
 """
 
 
+RECORDED = 'kind = "recorded"\nfile = "results.csv"'
+
+
+def study_text(name: str, parameters, responses, evaluator: str = RECORDED, extra: str = "",
+               description: str | None = None) -> str:
+    """The TOML of a small study, so tests do not each repeat the same tables.
+
+    Parameters
+    ----------
+    name : str
+    parameters : list of tuple
+        ``(name, unit, low, high)`` or ``(name, unit, low, high, {key: value})`` for more keys
+        (``tolerance``, ``description``).
+    responses : list of tuple
+        ``(name, unit)`` or ``(name, unit, goal)``.
+    evaluator : str
+        The body of ``[evaluator]`` (default: recorded results in ``results.csv``).
+    extra : str
+        More tables, as TOML text.
+    """
+    def value(v):
+        return f'"{v}"' if isinstance(v, str) else repr(v)
+
+    lines = ["[study]", f'name = "{name}"'] + ([f'description = "{description}"'] if description else [])
+    for p in parameters:
+        lines += ["", "[[parameters]]", f'name = "{p[0]}"', f'unit = "{p[1]}"', f"low = {float(p[2])!r}",
+                  f"high = {float(p[3])!r}"] + [f"{k} = {value(v)}" for k, v in (p[4] if len(p) > 4 else {}).items()]
+    for r in responses:
+        lines += ["", "[[responses]]", f'name = "{r[0]}"', f'unit = "{r[1]}"'] + ([f'goal = "{r[2]}"'] if len(r) > 2 else [])
+    lines += ["", "[evaluator]", evaluator.strip()]
+    return "\n".join(lines) + "\n" + (textwrap.dedent(extra) if extra else "")
+
+
 def write_study(folder: Path, text: str = BASE_STUDY, name: str = "study.toml") -> Path:
     """Write a study (and the case script it runs) into ``folder``."""
     folder.mkdir(parents=True, exist_ok=True)

@@ -86,7 +86,8 @@ def _test_error(model, f, Ut, yt):
     return float(np.mean((model.predict(Ut) - yt) ** 2) / np.var(yt))
 
 
-@pytest.mark.parametrize("name,n0,n_add", [("branin", 10, 10), ("hartmann3", 15, 15)])
+@pytest.mark.parametrize("name,n0,n_add", [("branin", 10, 10),
+                                           pytest.param("hartmann3", 15, 15, marks=pytest.mark.slow)])
 def test_adaptive_beats_space_filling_additions(name, n0, n_add):
     # Functions: Surjanovic & Bingham (VLSE). Same first plan, same number of added runs: integrated
     # variance reduction (Cohn 1996) against greedy maximin additions (Johnson, Moore & Ylvisaker 1990);

@@ -121,6 +121,7 @@ def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):
     assert 2 <= len(stored) < 10 and (stored["status"] == "ok").all()
 
 
+@pytest.mark.slow   # test_command_evaluator's kill-then-resume checks the same in the fast set
 def test_repeated_sigkill_at_random_moments(tmp_path):
     # Kill the evaluating process several times at random moments (seeded), with two
     # workers, then let it finish: every run is stored exactly once, no line is torn.

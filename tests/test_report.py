@@ -18,46 +18,18 @@ from doe.errors import DoeError
 from doe.report.build import CAUTIONS, fmt
 from doe.report.style import new_figure, save
 
-STUDY = """
-[study]
-name = "rep-test"
-description = "A small analytic study for the report tests"
+from conftest import study_text
 
-[[parameters]]
-name = "x1"
-unit = "deg"
-low = 0.0
-high = 10.0
-tolerance = 0.2
+STUDY = study_text("rep-test", [("x1", "deg", 0.0, 10.0, {"tolerance": 0.2}), ("x2", "mm", 20.0, 120.0, {"tolerance": 2.0})],
+                   [("y", "m^2", "minimize"), ("z", "m^2", "minimize")],
+                   description="A small analytic study for the report tests", extra="""
+    [plan]
+    seed = 2
 
-[[parameters]]
-name = "x2"
-unit = "mm"
-low = 20.0
-high = 120.0
-tolerance = 2.0
-
-[[responses]]
-name = "y"
-unit = "m^2"
-goal = "minimize"
-
-[[responses]]
-name = "z"
-unit = "m^2"
-goal = "minimize"
-
-[evaluator]
-kind = "recorded"
-file = "results.csv"
-
-[plan]
-seed = 2
-
-[robust]
-samples = 32
-limits = [ { response = "z", max = 0.9 } ]
-"""
+    [robust]
+    samples = 32
+    limits = [ { response = "z", max = 0.9 } ]
+    """)
 
 
 def _results(path: Path) -> None:

@@ -13,56 +13,18 @@ from doe.errors import StudyError
 from doe.workflow.robust import study_robust, study_tradeoff, study_vehicle_figures
 from doe.study.reader import read_study_text
 
+from conftest import study_text
+
 DEMO = (Path(__file__).parents[1] / "studies" / "demo_vehicle.toml").read_text()
 # the tests' own limits, for the invented map below: drag and the front share of the downforce
 SNIPPET = DEMO.replace('{ response = "cda_total", max = 0.75 }', '{ response = "cda_total", max = 0.80 }').replace(
     '{ response = "cla_front", max = 0.50 }', '{ response = "balance_front", min = 0.30, max = 0.55 }')
 
-HEAD = """
-[study]
-name = "robust-test"
-
-[[parameters]]
-name = "flap_angle"
-unit = "deg"
-low = 0.0
-high = 20.0
-tolerance = 0.5
-
-[[parameters]]
-name = "wing_height"
-unit = "mm"
-low = 40.0
-high = 200.0
-tolerance = 3.0
-
-[[responses]]
-name = "cla_total"
-unit = "m^2"
-goal = "minimize"
-
-[[responses]]
-name = "cda_total"
-unit = "m^2"
-goal = "minimize"
-
-[[responses]]
-name = "balance_front"
-unit = "-"
-
-[[responses]]
-name = "cla_front"
-unit = "m^2"
-
-[[responses]]
-name = "cla_rear"
-unit = "m^2"
-
-[evaluator]
-kind = "command"
-argv = ["true"]
-output = "result.json"
-"""
+HEAD = study_text("robust-test", [("flap_angle", "deg", 0.0, 20.0, {"tolerance": 0.5}),
+                                  ("wing_height", "mm", 40.0, 200.0, {"tolerance": 3.0})],
+                  [("cla_total", "m^2", "minimize"), ("cda_total", "m^2", "minimize"), ("balance_front", "-"),
+                   ("cla_front", "m^2"), ("cla_rear", "m^2")],
+                  evaluator='kind = "command"\nargv = ["true"]\noutput = "result.json"')
 
 
 def invented_aero(X):

@@ -15,41 +15,17 @@ from doe.workflow.sensitivity import (evaluate_points, evaluator_model, study_in
                                   study_sensitivity)
 from doe.study.reader import read_study_text
 
+from conftest import study_text
+
 # Invented study: Y = x1 + x2 * x3 (a stand-in for a response with one direct knob and one interaction).
-STUDY = """
-[study]
-name = "sens-demo"
-description = "Invented: y = x1 + x2 * x3"
-[[parameters]]
-name = "x1"
-unit = "deg"
-low = 0.0
-high = 1.0
-tolerance = 0.1
-description = "wing angle"
-[[parameters]]
-name = "x2"
-unit = "mm"
-low = -1.0
-high = 1.0
-tolerance = 0.2
-[[parameters]]
-name = "x3"
-unit = "deg"
-low = -1.0
-high = 1.0
-tolerance = 0.0
-[[responses]]
-name = "y"
-unit = "m^2"
-[evaluator]
-kind = "recorded"
-file = "results.csv"
-[fit]
-kernel = "sqexp"
-trend = "constant"
-restarts = 1
-"""
+STUDY = study_text("sens-demo", [("x1", "deg", 0.0, 1.0, {"tolerance": 0.1, "description": "wing angle"}),
+                                ("x2", "mm", -1.0, 1.0, {"tolerance": 0.2}), ("x3", "deg", -1.0, 1.0, {"tolerance": 0.0})],
+                   [("y", "m^2")], description="Invented: y = x1 + x2 * x3", extra="""
+    [fit]
+    kernel = "sqexp"
+    trend = "constant"
+    restarts = 1
+    """)
 
 
 def exact_indices():

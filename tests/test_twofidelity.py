@@ -16,6 +16,8 @@ from doe.surrogate.set import load_surrogates
 from doe.testing.functions import branin
 from doe.surrogate.twofidelity import TwoFidelitySurrogate
 
+from conftest import study_text
+
 
 def forrester_high(x):
     # Forrester, Sobester & Keane (2007), Proc. R. Soc. A 463, 3251-3269, sec. 3 (test function):
@@ -129,29 +131,16 @@ high = (6 * x - 2) ** 2 * math.sin(12 * x - 4)
 (case / "result.json").write_text(json.dumps({"y": 0.5 * high + 10 * (x - 0.5) - 5}))
 """
 
-STUDY = """
-[study]
-name = "two-levels"
-[[parameters]]
-name = "x"
-unit = "-"
-low = 0.0
-high = 1.0
-[[responses]]
-name = "y"
-unit = "-"
-goal = "minimize"
-[evaluator]
-kind = "recorded"
-file = "high.csv"
-[fit]
-noise = "fixed"
-restarts = 1
-[low_fidelity]
-kind = "command"
-argv = ["{python}", "{study_dir}/cheap.py", "{case_dir}"]
-runs = 11
-"""
+STUDY = study_text("two-levels", [("x", "-", 0.0, 1.0)], [("y", "-", "minimize")],
+                   evaluator='kind = "recorded"\nfile = "high.csv"', extra="""
+    [fit]
+    noise = "fixed"
+    restarts = 1
+    [low_fidelity]
+    kind = "command"
+    argv = ["{python}", "{study_dir}/cheap.py", "{case_dir}"]
+    runs = 11
+    """)
 
 
 @pytest.fixture

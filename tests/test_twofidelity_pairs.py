@@ -188,6 +188,7 @@ def test_forrester_published_design_recovers_rho_and_beats_high_only():
         assert _rmse(two, Ut, yt) < 0.05 * _rmse(one, Ut, yt)
 
 
+@pytest.mark.slow   # the published design (test above) checks the same peak in the fast set
 def test_forrester_random_designs_find_the_likelihood_peak():
     # Same exact relation (rho = 2, Forrester et al. 2007), on 4-run Latin hypercubes. Before the rho
     # search took generalised-least-squares steps (main, 2026-12-02) it found rho 0.98, 0.84, 1.07, -0.36
@@ -210,7 +211,7 @@ def test_forrester_random_designs_find_the_likelihood_peak():
     # Park 0.36, 0.30, 0.37, 0.35 (RMSE 0.15-0.17 against 0.43-0.49; std of f 4.61).
     # Bounds: about 2x the worst measured ratio for each seed and 1.5-2x the median.
     ("currin", 40, 8, 0.4, 0.2),
-    ("park", 60, 10, 0.6, 0.45),
+    pytest.param("park", 60, 10, 0.6, 0.45, marks=pytest.mark.slow),   # Currin checks the same in the fast set
 ])
 def test_cheap_runs_cut_the_error_at_equal_expensive_runs(name, n_low, n_high, worst_ratio, median_ratio):
     # Pairs of Xiong, Qian & Wu 2013 (Technometrics 55:37), as given by Surjanovic & Bingham's VLSE.

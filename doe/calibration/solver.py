@@ -57,8 +57,10 @@ from dataclasses import asdict, dataclass, fields, replace
 import numpy as np
 from scipy import optimize, stats
 
+from ..checks import is_whole
 from ..aero.model import COEFFICIENT_RANGES, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
 from ..errors import CalibrationError
+from ..runs.evaluators.builtin import same_output_unit
 from .result import Calibration, CoefficientEstimate, Discrepancy
 
 __all__ = ["calibrate", "FITTABLE", "SWITCHES", "CORRELATION_LIMIT", "EFFECT_MIN"]
@@ -173,8 +175,6 @@ def _check_names(coefficients) -> list:
 
 
 def _check_responses(responses, results, units) -> list:
-    from ..runs.evaluators.builtin import same_output_unit
-
     names = list(responses) if responses is not None else list(results.responses)
     if not names:
         raise CalibrationError("no response to calibrate against")
@@ -451,9 +451,9 @@ def calibrate(settings: ModelSettings, conversion: dict, results, coefficients=N
     .. [3] Tierney, L., Kadane, J. B. (1986). JASA 81(393), 82-86.
     """
     t0 = time.monotonic()
-    if not isinstance(starts, int) or isinstance(starts, bool) or not 1 <= starts <= 50:
+    if not is_whole(starts) or not 1 <= starts <= 50:
         raise CalibrationError(f"starts must be a whole number from 1 to 50, got {starts!r}")
-    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0):
+    if seed is not None and (not is_whole(seed) or seed < 0):
         raise CalibrationError(f"seed must be a whole number >= 0 or None, got {seed!r}")
     units = dict(units or {})
     responses = _check_responses(responses, results, units)

@@ -53,7 +53,10 @@ import pandas as pd
 from scipy.stats import norm
 from threadpoolctl import threadpool_limits
 
+from ..checks import is_whole
 from ..errors import PlanError, SurrogateError
+from ..surrogate.gp import ResponseSurrogate
+from ..surrogate.set import SurrogateSet
 from .plans import candidates, next_ids
 
 __all__ = ["propose_runs", "run_adaptive", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
@@ -302,7 +305,7 @@ def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed,
     criterion = criterion or CRITERIA[aim][0]
     if criterion not in CRITERIA[aim]:
         raise SurrogateError(f"criterion {criterion!r} does not serve aim {aim!r}; use {', '.join(CRITERIA[aim])}")
-    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+    if not is_whole(k) or k < 1:
         raise SurrogateError(f"the number of runs to propose must be a whole number >= 1, got {k!r}")
     response = _pick_response(sset, response) if aim == "optimum" else None
     rng = np.random.default_rng(seed)
@@ -392,9 +395,6 @@ def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int =
     model : ResponseSurrogate
         Fitted (hyperparameters estimated) on all runs.
     """
-    from ..surrogate.gp import ResponseSurrogate
-    from ..surrogate.set import SurrogateSet
-
     U = np.asarray(U0, dtype=float)
     y = np.asarray(func(U), dtype=float)
     bad = ~np.isfinite(y)                     # failed runs: never refitted, never proposed again

@@ -32,6 +32,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import SurrogateError
+from ..surrogate.gp import ResponseSurrogate
 
 __all__ = ["learning_curve", "runs_to_target", "expected_savings", "MIN_RUNS", "SUBSET_FRACTIONS", "SPLITS"]
 
@@ -142,8 +143,6 @@ def expected_savings(sset, seed=0) -> dict:
         largest over responses (every response must meet the target); None
         when a curve cannot be extrapolated.
     """
-    from ..surrogate.gp import ResponseSurrogate
-
     out, need_two, need_one, n_now = {}, [], [], 0
     for name, model in sset.models.items():
         if getattr(model, "fidelity", "single") != "two" or model.constant_:

@@ -23,6 +23,7 @@ import numpy as np
 from jinja2 import Environment, FileSystemLoader, select_autoescape
 from markupsafe import Markup, escape
 
+from ..version import __version__
 from . import figures as F
 from .style import PALETTE
 
@@ -306,8 +307,6 @@ def build_report(inputs: ReportInputs, folder) -> Path:
     folder : str or Path
         Created when missing; its figures and ``index.html`` are replaced.
     """
-    from ..version import __version__
-
     study = inputs.study
     folder = Path(folder)
     (folder / "data").mkdir(parents=True, exist_ok=True)

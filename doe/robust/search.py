@@ -97,7 +97,7 @@ from scipy.stats import qmc
 from ..errors import DoeError
 from ..seeds import child_seeds, seed_value
 from ..space import Space
-from ..study.reader import ResponseLimit
+from ..study.settings import ResponseLimit
 from ..vehicle import VehicleFigures, compare_figures
 from .scatter import fragility, predict_checked, propagate, scatter_draws, goal_sign
 

@@ -29,8 +29,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import ResultsError, StoreLockedError, where
-from .evaluators.base import Outcome
-from .evaluators.command import safe_run_id
+from .outcome import Outcome, safe_run_id
 
 __all__ = ["read_plan", "read_points", "read_results", "write_plan", "write_json", "ResultsTable", "ResultsStore",
            "STATUS_VALUES", "META_COLUMNS"]

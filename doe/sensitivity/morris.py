@@ -50,6 +50,7 @@ import numpy as np
 from SALib.analyze import morris as _morris_analyze
 from SALib.sample import morris as _morris_sample
 
+from ..checks import is_whole
 from ..errors import SensitivityError
 from ..seeds import seed_value
 from .sobol import evaluate_model, output_names
@@ -134,9 +135,9 @@ def morris_screening(model, space: Space, *, trajectories: int = 20, levels: int
     ----------
     Morris 1991; Campolongo, Cariboni & Saltelli 2007; Ruano et al. 2012 (see the module docstring).
     """
-    if isinstance(trajectories, bool) or not isinstance(trajectories, (int, np.integer)) or trajectories < 4:
+    if not is_whole(trajectories) or trajectories < 4:
         raise SensitivityError(f"screening: trajectories must be a whole number of at least 4, got {trajectories!r}")
-    if isinstance(levels, bool) or not isinstance(levels, (int, np.integer)) or levels < 4 or levels % 2:
+    if not is_whole(levels) or levels < 4 or levels % 2:
         raise SensitivityError(f"screening: levels must be an even whole number of at least 4, got {levels!r}")
     if not 0 < inert_fraction < 1:
         raise SensitivityError(f"screening: inert_fraction must be between 0 and 1, got {inert_fraction!r}")

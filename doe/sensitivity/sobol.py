@@ -99,6 +99,7 @@ import numpy as np
 from SALib.analyze import sobol as _sobol_analyze
 from SALib.sample import sobol as _sobol_sample
 
+from ..checks import is_whole
 from .inputs import InputDistribution
 from ..errors import SensitivityError
 from ..seeds import seed_value
@@ -328,7 +329,7 @@ def _as_paths(value, responses: list, n_paths: int, n: int) -> dict:
 
 
 def _power_of_two(n, what: str) -> int:
-    if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 8 or (n & (n - 1)):
+    if not is_whole(n) or n < 8 or (n & (n - 1)):
         raise SensitivityError(f"{what} must be a power of two of at least 8 (Sobol' balance), got {n!r}")
     return int(n)
 
@@ -641,6 +642,6 @@ def _targets(target_conf: float, spread, k: int) -> tuple:
 
 
 def _check_int(value, least: int, what: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < least:
+    if not is_whole(value) or value < least:
         raise SensitivityError(f"{what} must be a whole number of at least {least}, got {value!r}")
     return int(value)

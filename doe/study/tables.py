@@ -12,6 +12,7 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from ..checks import is_number, is_whole
 from ..errors import StudyError, where
 
 __all__ = ["Source", "Table", "REQUIRED", "NAME_PATTERN"]
@@ -139,14 +140,14 @@ class Table:
 
     def _convert(self, key, value, kind):
         if kind is float:
-            if isinstance(value, bool) or not isinstance(value, (int, float)):
+            if not is_number(value):
                 raise self.error(key, f"must be a number, got {_show(value)}")
             value = float(value)
             if not math.isfinite(value):
                 raise self.error(key, f"must be a finite number, got {value}")
             return value
         if kind is int:
-            if isinstance(value, bool) or not isinstance(value, int):
+            if not is_whole(value):
                 raise self.error(key, f"must be a whole number, got {_show(value)}")
             return value
         if kind is bool:

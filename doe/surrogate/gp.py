@@ -67,6 +67,7 @@ from sklearn.exceptions import ConvergenceWarning
 from threadpoolctl import threadpool_limits
 from sklearn.gaussian_process import GaussianProcessRegressor
 
+from ..checks import is_whole
 from .. import defaults
 from . import paths as gppaths
 from ..errors import NotFittedError, SurrogateError
@@ -208,7 +209,7 @@ class ResponseSurrogate:
                                     ("noise", self.noise, NOISE_MODES), ("selection", self.selection, SELECTIONS)):
             if value not in allowed:
                 raise SurrogateError(f"surrogate option {key}={value!r} is not one of {', '.join(allowed)}")
-        if isinstance(self.restarts, bool) or not isinstance(self.restarts, (int, np.integer)) or self.restarts < 0:
+        if not is_whole(self.restarts) or self.restarts < 0:
             raise SurrogateError(f"surrogate option restarts={self.restarts!r} must be a whole number >= 0")
         if not (isinstance(self.nugget, (int, float)) and 0 < self.nugget < 1):
             raise SurrogateError(f"surrogate option nugget={self.nugget!r} must be a number in (0, 1)")
@@ -499,7 +500,7 @@ class ResponseSurrogate:
         """
         self._check_fitted()
         X = self._check_points(X_unit)
-        if isinstance(n_paths, bool) or not isinstance(n_paths, (int, np.integer)) or n_paths < 1:
+        if not is_whole(n_paths) or n_paths < 1:
             raise SurrogateError(f"n_paths must be a whole number >= 1, got {n_paths!r}")
         if method not in ("auto", "exact", "features"):
             raise SurrogateError(f"method={method!r} is not one of auto, exact, features")

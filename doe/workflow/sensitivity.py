@@ -22,9 +22,13 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
+import pandas as pd
 
 from ..sensitivity.inputs import InputDistribution
 from ..errors import SensitivityError
+from ..runs.evaluators import make_evaluator
+from ..runs.results import ResultsTable
+from .cheap import study_surrogates
 from ..sensitivity.morris import ScreeningResult, morris_screening
 from ..sensitivity.sobol import SobolResult, sobol_indices
 from ..sensitivity.words import to_dict
@@ -125,10 +129,6 @@ def evaluate_points(study, X, evaluator):
     ResultsTable
         Run ids ``r0``, ``r1``, ...; failed runs kept with ``status = failed``.
     """
-    import pandas as pd
-
-    from ..runs.results import ResultsTable
-
     names, ids = study.space.names, [f"r{i}" for i in range(len(X))]
     outcomes = evaluator.evaluate_many(ids, [dict(zip(names, map(float, x))) for x in X])
     frame = pd.DataFrame(np.asarray(X, dtype=float), columns=names)
@@ -153,8 +153,6 @@ def _study_model(study, evaluator, what: str):
         if study.evaluator.kind == "recorded":
             raise SensitivityError(f"{study.name}: {what} needs an evaluator that can run new points; "
                                    "a 'recorded' evaluator cannot (use the surrogate route)")
-        from ..runs.evaluators import make_evaluator
-
         evaluator = make_evaluator(study)
     return evaluator_model(evaluator, study.space.names, study.response_names)
 
@@ -224,9 +222,8 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
     if surrogates is None:
         if results is None:
             raise SensitivityError(f"{study.name}: the surrogate route needs results (or use the direct route)")
-        from .cheap import study_surrogates
-
-        surrogates = study_surrogates(study, results, seed=seed, progress=False)
+        surrogates = study_surrogates(study, results, seed=seed, progress=False,
+                                      say=lambda line: warnings.warn(line, stacklevel=3))   # runs are said, not hidden
     model, paths = surrogate_callables(surrogates)
     return sobol_indices(model, inputs, paths=paths, n_paths=cfg.paths, **options)
 

@@ -16,6 +16,9 @@ from pathlib import Path
 
 from ...errors import EvaluatorError
 from .base import Evaluator, Outcome, failed
+from .builtin import BuiltinEvaluator, check_builtin_settings
+from .command import CommandEvaluator, CommandSettings
+from .recorded import RecordedEvaluator, RecordedSettings
 
 __all__ = ["Evaluator", "Outcome", "failed", "make_evaluator", "check_settings"]
 
@@ -38,18 +41,10 @@ def make_evaluator(study, workspace: str | Path | None = None) -> Evaluator:
     kind = study.evaluator.kind
     workspace = Path(workspace) if workspace is not None else study.default_output / "cases"
     if kind == "command":
-        from .command import CommandEvaluator
-
         return CommandEvaluator.from_study(study, workspace)
     if kind == "recorded":
-        from .recorded import RecordedEvaluator
-
         return RecordedEvaluator.from_study(study)
     if kind == "builtin":
-        try:
-            from .builtin import BuiltinEvaluator
-        except ImportError as exc:  # pragma: no cover - only while the model is being built
-            raise EvaluatorError("the built-in aerodynamic model is not available in this installation") from exc
         return BuiltinEvaluator.from_study(study)
     raise EvaluatorError(f"unknown evaluator kind '{kind}'")
 
@@ -62,16 +57,8 @@ def check_settings(study) -> None:
     """
     kind = study.evaluator.kind
     if kind == "command":
-        from .command import CommandSettings
-
         CommandSettings.read(study)
     elif kind == "recorded":
-        from .recorded import RecordedSettings
-
         RecordedSettings.read(study)
     elif kind == "builtin":
-        try:
-            from .builtin import check_builtin_settings
-        except ImportError:  # pragma: no cover - only while the model is being built
-            return
         check_builtin_settings(study)

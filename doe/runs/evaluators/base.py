@@ -1,56 +1,11 @@
 """The one small protocol every evaluator follows: a point in, responses and a status out."""
 from __future__ import annotations
 
-import math
 from abc import ABC, abstractmethod
-from dataclasses import dataclass, field
 
-__all__ = ["Outcome", "Evaluator", "failed"]
+from ..outcome import Outcome, failed, one_line
 
-#: Longest failure message kept in a results file, in characters.
-MESSAGE_LIMIT = 400
-
-
-@dataclass
-class Outcome:
-    """What one run gave.
-
-    Attributes
-    ----------
-    values : dict of str to float
-        One value per response, in the response's unit; NaN where there is none.
-    status : {"ok", "failed"}
-    message : str
-        Why a run failed (with the tail of its log), or a note; one line.
-    source : str
-        Where the numbers come from (``builtin``, ``command``, ``cfd``, ``tunnel``, ...).
-    elapsed_s : float
-        Wall time of the run, in seconds.
-    """
-
-    values: dict
-    status: str = "ok"
-    message: str = ""
-    source: str = ""
-    elapsed_s: float = 0.0
-    extra: dict = field(default_factory=dict)
-
-    def __post_init__(self):
-        self.message = one_line(self.message)
-
-
-def one_line(text: str, limit: int = MESSAGE_LIMIT) -> str:
-    """Fold ``text`` to one line of at most ``limit`` characters (keeping its end)."""
-    text = " | ".join(s.strip() for s in str(text).splitlines() if s.strip())
-    if len(text) > limit:
-        text = "..." + text[-(limit - 3):]
-    return text
-
-
-def failed(responses, message: str, source: str = "", elapsed_s: float = 0.0) -> Outcome:
-    """An :class:`Outcome` with status ``failed`` and NaN for every response."""
-    return Outcome({r: math.nan for r in responses}, "failed", message, source, elapsed_s)
-
+__all__ = ["Outcome", "Evaluator", "failed", "one_line"]
 
 class Evaluator(ABC):
     """Base of every evaluator.

@@ -10,6 +10,7 @@ import json
 from dataclasses import fields
 from pathlib import Path
 
+from ...checks import is_number
 from ...aero.model import Coefficients
 from ...errors import CalibrationError, DoeError
 
@@ -49,7 +50,7 @@ def read_calibrated_coefficients(path) -> dict:
     for k, v in values.items():
         if k not in known:
             raise CalibrationError(f"{path}: unknown coefficient '{k}' (coefficients: {', '.join(sorted(known))})")
-        if isinstance(v, bool) or not isinstance(v, (int, float)):
+        if not is_number(v):
             raise CalibrationError(f"{path}: coefficient '{k}' must be a number, got {v!r}")
     try:
         Coefficients(**values)

@@ -29,20 +29,15 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from ...checks import is_number
 from ...errors import EvaluatorError
+from ..outcome import safe_run_id
 from .base import Evaluator, Outcome, failed
 
-__all__ = ["CommandSettings", "CommandEvaluator", "safe_run_id", "RUN_ID_PATTERN"]
+__all__ = ["CommandSettings", "CommandEvaluator"]
 
-#: A run id must be usable as one folder name: no separators, no dots-only names.
-RUN_ID_PATTERN = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]{0,63}$")
 _PLACEHOLDER = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
 LOG_TAIL_CHARS = 300
-
-
-def safe_run_id(run_id: str) -> bool:
-    """Whether ``run_id`` can be a case folder name that stays inside its parent."""
-    return bool(RUN_ID_PATTERN.match(run_id)) and run_id not in (".", "..") and ".." not in run_id
 
 
 @dataclass(frozen=True)
@@ -181,7 +176,7 @@ class CommandEvaluator(Evaluator):
             v = data.get(r)
             if v is None:
                 return fail(f"{out_path.name} has no value for '{r}'")
-            if isinstance(v, bool) or not isinstance(v, (int, float)):
+            if not is_number(v):
                 return fail(f"{out_path.name}: '{r}' is not a number ({v!r})")
             if not math.isfinite(v):
                 return fail(f"{out_path.name}: '{r}' is {v}")

@@ -19,6 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..results import read_results
 from .base import Evaluator, Outcome, failed
 
 __all__ = ["RecordedSettings", "RecordedEvaluator"]
@@ -67,8 +68,6 @@ class RecordedEvaluator(Evaluator):
 
     @classmethod
     def from_study(cls, study) -> "RecordedEvaluator":
-        from ..results import read_results
-
         settings = RecordedSettings.read(study)
         table = read_results(study.resolve(settings.file), study)
         return cls(table, settings.match, study.space)
