@@ -255,15 +255,15 @@ def _pick_response(sset, response):
     return response
 
 
-def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, response: str | None = None,
+def propose_runs(sset, runs: int, aim: str = "map", criterion: str | None = None, response: str | None = None,
                  pending=None, avoid=None, taken_ids=(), seed=0, n_candidates: int = N_CANDIDATES) -> Proposal:
-    """Propose ``k`` new runs.
+    """Propose ``runs`` new runs.
 
     Parameters
     ----------
     sset : SurrogateSet
         Fitted surrogates of the study.
-    k : int
+    runs : int
         Runs to propose.
     aim : {"map", "optimum"}
         Map the whole space (accurate surrogates everywhere) or seek the
@@ -296,17 +296,17 @@ def propose_runs(sset, k: int, aim: str = "map", criterion: str | None = None, r
         candidate left.
     """
     with threadpool_limits(limits=1, user_api="blas"):  # small matrices: threads only contend
-        return _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates)
+        return _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates)
 
 
-def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates) -> Proposal:
+def _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates) -> Proposal:
     if aim not in AIMS:
         raise SurrogateError(f"aim {aim!r} is not one of {', '.join(AIMS)}")
     criterion = criterion or CRITERIA[aim][0]
     if criterion not in CRITERIA[aim]:
         raise SurrogateError(f"criterion {criterion!r} does not serve aim {aim!r}; use {', '.join(CRITERIA[aim])}")
-    if not is_whole(k) or k < 1:
-        raise SurrogateError(f"the number of runs to propose must be a whole number >= 1, got {k!r}")
+    if not is_whole(runs) or runs < 1:
+        raise SurrogateError(f"the number of runs to propose must be a whole number >= 1, got {runs!r}")
     response = _pick_response(sset, response) if aim == "optimum" else None
     rng = np.random.default_rng(seed)
     space = sset.space
@@ -324,8 +324,8 @@ def _propose(sset, k, aim, criterion, response, pending, avoid, taken_ids, seed,
     if len(P):
         notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean")
     chosen, picks = [], []
-    ids = next_ids(list(sset.run_ids) + list(taken_ids), k)
-    for j in range(k):
+    ids = next_ids(list(sset.run_ids) + list(taken_ids), runs)
+    for j in range(runs):
         if len(C) == 0:
             raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; ask for fewer runs")
         if aim == "map" and MAP_LENGTH_SCALE_CAP is not None:

@@ -380,8 +380,8 @@ def make_plan(space, runs: int | None = None, seed: int = 0, method: str = "lhs"
     return Plan(_frame(space, U, run_ids(runs)), plan_quality(U, notes), method, seed)
 
 
-def augment_plan(space, existing: pd.DataFrame, k: int, seed: int = 0) -> Plan:
-    """Add ``k`` runs to an existing plan so that the whole set stays space-filling.
+def augment_plan(space, existing: pd.DataFrame, runs: int, seed: int = 0) -> Plan:
+    """Add ``runs`` runs to an existing plan so that the whole set stays space-filling.
 
     The old runs are kept as they are; each new run is the feasible candidate
     farthest from every run so far (greedy maximin [3]).
@@ -391,7 +391,7 @@ def augment_plan(space, existing: pd.DataFrame, k: int, seed: int = 0) -> Plan:
     space : Space
     existing : DataFrame
         The plan so far (``run_id`` and parameter columns, study units).
-    k : int
+    runs : int
         Runs to add.
     seed : int
 
@@ -400,26 +400,26 @@ def augment_plan(space, existing: pd.DataFrame, k: int, seed: int = 0) -> Plan:
     Plan
         Old and new runs together; new run ids continue the old numbering.
     """
-    if k < 1:
-        raise PlanError(f"the number of runs to add must be at least 1, got {k}")
+    if runs < 1:
+        raise PlanError(f"the number of runs to add must be at least 1, got {runs}")
     rng = np.random.default_rng(seed)
     U0 = space.to_unit(existing[space.names].to_numpy(dtype=float))
-    C = candidates(space, min(max(64 * (len(U0) + k), 4096), 65536), rng)
-    new = greedy_maximin(C, k, existing=U0, rng=rng)
+    C = candidates(space, min(max(64 * (len(U0) + runs), 4096), 65536), rng)
+    new = greedy_maximin(C, runs, existing=U0, rng=rng)
     U = np.vstack([U0, new])
-    ids = next_ids(list(existing["run_id"]), k)
+    ids = next_ids(list(existing["run_id"]), runs)
     frame = pd.concat([existing[["run_id", *space.names]].reset_index(drop=True), _frame(space, new, ids)],
                       ignore_index=True)
-    notes = [f"{len(U0)} runs kept, {k} added by greedy maximin selection"]
+    notes = [f"{len(U0)} runs kept, {runs} added by greedy maximin selection"]
     return Plan(frame, plan_quality(U, notes), "augment", seed)
 
 
-def next_ids(old: list, k: int) -> list:
-    """``k`` new run ids after those in ``old`` (``r<n>``, numbered on from the largest)."""
+def next_ids(old: list, runs: int) -> list:
+    """``runs`` new run ids after those in ``old`` (``r<n>``, numbered on from the largest)."""
     nums = [int(r[1:]) for r in old if r.startswith("r") and r[1:].isdigit()]
     start = max(nums, default=0) + 1
-    ids = run_ids(k, start)
+    ids = run_ids(runs, start)
     taken = set(old)
     if taken & set(ids):  # pragma: no cover - only with hand-made ids that collide
-        ids = run_ids(k, start, prefix="a")
+        ids = run_ids(runs, start, prefix="a")
     return ids

@@ -151,16 +151,16 @@ class NextRuns:
     savings: dict = field(default_factory=dict)
 
 
-def next_step(study, sset, results, k: int, out, seed: int | None = None, aim: str = "map",
+def next_step(study, sset, results, runs: int, out, seed: int | None = None, aim: str = "map",
               criterion: str | None = None, response: str | None = None, pending=None) -> NextRuns:
-    """Propose ``k`` runs (plan CSV ``out`` and ``<out>.why.json``; with two fidelities ``<out>.cheap.csv``).
+    """Propose ``runs`` runs (plan CSV ``out`` and ``<out>.why.json``; with two fidelities ``<out>.cheap.csv``).
 
     ``pending``: a plan (DataFrame) of runs planned but not yet evaluated.
     """
     seed = study.plan.seed if seed is None else seed
     names = study.space.names
     taken = list(results.frame["run_id"]) + (list(pending["run_id"]) if pending is not None else [])
-    proposal = propose_runs(sset, k, aim=aim, criterion=criterion, response=response,
+    proposal = propose_runs(sset, runs, aim=aim, criterion=criterion, response=response,
                             pending=None if pending is None else pending[names].to_numpy(float),
                             avoid=results.failed[names].to_numpy(float), taken_ids=taken, seed=seed)
     write_plan(proposal.frame, out)
