@@ -579,9 +579,10 @@ class _RowSearch:
         self.start = np.arange(n) * self.m
 
     def __call__(self, y: np.ndarray) -> np.ndarray:
-        """Per row i, j in [0, M-2] with ``table[i, j] <= y[i] < table[i, j+1]`` (clipped at the ends)."""
+        """Per row i, the flat index ``i M + j`` of the interval ``table[i, j] <= y[i] < table[i, j+1]``
+        (j clipped to [0, M-2])."""
         k = np.searchsorted(self.flat, y - self.low + self.shift, side="right") - 1 - self.start
-        return np.clip(k, 0, self.m - 2)
+        return self.start + np.clip(k, 0, self.m - 2)
 
 
 def top_speeds(vehicle: Vehicle, cla_front, cla_rear, cda) -> np.ndarray:
@@ -619,11 +620,38 @@ def top_speeds(vehicle: Vehicle, cla_front, cla_rear, cda) -> np.ndarray:
         hi = np.where(grow, 2.0 * hi, hi)
         if np.any(hi > 1e5):
             raise DoeError("vehicle: no top speed below 100 km/s; check power_kw and cda_m2")
-    lo = np.zeros_like(cf)
-    for _ in range(60):                      # 2^-60 of at most 1e5 m/s
-        mid = 0.5 * (lo + hi)
-        up = accelerates(mid)
-        lo, hi = np.where(up, mid, lo), np.where(up, hi, mid)
+    return _falling_root(lambda v: _straight_accelerations(vehicle, cf, cr, cd, v)[0], np.zeros_like(cf), hi)
+
+
+def _falling_root(f, lo, hi, iterations: int = 40, rtol: float = 1e-13):
+    """Per element, a point just below the root of ``f`` in ``[lo, hi]``, where ``f(lo) > 0 >= f(hi)``.
+
+    Regula falsi with the Illinois modification (the stale end's value is
+    halved), bracket kept; returns the end where ``f > 0``. Stops when every
+    bracket is narrower than ``rtol`` of its end.
+
+    References
+    ----------
+    Dowell, M. and Jarratt, P. (1971). A modified regula falsi method for
+    computing the root of an equation. BIT 11:168-174.
+    """
+    lo, hi = lo.astype(float), hi.astype(float)
+    f_lo, f_hi = f(lo), f(hi)
+    side = np.zeros(lo.shape, dtype=int)
+    for _ in range(iterations):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x = hi - f_hi * (hi - lo) / (f_hi - f_lo)
+        x = np.where(np.isfinite(x) & (x > lo) & (x < hi), x, 0.5 * (lo + hi))
+        fx = f(x)
+        up = fx > 0
+        # Illinois: when the same end moves twice running, halve the other end's value
+        f_hi = np.where(up & (side == 1), 0.5 * f_hi, f_hi)
+        f_lo = np.where(~up & (side == -1), 0.5 * f_lo, f_lo)
+        lo, f_lo = np.where(up, x, lo), np.where(up, fx, f_lo)
+        hi, f_hi = np.where(up, hi, x), np.where(up, f_hi, fx)
+        side = np.where(up, 1, -1)
+        if np.all(hi - lo <= rtol * np.maximum(hi, 1e-300)):
+            break
     return lo
 
 
@@ -659,14 +687,14 @@ def _kink_speeds(vehicle: Vehicle, cf, cr, cd, v_max):
     ``q = W (1 - brake_limit_g / mu) / CLA`` where that is positive.
     """
     w, mu = vehicle.weight_n, vehicle.tyre_mu
-    lo, hi = np.zeros_like(v_max), v_max.copy()
-    for _ in range(50):
-        mid = 0.5 * (lo + hi)
-        q = 0.5 * vehicle.air_density_kg_m3 * mid * mid
-        front, rear = _axle_loads(vehicle, cf, cr, q)
+
+    def power_to_spare(v):
+        front, rear = _axle_loads(vehicle, cf, cr, 0.5 * vehicle.air_density_kg_m3 * v * v)
         driven = {"front": front, "rear": rear, "all": front + rear}[vehicle.drive]
-        below = mu * np.maximum(driven, 0.0) * mid < vehicle.power_w
-        lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
+        return vehicle.power_w - mu * np.maximum(driven, 0.0) * v
+
+    spare = power_to_spare(v_max) > 0                   # traction limits all the way to the top speed
+    lo = np.where(spare, v_max, _falling_root(power_to_spare, np.zeros_like(v_max), v_max, rtol=1e-10))
     brake = v_max.copy()
     if vehicle.brake_limit_g is not None:
         cla = cf + cr
@@ -720,40 +748,47 @@ class _SpeedTables:
         self.Dab = self.Da + self.Db
         self.find = {key: _RowSearch(t) for key, t in (("w", self.w), ("a", self.Da), ("b", self.Db),
                                                          ("ab", self.Dab))}
+        # flat copies: a look-up reads elements k and k + 1 at the flat index k of its interval
+        self.flat = {name: np.ascontiguousarray(t).ravel() for name, t in (
+            ("w", self.w), ("u", self.v ** 2), ("Da", self.Da), ("Ta", self.Ta), ("Db", self.Db), ("Tb", self.Tb),
+            ("dDa", self.dDa), ("dTa", self.dTa), ("dDb", self.dDb), ("dTb", self.dTb), ("a", self.Da),
+            ("b", self.Db), ("ab", self.Dab), ("du_a", self.du["a"]), ("du_b", self.du["b"]),
+            ("du_ab", self.du["ab"]))}
 
     def _speed(self, w, v_max=None):
         return (self.v_max if v_max is None else v_max) * -np.expm1(-w)
 
     def at(self, speed):
-        """``(w of the speed clipped to the rows' span, its table interval)``: the argument of the look-ups."""
+        """``(w of the speed clipped to the rows' span, flat index of its interval)``: what the look-ups take."""
         s = np.clip(speed, self.v[:, 0], self.v_top)
         w = -np.log1p(-s / self.v_max[:, 0])
         return w, self.find["w"](w)
 
-    def _lookup(self, where, table, slope):
-        w, j = where
-        r = self.rows
-        w0, w1 = self.w[r, j], self.w[r, j + 1]
-        return _hermite((w - w0) / (w1 - w0), w1 - w0, table[r, j], table[r, j + 1], slope[r, j], slope[r, j + 1])
+    def _hermite_at(self, x_name, y_name, slope_name, x, k):
+        """Cubic Hermite of table ``y_name`` against ``x_name`` at x in the interval at flat index k."""
+        f = self.flat
+        x0, x1 = f[x_name][k], f[x_name][k + 1]
+        return _hermite((x - x0) / (x1 - x0), x1 - x0, f[y_name][k], f[y_name][k + 1], f[slope_name][k],
+                        f[slope_name][k + 1])
 
     def distance(self, where, braking: bool):
         """``D_a`` or ``D_b`` at ``where = at(speed)``, m."""
-        return self._lookup(where, self.Db, self.dDb) if braking else self._lookup(where, self.Da, self.dDa)
+        return self._hermite_at("w", "Db", "dDb", *where) if braking else self._hermite_at("w", "Da", "dDa", *where)
 
     def time(self, where, braking: bool):
         """``T_a`` or ``T_b`` at ``where = at(speed)``, s."""
-        return self._lookup(where, self.Tb, self.dTb) if braking else self._lookup(where, self.Ta, self.dTa)
+        return self._hermite_at("w", "Tb", "dTb", *where) if braking else self._hermite_at("w", "Ta", "dTa", *where)
 
     def _speed_at(self, key: str, target):
-        """Speed where table ``key`` (``D_a``, ``D_b`` or their sum) reaches ``target`` (m); Hermite of v^2 in it."""
-        r = self.rows
+        """Speed where table ``key`` (``a``: D_a, ``b``: D_b, ``ab``: their sum) reaches ``target`` (m).
+
+        Hermite of v^2 against the table (v^2 is linear in D at constant acceleration).
+        """
         table = {"a": self.Da, "b": self.Db, "ab": self.Dab}[key]
         target = np.clip(target, table[:, 0], table[:, -1])
-        j = self.find[key](target)
-        y0, y1 = table[r, j], table[r, j + 1]
-        u0, u1 = self.v[r, j] ** 2, self.v[r, j + 1] ** 2
-        u = _hermite((target - y0) / (y1 - y0), y1 - y0, u0, u1, self.du[key][r, j], self.du[key][r, j + 1])
-        return np.sqrt(np.clip(u, u0, u1))
+        k = self.find[key](target)
+        u = self._hermite_at(key, "u", "du_" + key, target, k)
+        return np.sqrt(np.clip(u, self.flat["u"][k], self.flat["u"][k + 1]))
 
     def after_accelerating(self, speed, length):
         """Speed after accelerating flat out over ``length`` (m) from ``speed``."""
@@ -1157,6 +1192,70 @@ class VehicleObjective:
             else:
                 out[name] = balance_shift(self.vehicle, cf, cr, self.balance_speed_kph / 3.6)
         return {name: np.asarray(v, dtype=float).reshape(shape) for name, v in out.items()}
+
+    def linearised(self, cla_front, cla_rear, cda, names=None, step_m2: float = 1e-4) -> dict:
+        """Figures and their slopes against CLA front, CLA rear and CDA (central differences).
+
+        Parameters
+        ----------
+        cla_front, cla_rear, cda : array_like
+            Configurations, m^2 (broadcast shape ``S``).
+        names : sequence of str, optional
+        step_m2 : float
+            Difference step, m^2 (the lap tables are smooth to well below it).
+
+        Returns
+        -------
+        dict of str to (ndarray, ndarray)
+            ``{figure: (value, slope)}``: value of shape ``S`` (figure unit) and
+            slope of shape ``S + (3,)`` (figure unit per m^2), in the order
+            CLA front, CLA rear, CDA. Seven configurations per point, one batch.
+        """
+        base = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (cla_front, cla_rear, cda)))
+        h = _positive("step_m2", step_m2)
+        stacked = [np.stack([b] + [b + sign * h * (i == k) for i in range(3) for sign in (1.0, -1.0)])
+                   for k, b in enumerate(base)]
+        out = self.figures(*stacked[:2], np.maximum(stacked[2], 0.0), names)
+        return {name: (v[0], np.stack([(v[1 + 2 * i] - v[2 + 2 * i]) / (2 * h) for i in range(3)], axis=-1))
+                for name, v in out.items()}
+
+    def spread(self, cla_front, cla_rear, cda, names=None, exact: bool = False) -> dict:
+        """Mean and standard deviation (ddof 1) over the last axis of draws of the aero coefficients.
+
+        Meant for setup scatter: ``draws[i, j]`` is the surrogate mean at the
+        j-th scattered setting around candidate i (shape ``(m, n)``, m^2).
+
+        Parameters
+        ----------
+        cla_front, cla_rear, cda : array_like, shape (m, n)
+        names : sequence of str, optional
+        exact : bool
+            True evaluates every draw (``m n`` configurations); False (default)
+            evaluates the figures and their slopes at each candidate's mean draw
+            and moves them linearly to the draws (7 configurations per candidate).
+            The scatter in the aero coefficients is small against the scale on
+            which lap time bends, so the two agree closely
+            (``tests/test_vehicle_fast.py``); use ``exact`` when it is not.
+
+        Returns
+        -------
+        dict of str to (ndarray, ndarray)
+            ``{figure: (mean, std)}`` of shape ``(m,)``, figure unit.
+        """
+        draws = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (cla_front, cla_rear, cda)))
+        if draws[0].ndim < 1 or draws[0].shape[-1] < 2:
+            raise DoeError("vehicle: spread needs at least two draws along the last axis")
+        if exact:
+            out = self.figures(*draws, names)
+            return {name: (v.mean(axis=-1), v.std(axis=-1, ddof=1)) for name, v in out.items()}
+        centre = [d.mean(axis=-1) for d in draws]
+        lin = self.linearised(*centre, names)
+        delta = np.stack([d - c[..., None] for d, c in zip(draws, centre)], axis=-1)      # (m, n, 3)
+        out = {}
+        for name, (value, slope) in lin.items():
+            moved = value[..., None] + np.einsum("...nk,...k->...n", delta, slope)
+            out[name] = (moved.mean(axis=-1), moved.std(axis=-1, ddof=1))
+        return out
 
     def normal(self, means, stds, names=None) -> dict:
         """Mean and standard deviation of each figure when CLA front, CLA rear and CDA are independent normals.
