@@ -1290,7 +1290,10 @@ class VehicleFigures:
     cla_m2, cla_front_m2, cla_rear_m2, cda_m2 : float
         The configuration, m^2 (CLA negative for downforce).
     aero_front_share : float or None
-        Front share of the aero vertical load, - (None when the total is zero).
+        Front share of the aero vertical load (the centre of pressure), - (None
+        when the total is zero). Meaningless when the net lift is near zero (a
+        share of almost nothing): show ``front_load_share`` and
+        ``balance_shift`` to a driver instead.
     speeds_kph : tuple of float
         Speeds of the force table, km/h.
     downforce_n, drag_n : tuple of float
@@ -1305,6 +1308,12 @@ class VehicleFigures:
         Power-limited top speed, km/h.
     lap_time_s : float or None
         Lap time on the study's track, s (None without a track).
+    static_front_share : float or None
+        Front axle's share of the weight at rest, -.
+    balance_shift : tuple of float
+        ``front_load_share`` minus ``static_front_share`` at each speed, -
+        (negative: the aero load moves the car towards understeer at that
+        speed; :func:`balance_shift`).
     """
 
     cla_m2: float
@@ -1322,6 +1331,8 @@ class VehicleFigures:
     corner_speed_kph: tuple
     top_speed_kph: float
     lap_time_s: float | None = None
+    static_front_share: float | None = None
+    balance_shift: tuple = ()
 
     def to_dict(self) -> dict:
         """Plain dict (lists for tuples; an infinite speed becomes None), ready for JSON."""
@@ -1365,7 +1376,8 @@ def vehicle_figures(vehicle: Vehicle, aero: Aero, track: Track | None = None,
     return VehicleFigures(aero.cla_m2, float(aero.cla_front_m2), float(aero.cla_rear_m2), float(aero.cda_m2),
                           aero.front_share, tup(speeds * 3.6),
                           tup(down), tup(drag), tup(front), tup(rear), tup(share), tup(radii_m), tup(corners),
-                          vmax * 3.6, lap)
+                          vmax * 3.6, lap, vehicle.static_front_share,
+                          tup(np.atleast_1d(share) - vehicle.static_front_share))
 
 
 def compare_figures(base: VehicleFigures, other: VehicleFigures) -> dict:

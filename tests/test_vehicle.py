@@ -179,3 +179,15 @@ def test_bad_track_input():
         Segment.corner(30.0)
     with pytest.raises(DoeError):
         Segment("corner", 50.0)
+
+
+def test_figures_carry_a_finite_balance_at_zero_net_lift():
+    # front lifting, rear pressed: no net lift, so the aero front share CLA_f/CLA has no value, while the front
+    # axle's share of the whole load is (0.6 W - q 0.12)/W at each speed (statics, hand formula)
+    v = car()
+    f = vehicle_figures(v, Aero(0.12, -0.12, 0.7), speeds_kph=(144.0,), radii_m=(50.0,))
+    q = 0.5 * RHO * 40.0**2
+    assert f.aero_front_share is None
+    assert f.static_front_share == pytest.approx(0.6, rel=1e-15)
+    assert f.balance_shift[0] == pytest.approx(-q * 0.12 / v.weight_n, rel=1e-12)   # towards understeer
+    assert f.to_dict()["balance_shift"] == [f.balance_shift[0]]
