@@ -539,22 +539,24 @@ _GL_X = np.array([0.5 - math.sqrt(15.0) / 10.0, 0.5, 0.5 + math.sqrt(15.0) / 10.
 _GL_W = np.array([5.0, 8.0, 5.0]) / 18.0
 
 
-#: Nodes of the speed tables per configuration (uniform in speed, then geometric towards the top
-#: speed), and how close to the top speed the last one lies (as ``1 - v / v_max``); faster speeds are
-#: taken as that one (their time differs by < 1e-6 relative).
-TABLE_NODES, TABLE_CLOSEST = (32, 16), 1e-6
+#: Nodes of the speed tables per configuration (uniform in speed, and geometric towards the top
+#: speed), and how close to the top speed the last one lies (as ``1 - v / v_max``). A faster speed is
+#: taken as that one; a car gets that close only after about nine times the distance over which its
+#: excess acceleration falls by e near the top speed (kilometres of straight), so its time is unaffected.
+TABLE_NODES, TABLE_CLOSEST = (32, 24), 1e-4
 
 
-def _gap_fractions(n_uniform: int, n_tail: int) -> np.ndarray:
+def _gap_fractions(n_uniform: int, n_geometric: int) -> np.ndarray:
     """Node positions as shares ``z`` of the gap to the top speed, decreasing from 1 to TABLE_CLOSEST.
 
     Node j of a configuration is at ``v = v_max (1 - r z_j)``, ``r = 1 - v_low /
-    v_max`` (``v_low``: the lap's lowest speed): uniform in speed down to
-    ``z = 0.15``, then geometric, where the distance to the singularity at the
-    top speed sets the scale.
+    v_max`` (``v_low``: the lap's lowest speed). The union of nodes uniform in
+    speed (where the forces change on the scale of the speed) and nodes
+    geometric in ``z`` (near the top speed, where the distance to the top speed
+    sets the scale).
     """
-    return np.concatenate([np.linspace(1.0, 0.15, n_uniform, endpoint=False),
-                           np.geomspace(0.15, TABLE_CLOSEST, n_tail)])
+    uniform = np.linspace(1.0, 0.0, n_uniform, endpoint=False)[1:]
+    return np.sort(np.concatenate([uniform, np.geomspace(1.0, TABLE_CLOSEST, n_geometric)]))[::-1]
 
 
 def _hermite(t, h, y0, y1, d0, d1):
@@ -562,6 +564,13 @@ def _hermite(t, h, y0, y1, d0, d1):
     t2 = t * t
     return ((1 + 2 * t) * (1 - t) ** 2 * y0 + t * (1 - t) ** 2 * h * d0 + t2 * (3 - 2 * t) * y1
             + t2 * (t - 1) * h * d1)
+
+
+def _hermite_slope(t, h, y0, y1, d0, d1):
+    """Derivative (per unit x) of :func:`_hermite` at fraction t of an interval of width h."""
+    t2 = t * t
+    return ((6 * t2 - 6 * t) * y0 + (3 * t2 - 4 * t + 1) * h * d0 + (6 * t - 6 * t2) * y1
+            + (3 * t2 - 2 * t) * h * d1) / h
 
 
 class _RowSearch:
@@ -753,7 +762,7 @@ class _SpeedTables:
             ("w", self.w), ("u", self.v ** 2), ("Da", self.Da), ("Ta", self.Ta), ("Db", self.Db), ("Tb", self.Tb),
             ("dDa", self.dDa), ("dTa", self.dTa), ("dDb", self.dDb), ("dTb", self.dTb), ("a", self.Da),
             ("b", self.Db), ("ab", self.Dab), ("du_a", self.du["a"]), ("du_b", self.du["b"]),
-            ("du_ab", self.du["ab"]))}
+            ("du_ab", self.du["ab"]), ("dDab", self.dDa + self.dDb))}
 
     def _speed(self, w, v_max=None):
         return (self.v_max if v_max is None else v_max) * -np.expm1(-w)
@@ -782,13 +791,25 @@ class _SpeedTables:
     def _speed_at(self, key: str, target):
         """Speed where table ``key`` (``a``: D_a, ``b``: D_b, ``ab``: their sum) reaches ``target`` (m).
 
-        Hermite of v^2 against the table (v^2 is linear in D at constant acceleration).
+        A first guess from the cubic Hermite of v^2 against the table (exact at
+        constant acceleration), then two Newton steps on the forward
+        interpolant in w (accurate near the top speed, where v^2 is not).
         """
         table = {"a": self.Da, "b": self.Db, "ab": self.Dab}[key]
         target = np.clip(target, table[:, 0], table[:, -1])
         k = self.find[key](target)
-        u = self._hermite_at(key, "u", "du_" + key, target, k)
-        return np.sqrt(np.clip(u, self.flat["u"][k], self.flat["u"][k + 1]))
+        f = self.flat
+        u = np.clip(self._hermite_at(key, "u", "du_" + key, target, k), f["u"][k], f["u"][k + 1])
+        w0, w1 = f["w"][k], f["w"][k + 1]
+        w = np.clip(-np.log1p(-np.sqrt(u) / self.v_max[:, 0]), w0, w1)
+        slope = {"a": "dDa", "b": "dDb", "ab": "dDab"}[key]
+        h = w1 - w0
+        for _ in range(2):
+            t = (w - w0) / h
+            value = _hermite(t, h, f[key][k], f[key][k + 1], f[slope][k], f[slope][k + 1])
+            deriv = _hermite_slope(t, h, f[key][k], f[key][k + 1], f[slope][k], f[slope][k + 1])
+            w = np.clip(w - (value - target) / np.where(deriv > 0, deriv, np.inf), w0, w1)
+        return self._speed(w, self.v_max[:, 0])
 
     def after_accelerating(self, speed, length):
         """Speed after accelerating flat out over ``length`` (m) from ``speed``."""
@@ -818,7 +839,7 @@ def lap_times(vehicle: Vehicle, track: Track, cla_front, cla_rear, cda, nodes=TA
     acceleration and braking between the caps, speed the lower of the two.
     Instead of integrating metre by metre, the distance and time to reach each
     speed are tabulated once per configuration (three-point Gauss-Legendre
-    quadrature on about 50 speeds, finer towards the top speed, with the
+    quadrature on about 60 speeds, finer towards the top speed, with the
     traction-to-power and grip-to-brake kinks as nodes) and each segment is
     solved from them (see the comment above :class:`_SpeedTables`). Agrees with
     :func:`lap_time` at 0.25 m steps to about 1e-5 s on a 40-60 s lap
@@ -833,8 +854,8 @@ def lap_times(vehicle: Vehicle, track: Track, cla_front, cla_rear, cda, nodes=TA
         CLA at the front and rear axle (m^2, negative for downforce) and CDA
         (m^2, >= 0); broadcast against each other.
     nodes : (int, int)
-        Table nodes uniform in speed and towards the top speed (accuracy
-        against cost; the default is about 1e-5 s on a 60 s lap).
+        Table nodes uniform in speed and geometric towards the top speed
+        (accuracy against cost; the default gives a few 1e-6 s on a 60 s lap).
 
     Returns
     -------

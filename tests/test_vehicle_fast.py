@@ -8,8 +8,8 @@ from scipy.optimize import brentq, minimize_scalar
 
 from doe.errors import DoeError
 from doe.vehicle import (G, Aero, Segment, Track, Vehicle, VehicleLimit, VehicleObjective, balance_change,
-                         balance_shift, corner_speeds, front_load_share, lap_time, lap_times, normal_moments,
-                         top_speed, top_speeds)
+                         balance_shift, corner_speed, corner_speeds, front_load_share, lap_time, lap_times,
+                         normal_moments, top_speed, top_speeds)
 
 from test_vehicle import RHO, car, corner_heavy, grip_limited_hand_case  # the same test car, tracks, hand case
 
@@ -52,6 +52,21 @@ def test_fast_lap_equals_step_model(kw, aero):
     fast = lap_times(v, corner_heavy(), *aero)
     slow = lap_time(v, Aero(*aero), corner_heavy(), step_m=0.25).time_s
     assert fast == pytest.approx(slow, abs=5e-5)
+
+
+def test_fast_lap_on_an_awkward_track():
+    # corners back to back, straights back to back, a 5 m straight, a corner taken flat out (300 m radius with
+    # heavy downforce: corner speed above the 54.6 m/s top speed) and long straights ending near the top speed;
+    # same model, same tolerance argument as above (the step model at 0.25 m is within 4e-6 s of 0.1 m here)
+    v = Vehicle(mass_kg=1100.0, tyre_mu=1.3, power_kw=120.0, rolling_resistance=0.012, drive="rear",
+                brake_limit_g=1.1)
+    track = Track((Segment.corner(15, angle_deg=180), Segment.corner(120, angle_deg=40), Segment("straight", 30),
+                   Segment("straight", 400), Segment.corner(300, angle_deg=20), Segment.corner(20, angle_deg=90),
+                   Segment("straight", 5), Segment.corner(60, angle_deg=70), Segment("straight", 700)))
+    aero = (-1.0, -1.5, 1.1)
+    assert corner_speed(v, Aero(*aero), 300.0) > top_speed(v, Aero(*aero))
+    slow = lap_time(v, Aero(*aero), track, step_m=0.25).time_s
+    assert lap_times(v, track, *aero) == pytest.approx(slow, abs=5e-5)
 
 
 def test_fast_lap_shapes_and_hand_case():
