@@ -534,9 +534,9 @@ def lap_time(vehicle: Vehicle, aero: Aero, track: Track, step_m: float = 1.0) ->
 #     D_a(v_p) - D_a(v_0) + D_b(v_p) - D_b(v_1) = length,   t = T_a(v_p) - T_a(v_0) + T_b(v_p) - T_b(v_1)
 # (with a stretch at the segment's speed cap when v_p would exceed it).
 
-#: Gauss-Legendre nodes and weights on [0, 1], three points (exact for polynomials up to degree 5).
-_GL_X = np.array([0.5 - math.sqrt(15.0) / 10.0, 0.5, 0.5 + math.sqrt(15.0) / 10.0])
-_GL_W = np.array([5.0, 8.0, 5.0]) / 18.0
+#: Gauss-Legendre nodes and weights on [0, 1], two points (exact for polynomials up to degree 3).
+_GL_X = np.array([0.5 - 0.5 / math.sqrt(3.0), 0.5 + 0.5 / math.sqrt(3.0)])
+_GL_W = np.array([0.5, 0.5])
 
 
 #: Nodes of the speed tables per configuration (uniform in speed, and geometric towards the top
@@ -589,9 +589,15 @@ class _RowSearch:
 
     def __call__(self, y: np.ndarray) -> np.ndarray:
         """Per row i, the flat index ``i M + j`` of the interval ``table[i, j] <= y[i] < table[i, j+1]``
-        (j clipped to [0, M-2])."""
-        k = np.searchsorted(self.flat, y - self.low + self.shift, side="right") - 1 - self.start
-        return self.start + np.clip(k, 0, self.m - 2)
+        (j clipped to [0, M-2]); ``y`` has one row per table row and any further axes."""
+        low, shift, start = (_rows(a, y) for a in (self.low, self.shift, self.start))
+        k = np.searchsorted(self.flat, y - low + shift, side="right") - 1 - start
+        return start + np.clip(k, 0, self.m - 2)
+
+
+def _rows(a: np.ndarray, like: np.ndarray) -> np.ndarray:
+    """``a`` (one value per row) shaped to broadcast against ``like`` (rows on axis 0)."""
+    return a.reshape((-1,) + (1,) * (np.ndim(like) - 1))
 
 
 def top_speeds(vehicle: Vehicle, cla_front, cla_rear, cda) -> np.ndarray:
@@ -768,9 +774,12 @@ class _SpeedTables:
         return (self.v_max if v_max is None else v_max) * -np.expm1(-w)
 
     def at(self, speed):
-        """``(w of the speed clipped to the rows' span, flat index of its interval)``: what the look-ups take."""
-        s = np.clip(speed, self.v[:, 0], self.v_top)
-        w = -np.log1p(-s / self.v_max[:, 0])
+        """``(w of the speed clipped to the rows' span, flat index of its interval)``: what the look-ups take.
+
+        ``speed`` (m/s) has one row per configuration and any further axes (e.g. segments).
+        """
+        s = np.clip(speed, _rows(self.v[:, 0], speed), _rows(self.v_top, speed))
+        w = -np.log1p(-s / _rows(self.v_max[:, 0], speed))
         return w, self.find["w"](w)
 
     def _hermite_at(self, x_name, y_name, slope_name, x, k):
@@ -796,12 +805,13 @@ class _SpeedTables:
         interpolant in w (accurate near the top speed, where v^2 is not).
         """
         table = {"a": self.Da, "b": self.Db, "ab": self.Dab}[key]
-        target = np.clip(target, table[:, 0], table[:, -1])
+        target = np.clip(target, _rows(table[:, 0], target), _rows(table[:, -1], target))
         k = self.find[key](target)
         f = self.flat
         u = np.clip(self._hermite_at(key, "u", "du_" + key, target, k), f["u"][k], f["u"][k + 1])
         w0, w1 = f["w"][k], f["w"][k + 1]
-        w = np.clip(-np.log1p(-np.sqrt(u) / self.v_max[:, 0]), w0, w1)
+        v_max = _rows(self.v_max[:, 0], target)
+        w = np.clip(-np.log1p(-np.sqrt(u) / v_max), w0, w1)
         slope = {"a": "dDa", "b": "dDb", "ab": "dDab"}[key]
         h = w1 - w0
         for _ in range(2):
@@ -809,7 +819,7 @@ class _SpeedTables:
             value = _hermite(t, h, f[key][k], f[key][k + 1], f[slope][k], f[slope][k + 1])
             deriv = _hermite_slope(t, h, f[key][k], f[key][k + 1], f[slope][k], f[slope][k + 1])
             w = np.clip(w - (value - target) / np.where(deriv > 0, deriv, np.inf), w0, w1)
-        return self._speed(w, self.v_max[:, 0])
+        return self._speed(w, v_max)
 
     def after_accelerating(self, speed, length):
         """Speed after accelerating flat out over ``length`` (m) from ``speed``."""
@@ -820,8 +830,11 @@ class _SpeedTables:
         return self._speed_at("b", self.distance(self.at(speed), True) + length)
 
     def segment_time(self, v_start, v_end, cap, length):
-        """Time (s) over ``length`` (m) from ``v_start`` to ``v_end``: accelerate, hold ``cap``, brake."""
-        cap = np.clip(cap, self.v[:, 0], self.v_top)
+        """Time (s) over ``length`` (m) from ``v_start`` to ``v_end``: accelerate, hold ``cap``, brake.
+
+        Arrays with one row per configuration and a column per segment (or one value per row).
+        """
+        cap = np.clip(cap, _rows(self.v[:, 0], cap), _rows(self.v_top, cap))
         start, end, top = self.at(v_start), self.at(v_end), self.at(cap)
         target = length + self.distance(start, False) + self.distance(end, True)
         held = self.distance(top, False) + self.distance(top, True)
@@ -875,21 +888,21 @@ def lap_times(vehicle: Vehicle, track: Track, cla_front, cla_rear, cda, nodes=TA
     v_low = np.minimum(np.min(list(corners.values()), axis=0), v_max) * (1.0 - 1e-3)
     tab = _SpeedTables(vehicle, cf, cr, cd, v_max, v_low, nodes)
     caps = np.column_stack([np.minimum(corners[i], tab.v_top) if i in corners else tab.v_top for i in range(n_seg)])
-    lengths = [s.length_m for s in segs]
+    lengths = np.array([s.length_m for s in segs])
     # node k is where segment k starts; it obeys the caps of both segments that meet there
     node_cap = np.minimum(caps, np.roll(caps, 1, axis=1))
     fwd, bwd = node_cap.copy(), node_cap.copy()
-    # two laps of each sweep: the first fixes every node after the slowest one, the second the rest
-    for step in range(2 * n_seg):
-        k = step % n_seg
-        nxt = (k + 1) % n_seg
-        fwd[:, nxt] = np.minimum(fwd[:, nxt], tab.after_accelerating(fwd[:, k], lengths[k]))
-        kb = (n_seg - 1 - step) % n_seg
-        bwd[:, kb] = np.minimum(bwd[:, kb], tab.before_braking(bwd[:, (kb + 1) % n_seg], lengths[kb]))
+    # each row's sweeps start at its slowest node, where both sweeps equal the cap (no curve from a point
+    # at least as fast can undercut it), so one lap of each sweep settles every node
+    rows = np.arange(len(cf))
+    order = (np.argmin(node_cap, axis=1)[:, None] + np.arange(n_seg + 1)) % n_seg
+    for j in range(n_seg):
+        a, b = order[:, j], order[:, j + 1]                       # forward over segment a
+        fwd[rows, b] = np.minimum(fwd[rows, b], tab.after_accelerating(fwd[rows, a], lengths[a]))
+        a, b = order[:, n_seg - j - 1], order[:, n_seg - j]       # backward over segment a
+        bwd[rows, a] = np.minimum(bwd[rows, a], tab.before_braking(bwd[rows, b], lengths[a]))
     v = np.minimum(fwd, bwd)
-    total = np.zeros(len(cf))
-    for k in range(n_seg):
-        total += tab.segment_time(v[:, k], v[:, (k + 1) % n_seg], caps[:, k], lengths[k])
+    total = np.sum(tab.segment_time(v, np.roll(v, -1, axis=1), caps, lengths), axis=1)
     return total.reshape(shape)
 
 
