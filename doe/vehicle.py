@@ -851,7 +851,7 @@ def lap_times(vehicle: Vehicle, track: Track, cla_front, cla_rear, cda, nodes=TA
     :func:`corner_speed`, straights at :func:`top_speed`, flat-out
     acceleration and braking between the caps, speed the lower of the two.
     Instead of integrating metre by metre, the distance and time to reach each
-    speed are tabulated once per configuration (three-point Gauss-Legendre
+    speed are tabulated once per configuration (two-point Gauss-Legendre
     quadrature on about 60 speeds, finer towards the top speed, with the
     traction-to-power and grip-to-brake kinks as nodes) and each segment is
     solved from them (see the comment above :class:`_SpeedTables`). Agrees with
