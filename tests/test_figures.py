@@ -105,3 +105,13 @@ def test_bars_from_zero_and_as_differences(tmp_path, captured):
     assert lo < -0.36 and hi >= 0.0                    # the whole bar and zero are in view
     assert ax.get_ylabel() == "lap time minus now [s]"
     assert [t.get_text() for t in ax.texts] == ["-0.36 ± 0.03", "-0.34 ± 0.02"]
+
+
+def test_balance_lines_caption_follows_the_shares(tmp_path, captured):
+    # statics by hand: a front share of 0.587 against 0.616 at rest is 2.9 points below -> towards understeer
+    fig = F.balance_lines(["now", "pick"], [100.0, 150.0, 200.0], [[0.606, 0.598, 0.587], [0.60, 0.58, 0.557]],
+                          0.6157, tmp_path)
+    assert "now 2.9 points below" in fig.caption and "pick 5.9 points below" in fig.caption
+    ax = captured[-1].axes[0]
+    assert ax.lines[1].get_ydata()[-1] == pytest.approx(58.7)
+    assert F.markers_outside(captured[-1]) == []

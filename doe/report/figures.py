@@ -17,8 +17,8 @@ import numpy as np
 from .style import PALETTE, new_figure, save
 
 __all__ = ["Figure", "plan_pairs", "loo_scatter", "sobol_bars", "main_effects", "response_map", "tradeoff_plot",
-           "vehicle_bars", "difference_bars", "grid_points", "format_with_interval", "markers_outside",
-           "non_dominated_2d"]
+           "vehicle_bars", "difference_bars", "balance_lines", "grid_points", "format_with_interval",
+           "markers_outside", "non_dominated_2d"]
 
 
 @dataclass
@@ -482,3 +482,53 @@ def difference_bars(labels, values, unit: str, title: str, file: str, folder: Pa
     ax.set_xlabel("configuration")
     save(fig, folder / file)
     return Figure(file, title, caption)
+
+
+def balance_lines(labels, speeds_kph, front_shares, static_share: float, folder: Path,
+                  file: str = "balance.png") -> Figure:
+    """The front axle's share of the car's load against speed, one line per configuration.
+
+    Parameters
+    ----------
+    labels : sequence of str
+        Names of the configurations (e.g. as the car runs now, the pick).
+    speeds_kph : sequence of float
+        Speeds, km/h.
+    front_shares : sequence of sequence of float
+        Front axle's share of the whole vertical load at each speed, per
+        configuration, - (``VehicleFigures.front_load_share``).
+    static_share : float
+        The share at rest, -.
+    folder : Path
+    file : str
+
+    Returns
+    -------
+    Figure
+        The caption says which way each configuration moves the balance at the
+        highest speed (below the share at rest: towards understeer).
+    """
+    speeds = np.asarray(speeds_kph, dtype=float)
+    fig, ax = new_figure(5.4, 3.6)
+    colours = {1: [PALETTE["pick"]], 2: [PALETTE["muted"], PALETTE["pick"]],
+               3: [PALETTE["muted"], PALETTE["nominal"], PALETTE["pick"]]}.get(len(labels))
+    ax.axhline(100.0 * static_share, color=PALETTE["ink"], lw=1.0, ls="--", label="at rest")
+    ax.annotate("below: towards understeer", (1.0, 100.0 * static_share), xycoords=("axes fraction", "data"),
+                xytext=(-4, -4), textcoords="offset points", ha="right", va="top", fontsize=8,
+                color=PALETTE["ink"])
+    words = []
+    for i, (label, share) in enumerate(zip(labels, front_shares)):
+        share = 100.0 * np.asarray(share, dtype=float)
+        ax.plot(speeds, share, "-o", ms=4, lw=1.6, color=None if colours is None else colours[i], label=label)
+        shift = share[-1] - 100.0 * static_share
+        words.append(f"{label} {abs(shift):.1f} points {'below' if shift < 0 else 'above'}")
+    ax.margins(x=0.06, y=0.25)
+    ax.set_xlabel("speed [km/h]")
+    ax.set_ylabel("front axle share of the load [%]")
+    ax.legend(loc="best")
+    save(fig, folder / file)
+    return Figure(file, "Handling balance at speed",
+                  "The front axle's share of the car's whole vertical load (weight plus aero load) as speed rises. "
+                  "Below the share at rest the aero load favours the rear: the car moves towards understeer at "
+                  "speed; above it, towards oversteer (same tyres front and rear assumed). At "
+                  f"{speeds[-1]:.0f} km/h: " + "; ".join(words) + ".")
