@@ -1179,6 +1179,24 @@ class VehicleObjective:
     figure_names : tuple of str
         Figures :meth:`figures` gives by default: the lap time (with a track),
         top speed, balance figures, and the corner speeds the limits name.
+
+    Notes
+    -----
+    Use in a search over settings ``X`` (surrogates of CLA front, CLA rear and
+    CDA): on the surrogate means, ``figures(cf, cr, cd)``; under setup scatter,
+    ``draws(cf_draws, cr_draws, cd_draws, stds=...)`` gives each figure at each
+    scattered setting with the surrogate's std there (the layout of a
+    response's draws, so limits and probabilities are handled as for a
+    response); for one setting's figures with the surrogate's uncertainty,
+    ``normal(means, stds)``. Costs: about 7 lap simulations per candidate for
+    ``draws`` and ``linearised``, 6 for ``normal``; a lap simulation costs tens
+    of microseconds in a batch (``benchmarks/bench_lap.py``). CDA below 0 is
+    refused by :meth:`figures`; clip surrogate means first.
+
+    A point-mass model: the lap time says what downforce and drag are worth,
+    not whether the car can be driven there. Keep a balance window among the
+    limits, and try any new setting progressively: aero changes alter the
+    car's handling at speed.
     """
 
     def __init__(self, vehicle: Vehicle, track: Track | None = None, *, balance_speed_kph: float = 150.0,
@@ -1253,43 +1271,68 @@ class VehicleObjective:
         return {name: (v[0], np.stack([(v[1 + 2 * i] - v[2 + 2 * i]) / (2 * h) for i in range(3)], axis=-1))
                 for name, v in out.items()}
 
-    def spread(self, cla_front, cla_rear, cda, names=None, exact: bool = False) -> dict:
-        """Mean and standard deviation (ddof 1) over the last axis of draws of the aero coefficients.
+    def draws(self, cla_front, cla_rear, cda, stds=None, names=None, exact: bool = False) -> dict:
+        """Figures at each draw of the aero coefficients, with the surrogate's uncertainty carried through.
 
-        Meant for setup scatter: ``draws[i, j]`` is the surrogate mean at the
-        j-th scattered setting around candidate i (shape ``(m, n)``, m^2).
+        Meant for setup scatter: ``cla_front[i, j]`` is the surrogate mean at the
+        j-th scattered setting around candidate i (shape ``(m, n)``, m^2); the
+        result has the layout of the responses' draws in a robust search, so a
+        figure can be handled like one more response.
 
         Parameters
         ----------
         cla_front, cla_rear, cda : array_like, shape (m, n)
+            Surrogate means at the draws, m^2.
+        stds : (array_like, array_like, array_like), optional
+            Surrogate standard deviations at the draws, m^2, same shape; taken
+            as independent. Without them the figures' std is 0.
         names : sequence of str, optional
         exact : bool
             True evaluates every draw (``m n`` configurations); False (default)
             evaluates the figures and their slopes at each candidate's mean draw
-            and moves them linearly to the draws (7 configurations per candidate).
-            The scatter in the aero coefficients is small against the scale on
-            which lap time bends, so the two agree closely
+            and moves them linearly to the draws (7 configurations per
+            candidate). The scatter in the aero coefficients is small against
+            the scale on which the figures bend, so the two agree closely
             (``tests/test_vehicle_fast.py``); use ``exact`` when it is not.
+
+        Returns
+        -------
+        dict of str to (ndarray, ndarray)
+            ``{figure: (values, std)}``, each of shape ``(m, n)``, figure unit:
+            the figure at each draw and the surrogate's std of it there
+            (``sqrt(sum_i (d figure / d c_i)^2 s_i^2)``, slopes at the candidate's
+            mean draw).
+        """
+        draws = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (cla_front, cla_rear, cda)))
+        if draws[0].ndim < 1:
+            raise DoeError("vehicle: draws need a last axis of draws")
+        centre = [d.mean(axis=-1) for d in draws]
+        lin = self.linearised(*centre, names)
+        delta = np.stack([d - c[..., None] for d, c in zip(draws, centre)], axis=-1)      # (m, n, 3)
+        exact_values = self.figures(*draws[:2], np.maximum(draws[2], 0.0), names) if exact else None
+        sig = None if stds is None else np.stack(np.broadcast_arrays(*(np.asarray(x, dtype=float) for x in stds),
+                                                                     draws[0])[:3], axis=-1)
+        out = {}
+        for name, (value, slope) in lin.items():
+            values = (exact_values[name] if exact else
+                      value[..., None] + np.einsum("...nk,...k->...n", delta, slope))
+            std = (np.zeros_like(values) if sig is None else
+                   np.sqrt(np.einsum("...nk,...k->...n", sig**2, slope**2)))
+            out[name] = (values, std)
+        return out
+
+    def spread(self, cla_front, cla_rear, cda, names=None, exact: bool = False) -> dict:
+        """Mean and standard deviation (ddof 1) over the last axis of :meth:`draws`.
 
         Returns
         -------
         dict of str to (ndarray, ndarray)
             ``{figure: (mean, std)}`` of shape ``(m,)``, figure unit.
         """
-        draws = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (cla_front, cla_rear, cda)))
-        if draws[0].ndim < 1 or draws[0].shape[-1] < 2:
+        if np.shape(cla_front)[-1:] in ((), (0,), (1,)):
             raise DoeError("vehicle: spread needs at least two draws along the last axis")
-        if exact:
-            out = self.figures(*draws, names)
-            return {name: (v.mean(axis=-1), v.std(axis=-1, ddof=1)) for name, v in out.items()}
-        centre = [d.mean(axis=-1) for d in draws]
-        lin = self.linearised(*centre, names)
-        delta = np.stack([d - c[..., None] for d, c in zip(draws, centre)], axis=-1)      # (m, n, 3)
-        out = {}
-        for name, (value, slope) in lin.items():
-            moved = value[..., None] + np.einsum("...nk,...k->...n", delta, slope)
-            out[name] = (moved.mean(axis=-1), moved.std(axis=-1, ddof=1))
-        return out
+        out = self.draws(cla_front, cla_rear, cda, names=names, exact=exact)
+        return {name: (v.mean(axis=-1), v.std(axis=-1, ddof=1)) for name, (v, _) in out.items()}
 
     def normal(self, means, stds, names=None) -> dict:
         """Mean and standard deviation of each figure when CLA front, CLA rear and CDA are independent normals.

@@ -277,3 +277,19 @@ def test_linearised_spread_matches_every_draw():
     value, slope = obj.linearised(0.1, -0.4, 0.72, names=["lap_time_s"])["lap_time_s"]
     forward = (obj.lap_time(0.1, -0.4, 0.721) - value) / 1e-3
     assert slope[2] > 0 and slope[1] > 0 and slope[2] == pytest.approx(float(forward), rel=0.02)
+
+
+def test_draws_carry_the_surrogate_std_linearly():
+    # with no scatter at all, the figure's std from the surrogate stds is the first-order (delta-method) one,
+    # sqrt(sum (dF/dc_i)^2 s_i^2), which the unscented transform matches for small stds (Julier & Uhlmann 2004)
+    v = car(rolling_resistance=0.012, drive="front", brake_limit_g=1.3)
+    obj = VehicleObjective(v, corner_heavy())
+    c = np.array([0.1, -0.4, 0.72])
+    s = np.array([0.004, 0.006, 0.002])
+    same = [np.full((1, 4), x) for x in c]
+    out = obj.draws(*same, stds=[np.full((1, 4), x) for x in s], names=["lap_time_s"])["lap_time_s"]
+    assert np.ptp(out[0]) == 0.0 and np.ptp(out[1]) == 0.0
+    ut = obj.normal(c, s, names=["lap_time_s"])["lap_time_s"]
+    assert out[1][0, 0] == pytest.approx(float(ut[1]), rel=0.02)
+    with pytest.raises(DoeError):
+        obj.spread(*[np.full((2, 1), x) for x in c])
