@@ -26,6 +26,7 @@ function                    result
 :func:`balance_shift`       that share minus the static one (+ towards oversteer)
 :func:`balance_change`      which way the balance moves between two configurations,
                             in plain words
+:func:`fastest_corner_kph`  speed of the track's fastest corner (where to compare)
 :class:`VehicleObjective`   figures, limits and their propagation for a search
 ==========================  ====================================================
 
@@ -62,7 +63,7 @@ __all__ = ["G", "RHO_SEA_LEVEL", "DRIVES", "Vehicle", "Aero", "Segment", "Track"
            "axle_loads", "corner_speed", "top_speed", "lap_time", "LapResult", "VehicleFigures",
            "vehicle_figures", "compare_figures", "top_speeds", "corner_speeds", "lap_times",
            "front_load_share", "balance_shift", "BalanceChange", "balance_change", "FIGURE_UNITS", "figure_unit",
-           "VehicleLimit", "normal_moments", "VehicleObjective"]
+           "VehicleLimit", "normal_moments", "VehicleObjective", "fastest_corner_kph"]
 
 #: Standard gravity, m/s^2 (ISO 80000-3).
 G = 9.80665
@@ -881,7 +882,11 @@ def lap_times(vehicle: Vehicle, track: Track, cla_front, cla_rear, cda, nodes=TA
     """
     shape = np.broadcast_shapes(*(np.shape(a) for a in (cla_front, cla_rear, cda)))
     cf, cr, cd = _aero_arrays(cla_front, cla_rear, cda)
-    v_max = top_speeds(vehicle, cf, cr, cd)
+    return _lap_times(vehicle, track, cf, cr, cd, top_speeds(vehicle, cf, cr, cd), nodes).reshape(shape)
+
+
+def _lap_times(vehicle: Vehicle, track: Track, cf, cr, cd, v_max, nodes=TABLE_NODES) -> np.ndarray:
+    """:func:`lap_times` of flat, checked aero arrays whose top speeds ``v_max`` (m/s) are known."""
     segs = track.segments
     n_seg = len(segs)
     corners = {i: corner_speeds(vehicle, cf, cr, s.radius_m) for i, s in enumerate(segs) if s.kind == "corner"}
@@ -902,8 +907,7 @@ def lap_times(vehicle: Vehicle, track: Track, cla_front, cla_rear, cda, nodes=TA
         a, b = order[:, n_seg - j - 1], order[:, n_seg - j]       # backward over segment a
         bwd[rows, a] = np.minimum(bwd[rows, a], tab.before_braking(bwd[rows, b], lengths[a]))
     v = np.minimum(fwd, bwd)
-    total = np.sum(tab.segment_time(v, np.roll(v, -1, axis=1), caps, lengths), axis=1)
-    return total.reshape(shape)
+    return np.sum(tab.segment_time(v, np.roll(v, -1, axis=1), caps, lengths), axis=1)
 
 
 # ---------------------------------------------------------------------------
@@ -1034,6 +1038,17 @@ def balance_change(vehicle: Vehicle, before: Aero, after: Aero, speed_kph: float
                 f"at rest): " + (f"{points:.1f} points {where} at the front, so {effect}." if direction != "unchanged"
                                  else f"a change under {100 * unchanged_below:.1f} points, {effect}."))
     return BalanceChange(float(speed_kph), vehicle.static_front_share, share[0], share[1], change, direction, sentence)
+
+
+def fastest_corner_kph(vehicle: Vehicle, aero: Aero, track: Track) -> float:
+    """Quasi-steady speed of the track's fastest corner for ``aero`` (capped at the top speed), km/h.
+
+    Where the handling balance at speed matters most on this track: a natural
+    ``speed_kph`` for :func:`balance_change` and ``balance_speed_kph`` for
+    :class:`VehicleObjective`.
+    """
+    radius = max(s.radius_m for s in track.segments if s.kind == "corner")
+    return min(corner_speed(vehicle, aero, radius), top_speed(vehicle, aero)) * 3.6
 
 
 # ---------------------------------------------------------------------------
@@ -1227,13 +1242,17 @@ class VehicleObjective:
         names = self.figure_names if names is None else tuple(names)
         shape = np.broadcast_shapes(*(np.shape(a) for a in (cla_front, cla_rear, cda)))
         cf, cr, cd = _aero_arrays(cla_front, cla_rear, cda)
-        out, vmax = {}, None
         for name in names:
             figure_unit(name)
+        out = {}
+        speeds = [n for n in names if n in ("lap_time_s", "top_speed_kph") or _CORNER_FIGURE.fullmatch(n)]
+        vmax = top_speeds(self.vehicle, cf, cr, cd) if speeds else None
+        for name in names:
             if name == "lap_time_s":
-                out[name] = self.lap_time(cf, cr, cd)
+                if self.track is None:
+                    raise DoeError("vehicle: lap time needs a track")
+                out[name] = _lap_times(self.vehicle, self.track, cf, cr, cd, vmax)
             elif name == "top_speed_kph" or _CORNER_FIGURE.fullmatch(name):
-                vmax = top_speeds(self.vehicle, cf, cr, cd) if vmax is None else vmax
                 if name == "top_speed_kph":
                     out[name] = vmax * 3.6
                 else:

@@ -293,3 +293,11 @@ def test_draws_carry_the_surrogate_std_linearly():
     assert out[1][0, 0] == pytest.approx(float(ut[1]), rel=0.02)
     with pytest.raises(DoeError):
         obj.spread(*[np.full((2, 1), x) for x in c])
+
+
+def test_fastest_corner_speed():
+    # the corner-heavy track's widest corner is 80 m; without aero load V = sqrt(mu g R) (Milliken & Milliken 1995)
+    from doe.vehicle import fastest_corner_kph
+
+    assert fastest_corner_kph(car(), Aero(0.0, 0.0, 0.7), corner_heavy()) == pytest.approx(
+        3.6 * math.sqrt(1.2 * G * 80.0), rel=1e-12)
