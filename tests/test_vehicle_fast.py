@@ -8,8 +8,8 @@ from scipy.optimize import brentq, minimize_scalar
 
 from doe.errors import DoeError
 from doe.vehicle import (G, Aero, Segment, Track, Vehicle, VehicleLimit, VehicleObjective, balance_change,
-                         balance_shift, corner_speed, corner_speeds, front_load_share, lap_time, lap_times,
-                         normal_moments, top_speed, top_speeds)
+                         balance_shift, corner_speed, corner_speeds, fastest_corner_kph, front_load_share, lap_time,
+                         lap_times, normal_moments, top_speed, top_speeds)
 
 from test_vehicle import RHO, car, corner_heavy, grip_limited_hand_case  # the same test car, tracks, hand case
 
@@ -297,7 +297,5 @@ def test_draws_carry_the_surrogate_std_linearly():
 
 def test_fastest_corner_speed():
     # the corner-heavy track's widest corner is 80 m; without aero load V = sqrt(mu g R) (Milliken & Milliken 1995)
-    from doe.vehicle import fastest_corner_kph
-
     assert fastest_corner_kph(car(), Aero(0.0, 0.0, 0.7), corner_heavy()) == pytest.approx(
         3.6 * math.sqrt(1.2 * G * 80.0), rel=1e-12)
