@@ -91,16 +91,21 @@ def oval(straight_m=200.0, radius_m=50.0, arc_m=100.0):
     return Track((Segment("straight", straight_m), Segment("corner", arc_m, radius_m)))
 
 
-def test_lap_time_hand_case_grip_limited():
+def grip_limited_hand_case():
+    """(L, R, arc, V_c, V_p, lap time) of the hand case below; SI units."""
     # Hand-computed: no aero, no rolling loss, power never limiting, drive on all wheels, so the car
     # accelerates and brakes at mu g (Newton, constant acceleration). Corner at V_c = sqrt(mu g R)
     # (Milliken & Milliken 1995); the straight peaks half-way: V_p^2 = V_c^2 + mu g L;
     # t = 2 (V_p - V_c)/(mu g) + arc / V_c.
-    v = car(power_kw=1e9)
     mu_g, L, R, arc = 1.2 * G, 200.0, 50.0, 100.0
     vc = math.sqrt(mu_g * R)
     vp = math.sqrt(vc**2 + mu_g * L)
-    expected = 2 * (vp - vc) / mu_g + arc / vc
+    return L, R, arc, vc, vp, 2 * (vp - vc) / mu_g + arc / vc
+
+
+def test_lap_time_hand_case_grip_limited():
+    v = car(power_kw=1e9)
+    L, R, arc, vc, vp, expected = grip_limited_hand_case()
     lap = lap_time(v, Aero.from_total(0.0, 0.0), oval(L, R, arc), step_m=0.5)
     # exact per cell at constant acceleration; the only error is the cell where the two curves meet
     assert lap.time_s == pytest.approx(expected, rel=1e-4)
@@ -174,3 +179,15 @@ def test_bad_track_input():
         Segment.corner(30.0)
     with pytest.raises(DoeError):
         Segment("corner", 50.0)
+
+
+def test_figures_carry_a_finite_balance_at_zero_net_lift():
+    # front lifting, rear pressed: no net lift, so the aero front share CLA_f/CLA has no value, while the front
+    # axle's share of the whole load is (0.6 W - q 0.12)/W at each speed (statics, hand formula)
+    v = car()
+    f = vehicle_figures(v, Aero(0.12, -0.12, 0.7), speeds_kph=(144.0,), radii_m=(50.0,))
+    q = 0.5 * RHO * 40.0**2
+    assert f.aero_front_share is None
+    assert f.static_front_share == pytest.approx(0.6, rel=1e-15)
+    assert f.balance_shift[0] == pytest.approx(-q * 0.12 / v.weight_n, rel=1e-12)   # towards understeer
+    assert f.to_dict()["balance_shift"] == [f.balance_shift[0]]

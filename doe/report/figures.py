@@ -7,7 +7,9 @@ along a line or a grid for drawing.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
+from decimal import ROUND_HALF_UP, Decimal
 from pathlib import Path
 
 import numpy as np
@@ -15,7 +17,8 @@ import numpy as np
 from .style import PALETTE, new_figure, save
 
 __all__ = ["Figure", "plan_pairs", "loo_scatter", "sobol_bars", "main_effects", "response_map", "tradeoff_plot",
-           "vehicle_bars", "grid_points"]
+           "vehicle_bars", "difference_bars", "balance_lines", "grid_points", "format_with_interval",
+           "markers_outside", "non_dominated_2d"]
 
 
 @dataclass
@@ -36,6 +39,109 @@ class Figure:
 
 def _label(name: str, unit: str) -> str:
     return f"{name} [{unit}]"
+
+
+def _round_half_up(value: float, decimals: int) -> Decimal:
+    """``value`` rounded half away from zero at ``decimals`` places (negative: tens, hundreds...)."""
+    return Decimal(repr(float(value))).quantize(Decimal(1).scaleb(-decimals), rounding=ROUND_HALF_UP)
+
+
+def format_with_interval(value, interval, digits: int = 1, unit: str = "") -> str:
+    """``value ± interval`` with the interval rounded to ``digits`` significant digits and the value
+    rounded to the same decimal place.
+
+    E.g. ``format_with_interval(0.6525, 0.02363)`` gives ``"0.65 ± 0.02"`` and
+    ``format_with_interval(1234.5, 56)`` gives ``"1230 ± 60"``. Rounding is half
+    away from zero on the decimal digits as written. Without a usable interval
+    (None, not finite, or <= 0) the value alone is given to 4 significant
+    digits; without a usable value, ``"–"``.
+
+    Parameters
+    ----------
+    value, interval : float or None
+        Same unit; ``interval`` is a half-width (e.g. one standard deviation).
+    digits : int
+        Significant digits of the interval (1 or 2; the GUM asks for at most two).
+    unit : str
+        Appended after a space when given.
+
+    References
+    ----------
+    JCGM 100:2008, Evaluation of measurement data - Guide to the expression of
+    uncertainty in measurement (GUM), 7.2.6 (memory of the paragraph): quote the
+    uncertainty to at most two significant digits and round the estimate to match.
+    """
+    tail = f" {unit}" if unit else ""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return "–"
+    if not math.isfinite(v):
+        return "–"
+    try:
+        u = float(interval)
+    except (TypeError, ValueError):
+        u = float("nan")
+    if not (math.isfinite(u) and u > 0):
+        return f"{v:.4g}{tail}"
+    decimals = digits - 1 - math.floor(math.log10(u))
+    r = _round_half_up(u, decimals)
+    if r >= Decimal(10) ** (digits - decimals):        # rounding carried into the next digit (0.0096 -> 0.01)
+        decimals -= 1
+        r = _round_half_up(u, decimals)
+    x = _round_half_up(v, decimals)
+    if x == 0:
+        x = abs(x)                                     # no "-0.00"
+    places = max(decimals, 0)
+    return f"{x:.{places}f} ± {r:.{places}f}{tail}"
+
+
+def markers_outside(fig) -> list:
+    """Markers of scatter plots and marked lines that do not lie wholly inside their axes.
+
+    Returns
+    -------
+    list of str
+        One ``"'<axes title>': marker at (x, y)"`` per marker whose disc
+        (its size as drawn) crosses or leaves the axes box; empty when all lie inside.
+    """
+    fig.canvas.draw()
+    bad = []
+    scale = fig.dpi / 72.0
+    for ax in fig.get_axes():
+        if ax.get_label() == "<colorbar>" or not ax.axison:
+            continue
+        box = ax.get_window_extent()
+        pts = []
+        for coll in ax.collections:
+            if not hasattr(coll, "get_sizes"):
+                continue                               # contours, fills: no markers
+            offsets = np.asarray(coll.get_offsets(), dtype=float)
+            sizes = np.asarray(coll.get_sizes(), dtype=float)
+            if not len(offsets) or not len(sizes) or coll.get_offset_transform() != ax.transData:
+                continue
+            radii = 0.5 * np.sqrt(np.resize(sizes, len(offsets))) * scale
+            pts += list(zip(offsets, radii))
+        for line in ax.lines:
+            if line.get_marker() in (None, "None", "", " "):
+                continue
+            xy = np.column_stack([line.get_xdata(), line.get_ydata()]).astype(float)
+            pts += [(p, 0.5 * line.get_markersize() * scale) for p in xy]
+        for (x, y), r in pts:
+            if not (np.isfinite(x) and np.isfinite(y)):
+                continue
+            px, py = ax.transData.transform((x, y))
+            if px - r < box.x0 - 0.5 or px + r > box.x1 + 0.5 or py - r < box.y0 - 0.5 or py + r > box.y1 + 0.5:
+                bad.append(f"'{ax.get_title() or ax.get_label()}': marker at ({x:.4g}, {y:.4g})")
+    return bad
+
+
+def _pad_limits(ax, fraction: float = 0.04) -> None:
+    """Widen the axes by ``fraction`` of their span on each side, so markers at the edge stay inside."""
+    for get, set_ in ((ax.get_xlim, ax.set_xlim), (ax.get_ylim, ax.set_ylim)):
+        lo, hi = get()
+        pad = fraction * (hi - lo)
+        set_(lo - pad, hi + pad)
 
 
 def plan_pairs(study, frame, folder: Path) -> Figure:
@@ -196,7 +302,13 @@ def response_map(name: str, unit: str, predict, space, px: str, py: str, fixed, 
                label="runs (all settings)")
     if pick is not None:
         ax.scatter([pick[px]], [pick[py]], s=90, marker="*", color=PALETTE["pick"], edgecolor="white",
-                   label="recommended")
+                   label="recommended", zorder=5)
+    # a grey margin outside the studied box keeps a marker on a bound wholly inside the axes
+    ax.set_xlim(a.low, a.high)
+    ax.set_ylim(b.low, b.high)
+    _pad_limits(ax)
+    ax.set_facecolor(PALETTE["grid"])
+    ax.grid(False)
     ax.set_xlabel(a.label())
     ax.set_ylabel(b.label())
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=2, fontsize=7.5)
@@ -207,37 +319,216 @@ def response_map(name: str, unit: str, predict, space, px: str, py: str, fixed, 
                   f"Surrogate mean of {name} over its two strongest knobs"
                   + (f", with {', '.join(others)} held at the recommended setting" if others else "")
                   + ". Thin lines are contours of the surrogate's uncertainty; runs are marked wherever their "
-                  "other settings lie.")
+                  "other settings lie; the grey margin lies outside the studied ranges.")
 
 
-def tradeoff_plot(frame, rx: str, ux: str, ry: str, uy: str, folder: Path, points=None) -> Figure:
-    """The non-dominated set of two responses, with the nominal and robust points."""
+def non_dominated_2d(x, y, senses=("minimize", "minimize")) -> np.ndarray:
+    """Which points no other point beats in both coordinates (ties kept), as a boolean mask.
+
+    ``senses`` gives the goal of each coordinate. A point is dominated when
+    another is at least as good in both and better in one (Deb 2001, def. 2.5).
+    """
+    sign = np.array([1.0 if s == "minimize" else -1.0 for s in senses])
+    F = np.column_stack([np.asarray(x, dtype=float), np.asarray(y, dtype=float)]) * sign
+    order = np.lexsort((F[:, 1], F[:, 0]))
+    keep = np.zeros(len(F), dtype=bool)
+    best_y = np.inf
+    last = None
+    for i in order:
+        if last is not None and np.array_equal(F[i], F[last]) and keep[last]:
+            keep[i] = True                             # an equal point shares its twin's fate
+        elif F[i, 1] < best_y:
+            keep[i] = True
+            best_y = F[i, 1]
+        last = i
+    return keep
+
+
+def tradeoff_plot(frame, rx: str, ux: str, ry: str, uy: str, folder: Path, points=None, include=None,
+                  senses=("minimize", "minimize")) -> Figure:
+    """The non-dominated set of two responses, with marked points (e.g. the nominal and robust picks).
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        The trade-off set (columns ``rx`` and ``ry``, surrogate means).
+    rx, ux, ry, uy : str
+        The two responses and their units.
+    folder : Path
+    points : sequence of (label, colour, (x, y)), optional
+        Points to mark with a star; the axes always contain them.
+    include : sequence of (x, y), optional
+        Further candidates for the line (e.g. the picks and each response's
+        extreme, from a refined search): merged with ``frame`` and filtered
+        again, so the line is the best trade-off of all of them.
+    senses : (str, str)
+        ``"minimize"`` or ``"maximize"`` for ``rx`` and ``ry``.
+
+    Returns
+    -------
+    Figure
+        Its caption says which marked points lie on the line and which are
+        beaten in both responses by a point on it.
+    """
     fig, ax = new_figure(5.4, 4.0)
-    f = frame.sort_values(rx)
-    ax.plot(f[rx], f[ry], "-o", ms=3, color=PALETTE["runs"], lw=1.2, label="best trade-offs")
+    xs = np.asarray(frame[rx], dtype=float)
+    ys = np.asarray(frame[ry], dtype=float)
+    if include is not None and len(include):
+        extra = np.asarray(include, dtype=float).reshape(-1, 2)
+        xs, ys = np.concatenate([xs, extra[:, 0]]), np.concatenate([ys, extra[:, 1]])
+    keep = non_dominated_2d(xs, ys, senses)
+    order = np.argsort(xs[keep], kind="stable")
+    line_x, line_y = xs[keep][order], ys[keep][order]
+    ax.plot(line_x, line_y, "-o", ms=3, color=PALETTE["runs"], lw=1.2, label="best trade-offs")
+    off = []
     for label, colour, p in points or []:
         ax.scatter([p[0]], [p[1]], s=80, marker="*", color=colour, zorder=5, label=label)
+        mask = non_dominated_2d(np.append(line_x, p[0]), np.append(line_y, p[1]), senses)
+        if not mask[-1]:
+            off.append(label)
+    ax.margins(0.06)
     ax.set_xlabel(_label(rx, ux))
     ax.set_ylabel(_label(ry, uy))
     ax.legend()
     file = f"tradeoff_{rx}_{ry}.png"
     save(fig, folder / file)
-    return Figure(file, f"Trade-off between {rx} and {ry}",
-                  f"Settings for which no other setting is better in both {rx} and {ry} (surrogate means). "
-                  "Moving along the line buys one at the price of the other.")
+    caption = (f"Settings for which no other setting is better in both {rx} and {ry} (surrogate means). "
+               "Moving along the line buys one at the price of the other.")
+    if off:
+        caption += (f" Off the line: {', '.join(off)}; settings on the line beat "
+                    f"{'it' if len(off) == 1 else 'them'} in both, so {'it was' if len(off) == 1 else 'they were'} "
+                    "chosen for something else (another objective, a limit, or setup scatter).")
+    return Figure(file, f"Trade-off between {rx} and {ry}", caption)
 
 
-def vehicle_bars(labels, values, unit: str, title: str, file: str, folder: Path, caption: str) -> Figure:
-    """Side-by-side bars of one vehicle figure for a few configurations."""
+def _bar_numbers(ax, values, err, sign: bool) -> None:
+    """Write each bar's value (± its interval) just beyond the bar's end and whisker."""
+    for i, v in enumerate(values):
+        e = 0.0 if err is None else float(err[i])
+        text = format_with_interval(v, None if err is None else e)
+        if sign and v > 0 and not text.startswith("-"):
+            text = "+" + text
+        end = v + e if v >= 0 else v - e
+        ax.annotate(text, (i, end), xytext=(0, 3 if v >= 0 else -3), textcoords="offset points", ha="center",
+                    va="bottom" if v >= 0 else "top", fontsize=8.5)
+
+
+def vehicle_bars(labels, values, unit: str, title: str, file: str, folder: Path, caption: str,
+                 intervals=None) -> Figure:
+    """Side-by-side bars of one vehicle figure for a few configurations, from zero.
+
+    ``intervals`` (same unit, optional) are drawn as whiskers and set the
+    rounding of the numbers on the bars (:func:`format_with_interval`). For
+    figures whose differences are small against their size (lap time), show
+    :func:`difference_bars` instead: a bar from zero shows the size honestly but
+    hides the difference.
+    """
+    values = np.asarray(values, dtype=float)
+    err = None if intervals is None else np.asarray(intervals, dtype=float)
     fig, ax = new_figure(4.6, 3.0)
     colours = [PALETTE["muted"], PALETTE["nominal"], PALETTE["pick"]][-len(labels):]
-    ax.bar(labels, values, color=colours)
-    lo = min(values)
-    hi = max(values)
-    ax.set_ylim(lo - 0.3 * (hi - lo or abs(hi) * 0.05 or 1), hi + 0.3 * (hi - lo or abs(hi) * 0.05 or 1))
-    for i, v in enumerate(values):
-        ax.annotate(f"{v:.2f}", (i, v), ha="center", va="bottom", fontsize=8.5)
+    x = np.arange(len(labels))
+    ax.bar(x, values, color=colours, yerr=err, ecolor=PALETTE["ink"], capsize=4)
+    ax.set_xticks(x, labels)
+    top = float(np.max(values + (err if err is not None else 0.0), initial=0.0))
+    bottom = float(np.min(values - (err if err is not None else 0.0), initial=0.0))
+    ax.set_ylim(min(bottom * 1.15, 0.0), max(top * 1.15, 0.0) or 1.0)
+    ax.axhline(0.0, color=PALETTE["ink"], lw=0.8)
+    _bar_numbers(ax, values, err, sign=False)
     ax.set_ylabel(f"{title} [{unit}]")
     ax.set_xlabel("configuration")
     save(fig, folder / file)
     return Figure(file, title, caption)
+
+
+def difference_bars(labels, values, unit: str, title: str, file: str, folder: Path, caption: str,
+                    reference: int = 0, intervals=None) -> Figure:
+    """Bars of each configuration's difference from a reference one (e.g. the car as it runs now).
+
+    Parameters
+    ----------
+    labels : sequence of str
+        Names of the configurations.
+    values : sequence of float
+        The figure for each, ``unit``.
+    unit, title, file, folder, caption
+        As :func:`vehicle_bars`; the axis reads ``<title> minus <reference label> [unit]``.
+    reference : int
+        Index of the configuration the others are compared with (not drawn).
+    intervals : sequence of float, optional
+        Half-widths of each difference (e.g. one standard deviation), ``unit``:
+        whiskers, and the rounding of the numbers on the bars.
+
+    Returns
+    -------
+    Figure
+    """
+    values = np.asarray(values, dtype=float)
+    others = [i for i in range(len(values)) if i != reference]
+    diff = values[others] - values[reference]
+    err = None if intervals is None else np.asarray(intervals, dtype=float)[others]
+    fig, ax = new_figure(4.6, 3.0)
+    colours = [PALETTE["nominal"], PALETTE["pick"]][-len(others):] if len(others) <= 2 else PALETTE["pick"]
+    x = np.arange(len(others))
+    ax.bar(x, diff, color=colours, yerr=err, ecolor=PALETTE["ink"], capsize=4, width=0.55)
+    ax.set_xticks(x, [labels[i] for i in others])
+    ax.axhline(0.0, color=PALETTE["ink"], lw=0.8)
+    reach = np.abs(diff) + (err if err is not None else 0.0)
+    span = float(np.max(reach, initial=0.0)) or 1.0
+    ax.set_ylim(min(float(np.min(diff - (err if err is not None else 0.0))), 0.0) - 0.25 * span,
+                max(float(np.max(diff + (err if err is not None else 0.0))), 0.0) + 0.25 * span)
+    _bar_numbers(ax, diff, err, sign=True)
+    ax.set_ylabel(f"{title} minus {labels[reference]} [{unit}]")
+    ax.set_xlabel("configuration")
+    save(fig, folder / file)
+    return Figure(file, title, caption)
+
+
+def balance_lines(labels, speeds_kph, front_shares, static_share: float, folder: Path,
+                  file: str = "balance.png") -> Figure:
+    """The front axle's share of the car's load against speed, one line per configuration.
+
+    Parameters
+    ----------
+    labels : sequence of str
+        Names of the configurations (e.g. as the car runs now, the pick).
+    speeds_kph : sequence of float
+        Speeds, km/h.
+    front_shares : sequence of sequence of float
+        Front axle's share of the whole vertical load at each speed, per
+        configuration, - (``VehicleFigures.front_load_share``).
+    static_share : float
+        The share at rest, -.
+    folder : Path
+    file : str
+
+    Returns
+    -------
+    Figure
+        The caption says which way each configuration moves the balance at the
+        highest speed (below the share at rest: towards understeer).
+    """
+    speeds = np.asarray(speeds_kph, dtype=float)
+    fig, ax = new_figure(5.4, 3.6)
+    colours = {1: [PALETTE["pick"]], 2: [PALETTE["muted"], PALETTE["pick"]],
+               3: [PALETTE["muted"], PALETTE["nominal"], PALETTE["pick"]]}.get(len(labels))
+    ax.axhline(100.0 * static_share, color=PALETTE["ink"], lw=1.0, ls="--", label="at rest")
+    ax.annotate("below: towards understeer", (1.0, 100.0 * static_share), xycoords=("axes fraction", "data"),
+                xytext=(-4, -4), textcoords="offset points", ha="right", va="top", fontsize=8,
+                color=PALETTE["ink"])
+    words = []
+    for i, (label, share) in enumerate(zip(labels, front_shares)):
+        share = 100.0 * np.asarray(share, dtype=float)
+        ax.plot(speeds, share, "-o", ms=4, lw=1.6, color=None if colours is None else colours[i], label=label)
+        shift = share[-1] - 100.0 * static_share
+        words.append(f"{label} {abs(shift):.1f} points {'below' if shift < 0 else 'above'}")
+    ax.margins(x=0.06, y=0.25)
+    ax.set_xlabel("speed [km/h]")
+    ax.set_ylabel("front axle share of the load [%]")
+    ax.legend(loc="best")
+    save(fig, folder / file)
+    return Figure(file, "Handling balance at speed",
+                  "The front axle's share of the car's whole vertical load (weight plus aero load) as speed rises. "
+                  "Below the share at rest the aero load favours the rear: the car moves towards understeer at "
+                  "speed; above it, towards oversteer (same tyres front and rear assumed). At "
+                  f"{speeds[-1]:.0f} km/h: " + "; ".join(words) + ".")
