@@ -44,7 +44,7 @@ from threadpoolctl import threadpool_limits
 from ..errors import AeroError
 from .atmosphere import ISA_DENSITY, ISA_TEMPERATURE, reynolds
 from .car import CarGeometry, body_contour, min_distance, wing_contour
-from .drag import StallLimit, pressure_difference, profile_drag
+from .drag import StallLimit, profile_drag, stall_measure, stall_weights
 from .lifting_line import endplate_aspect_ratio, glauert
 from .panels import Layout, solve_field
 from .sections import naca4
@@ -78,10 +78,17 @@ class Coefficients:
         decambering; measured slopes of 12 % sections are about 0.87 of the
         inviscid ones in Abbott & von Doenhoff's data).
     stall_dcp : float
-        Valarezo-Chin critical pressure difference (about 10 near chord
-        Reynolds number 1e6; memory).
+        Critical value of the stall measure (:func:`doe.aero.drag.stall_measure`:
+        Valarezo-Chin pressure difference plus ``stall_aft_weight`` times the
+        aft pressure recovery). Set with the next three so that NACA 0012,
+        2412, 4412 and 6412 reach c_l,max near Abbott & von Doenhoff's values
+        at Re 3e6 (memory).
+    stall_aft_weight : float
+        Weight of the aft pressure recovery in the stall measure.
     stall_width : float
         Width of the smooth stall limit (fraction of ``stall_dcp``).
+    post_stall_exponent : float
+        Exponent ``p`` of the lift limit ``m^-p`` (1/2: a plateau; more: lift falls past the maximum).
     post_stall_drag : float
         Profile-drag rise past stall per unit of smooth stall excess (model choice).
     lift_drag_factor : float
@@ -98,8 +105,10 @@ class Coefficients:
     base_pressure: float = -0.15
     forebody_cd: float = 0.18
     viscous_lift_factor: float = 0.88
-    stall_dcp: float = 10.5
-    stall_width: float = 0.08
+    stall_dcp: float = 21.0
+    stall_aft_weight: float = 10.0
+    stall_width: float = 0.10
+    post_stall_exponent: float = 0.8
     post_stall_drag: float = 0.05
     lift_drag_factor: float = 0.005
     wing_parasite_cd: float = 0.030
@@ -119,8 +128,10 @@ COEFFICIENT_RANGES = {
     "base_pressure": (-0.4, -0.05),
     "forebody_cd": (0.08, 0.30),
     "viscous_lift_factor": (0.75, 1.0),
-    "stall_dcp": (7.0, 15.0),
+    "stall_dcp": (12.0, 35.0),
+    "stall_aft_weight": (0.0, 20.0),
     "stall_width": (0.02, 0.3),
+    "post_stall_exponent": (0.5, 1.5),
     "post_stall_drag": (0.0, 0.2),
     "lift_drag_factor": (0.0, 0.02),
     "wing_parasite_cd": (0.0, 0.05),
@@ -188,7 +199,8 @@ OUTPUTS = {
     "downforce": ("N", "downforce at the study speed, -cla_total q (positive = down)"),
     "drag": ("N", "drag at the study speed, cda_total q"),
     "cl_wing": ("-", "3-D wing lift coefficient on its plan area"),
-    "stall_margin": ("-", "Valarezo-Chin pressure difference over its critical value (stall at 1)"),
+    "stall_margin": ("-", "stall measure (Valarezo-Chin pressure difference plus aft recovery) over its critical "
+                          "value (stall at 1)"),
     "stalled": ("-", "1 when the wing is past the stall criterion, else 0"),
 }
 
@@ -291,7 +303,7 @@ class _WingState:
     cl3d: np.ndarray           # 3-D, viscous, stall-limited lift coefficient
     lifting_line: object       # LiftingLine, for the induced drag
     extra_cd: object           # post-stall profile-drag rise
-    dcp: np.ndarray            # Valarezo-Chin pressure difference
+    dcp: np.ndarray            # stall measure (Valarezo-Chin difference plus aft recovery)
     stalled: np.ndarray
 
 
@@ -381,7 +393,8 @@ class RearPackageModel:
         gap = min_distance(wing, body.nodes)
         if gap < 0.01:
             return f"the wing comes within {gap * 1000:.0f} mm of the body (at least 10 mm needed)"
-        return {"body": body, "wing": wing, "thickness": section.thickness, "p": p}
+        return {"body": body, "wing": wing, "thickness": section.thickness, "p": p,
+                "stall_w": stall_weights(section.points)[:, ::-1]}        # the wing's nodes run backwards
 
     def _solve(self, geoms, keep_cp):
         st, co = self.settings, self.settings.coefficients
@@ -396,8 +409,10 @@ class RearPackageModel:
         sol = solve_field(nodes, layout, ground=st.ground, upwash_body="wing" if st.has_wing else None,
                           static_nodes=static)
         n = len(geoms)
-        ws = self._wing_3d(sol) if st.has_wing else _WingState(np.array([1.0]), np.zeros(n), None, 0.0,
-                                                               np.zeros(n), np.zeros(n, dtype=bool))
+        if st.has_wing:
+            ws = self._wing_3d(sol, np.stack([g["stall_w"] for g in geoms]))
+        else:
+            ws = _WingState(np.array([1.0]), np.zeros(n), None, 0.0, np.zeros(n), np.zeros(n, dtype=bool))
         cp = sol.cp(ws.weights)
         f = self._panel_forces(sol, cp)
         if st.has_wing:                                     # the wing is closed: exact sheet pressures
@@ -413,7 +428,7 @@ class RearPackageModel:
                             for k, name in enumerate(layout.names)})
         return out, cps
 
-    def _wing_3d(self, sol):
+    def _wing_3d(self, sol, stall_w):
         """The field with the wing's circulation brought to its 3-D, viscous, stall-limited value."""
         st, co = self.settings, self.settings.coefficients
         wing = sol.body == 1
@@ -435,11 +450,13 @@ class RearPackageModel:
         # the stall rule reads the inviscid pressures of the 3-D loading, as its authors did
         g1 = sol.node_strength(np.stack([np.ones_like(cl2d), (inviscid - cl2d) / a_w], axis=1))
         start = sol.layout.starts[1]
-        dcp = pressure_difference(1.0 - g1[:, start:start + sol.layout.nodes[1]] ** 2)
-        factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag).apply(dcp)
+        cp_w = 1.0 - g1[:, start:start + sol.layout.nodes[1]] ** 2
+        dcp, measure = stall_measure(cp_w, stall_w, co.stall_aft_weight)
+        factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag,
+                                               co.post_stall_exponent).apply(measure)
         cl3d = target * factor
         weights = np.stack([np.ones_like(cl2d), (cl3d - cl2d) / a_w], axis=1)   # free stream + local upwash
-        return _WingState(weights, cl3d, ll, extra_cd, dcp, stalled)
+        return _WingState(weights, cl3d, ll, extra_cd, measure, stalled)
 
     @staticmethod
     def _panel_forces(sol, cp):

@@ -13,11 +13,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import AeroError
-from .drag import pressure_difference
+from .drag import StallLimit, pressure_difference, stall_measure, stall_weights
 from .panels import Layout, solve_field
 from .sections import Section
 
-__all__ = ["SectionResult", "analyse_section"]
+__all__ = ["SectionResult", "analyse_section", "section_lift_curve"]
 
 
 @dataclass
@@ -44,7 +44,7 @@ class SectionResult:
     x, y, cp : ndarray
         Panel mid-points (chords, section axes before rotation) and pressure coefficients.
     dcp : float
-        Valarezo-Chin pressure difference ``Cp_TE - Cp_min``.
+        Valarezo-Chin pressure difference ``Cp_TE - Cp_min`` (``Cp_TE`` read at 95 % chord).
     """
 
     name: str
@@ -118,6 +118,47 @@ def analyse_section(section: Section, alpha_deg: float, ground_height: float | N
     mid_local = (sol.mid[0] - [0.0, ground_height or 0.0] - quarter) @ rot + quarter
     if inverted:
         mid_local = mid_local * [1.0, -1.0]
-    dcp = float(pressure_difference(1.0 - sol.node_strength() ** 2)[0])
+    dcp = float(pressure_difference(1.0 - sol.node_strength() ** 2, stall_weights(pts))[0])
     return SectionResult(section.name, float(alpha_deg), cl, cl_p, -mz,
                          ground_height, inverted, mid_local[:, 0], mid_local[:, 1], cp[0], dcp)
+
+
+def section_lift_curve(section: Section, alphas, coefficients=None):
+    """Viscous, stall-limited lift curve of a section in free air, as the built-in model treats its wing.
+
+    ``c_l = k_v c_l,inviscid m^-p`` with the stall measure and limit of
+    :mod:`doe.aero.drag` and the coefficients of
+    :class:`doe.aero.model.Coefficients` (``viscous_lift_factor``,
+    ``stall_dcp``, ``stall_aft_weight``, ``stall_width``, ``post_stall_exponent``).
+
+    Parameters
+    ----------
+    section : Section
+    alphas : array_like
+        Angles of attack, degrees (-30 to 30).
+    coefficients : Coefficients, optional
+        Default: the model's defaults.
+
+    Returns
+    -------
+    cl, stall_margin : ndarray
+        Limited lift coefficient and stall measure over its critical value, per angle.
+    """
+    from .model import Coefficients
+
+    co = coefficients or Coefficients()
+    alphas = np.atleast_1d(np.asarray(alphas, dtype=float))
+    if not np.all(np.isfinite(alphas)) or np.any(np.abs(alphas) > 30):
+        raise AeroError("angles of attack must be between -30 and 30 deg")
+    pts = section.points
+    a = np.radians(alphas)
+    sol = solve_field(np.broadcast_to(pts, (len(a),) + pts.shape), Layout(("section",), (len(pts),)))
+    # the geometry stays put and the stream turns: solve_field takes one stream, so superpose the two
+    # unit streams' solutions (the panel equations are linear in the onset flow)
+    sol_v = solve_field(pts, Layout(("section",), (len(pts),)), freestream=(0.0, 1.0))
+    g = np.cos(a)[:, None] * sol.node_strength() + np.sin(a)[:, None] * sol_v.node_strength()
+    circ_u, circ_v = sol.circulation()[0, 0], sol_v.circulation()[0, 0]
+    cl_inv = 2.0 * (np.cos(a) * circ_u + np.sin(a) * circ_v)          # Kutta-Joukowski, chord 1, unit speed
+    _, measure = stall_measure(1.0 - g**2, stall_weights(pts), co.stall_aft_weight)
+    factor, _, _ = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag, co.post_stall_exponent).apply(measure)
+    return co.viscous_lift_factor * cl_inv * factor, measure / co.stall_dcp
