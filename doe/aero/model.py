@@ -97,8 +97,32 @@ class Coefficients:
         Drag coefficient on the wing's plan area of its endplates, supports and
         interference with the body's low-energy flow (common practice, no source).
     critical_slant : float
-        Rear-window slope, degrees, above which the flow leaves at the roof's
-        rear edge (Ahmed, Ramm & Faltin 1984: about 30 degrees).
+        Rear-window slope, degrees, at the middle of the smooth change from
+        flow that follows the window to flow that leaves the roof's rear edge
+        (Ahmed, Ramm & Faltin 1984: about 30 degrees).
+    slant_width : float
+        Width of that change, degrees (logistic in the slope; model choice).
+    slant_vortex_cd : float
+        Drag coefficient, on the frontal area and times ``sin^2`` of the window
+        slope, of the trailing vortices that an attached rear-window flow sheds
+        from the rear pillars; it goes with the attached flow. Set so that the
+        drag rises from a minimum near 12 degrees to a peak near the critical
+        slant (the trend Ahmed, Ramm & Faltin 1984 measured; model choice).
+    relief_length : float
+        Distance, m, over which a change that the flap or the wing makes to the
+        centreline pressures is felt by the 3-D body (weight ``exp(-d / L)``
+        of the change at distance ``d`` from the flap's root or hatch edge).
+        In 2-D such a change moves the whole body's circulation; round a 3-D
+        car it stays local (model choice, about a third of the car's width).
+    flap_fade_chord : float
+        Flap length, m, below which the flow hardly leaves its tip: the tip's
+        share of the separation condition is ``1 - exp(-c / c_fade)`` (a flap
+        buried in the boundary layer does little; model choice of the order of
+        the boundary-layer thickness at the rear of a car).
+    flap_base_factor : float
+        Fall of the base pressure coefficient with the square of the sine of
+        the flap's angle above the horizontal (a flap that turns the flow up
+        widens the wake; model choice).
     """
 
     body_3d_factor: float = 0.12
@@ -113,6 +137,11 @@ class Coefficients:
     lift_drag_factor: float = 0.005
     wing_parasite_cd: float = 0.030
     critical_slant: float = 30.0
+    slant_width: float = 2.0
+    slant_vortex_cd: float = 0.15
+    relief_length: float = 0.5
+    flap_fade_chord: float = 0.015
+    flap_base_factor: float = 0.15
 
     def __post_init__(self):
         for f in fields(self):
@@ -136,6 +165,11 @@ COEFFICIENT_RANGES = {
     "lift_drag_factor": (0.0, 0.02),
     "wing_parasite_cd": (0.0, 0.05),
     "critical_slant": (20.0, 40.0),
+    "slant_width": (0.5, 6.0),
+    "slant_vortex_cd": (0.0, 0.3),
+    "relief_length": (0.15, 3.0),
+    "flap_fade_chord": (0.002, 0.05),
+    "flap_base_factor": (0.0, 0.5),
 }
 
 
@@ -175,6 +209,8 @@ _PCT = {"%": 1.0, "% chord": 1.0, "-": 100.0}
 DESIGN_INPUTS = {d.name: d for d in (
     DesignInput("flap_angle", "deg", 30.0, -10.0, 60.0, _DEG, "hatch flap angle up from the rear-window line"),
     DesignInput("flap_chord", "mm", 60.0, 0.0, 200.0, _MM, "hatch flap length (0: no flap)"),
+    DesignInput("flap_position", "%", 0.0, 0.0, 100.0, {"%": 1.0, "-": 100.0},
+                "flap root up the rear window: 0 at the hatch edge, 100 at the roof's rear edge (% of the window)"),
     DesignInput("wing_height", "mm", 120.0, 20.0, 600.0, _MM, "height of the wing's leading edge above the hatch edge"),
     DesignInput("wing_aoa", "deg", 6.0, -5.0, 25.0, _DEG,
                 "wing angle of attack, positive with the trailing edge above the leading edge (downforce)"),
@@ -360,7 +396,8 @@ class RearPackageModel:
                 messages[i] = g
             else:
                 good.append(i)
-        groups = [[i for i in good if (geoms[i]["body"].flap_panels > 0) == flap] for flap in (False, True)]
+        keys = sorted({self._group_key(geoms[i]) for i in good})
+        groups = [[i for i in good if self._group_key(geoms[i]) == key] for key in keys]
         chunks = [grp[s:s + batch] for grp in groups for s in range(0, len(grp), batch)]
         with threadpool_limits(limits=1, user_api="blas"):       # small matrices: threads only contend
             for idx in chunks:
@@ -373,6 +410,11 @@ class RearPackageModel:
         return ModelResult(values, ok, messages, cps if keep_cp else [])
 
     # ------------------------------------------------------------------
+    @staticmethod
+    def _group_key(g):
+        """Configurations solved together need the same panel counts."""
+        return len(g["body"].nodes), g["body"].flap_panels
+
     def _geometry(self, p: dict):
         """Nodes and facts of one configuration, or a message saying why it cannot be built."""
         st = self.settings
@@ -381,7 +423,8 @@ class RearPackageModel:
                 return f"{name} = {p[name]:g} {d.unit} is outside the model's range {d.low:g} to {d.high:g}"
         try:
             body = body_contour(st.car, p["flap_angle"], p["flap_chord"] / 1000.0, st.body_panels,
-                                st.flap_panels, st.coefficients.critical_slant)
+                                st.flap_panels, st.coefficients.critical_slant,
+                                flap_position=p["flap_position"] / 100.0)
             m = p["wing_camber"] / 100.0
             section = naca4(m, st.camber_position, p["wing_thickness"] / 100.0, st.wing_panels)
         except AeroError as exc:
@@ -399,7 +442,7 @@ class RearPackageModel:
     def _solve(self, geoms, keep_cp):
         st, co = self.settings, self.settings.coefficients
         nb = len(geoms[0]["body"].nodes)
-        static = nb - geoms[0]["body"].flap_panels                            # the car without its flap
+        static = geoms[0]["body"].static_nodes                                # front to the roof's rear edge
         if st.has_wing:
             layout = Layout(("body", "wing"), (nb, len(geoms[0]["wing"])), (True, False))
             nodes = np.stack([np.vstack([g["body"].nodes, g["wing"]]) for g in geoms])
@@ -410,8 +453,13 @@ class RearPackageModel:
         # velocity it induces at the wing is relieved alike (the wing's effect on the body is relieved with
         # the body's loads, in _body_loads)
         coupling = [[1.0, 1.0], [co.body_3d_factor, 1.0]] if st.has_wing else None
+        flap = geoms[0]["body"].flap_panels
+        edge = None
+        if flap:                                            # the flow leaves the flap's tip as the flap grows
+            fade = np.array([1.0 - np.exp(-g["p"]["flap_chord"] / 1000.0 / co.flap_fade_chord) for g in geoms])
+            edge = (nb - 1 - flap, fade)
         sol = solve_field(nodes, layout, ground=st.ground, upwash_body="wing" if st.has_wing else None,
-                          static_nodes=static, coupling=coupling)
+                          static_nodes=static, coupling=coupling, upper_edge=edge)
         n = len(geoms)
         if st.has_wing:
             ws = self._wing_3d(sol, np.stack([g["stall_w"] for g in geoms]))
@@ -419,6 +467,8 @@ class RearPackageModel:
             ws = _WingState(np.array([1.0]), np.zeros(n), None, 0.0, np.zeros(n), np.zeros(n, dtype=bool))
         cp = sol.cp(ws.weights)
         f = self._panel_forces(sol, cp)
+        bodyp = sol.body == 0
+        f[:, bodyp] = self._panel_forces(sol, self._body_pressures(geoms, sol, cp))[:, bodyp]
         if st.has_wing:                                     # the wing is closed: exact sheet pressures
             wing = sol.body == 1
             f[:, wing] = sol.sheet_forces(ws.weights)[:, wing]
@@ -489,6 +539,64 @@ class RearPackageModel:
             out[i] = self._wing_3d(sol, g["stall_w"][None], k=0).cl3d[0]
         return out
 
+    def _bare_head_cp(self, n_head: int) -> np.ndarray:
+        """Centreline pressures of the bare car (no flap, no wing) on its first ``n_head`` panels (cached)."""
+        cache = self.__dict__.setdefault("_bare_cache", {})
+        if n_head not in cache:
+            st = self.settings
+            body = body_contour(st.car, 0.0, 0.0, st.body_panels, st.flap_panels, st.coefficients.critical_slant)
+            sol = solve_field(body.nodes, Layout(("body",), (len(body.nodes),), (True,)), ground=st.ground)
+            cache[n_head] = sol.cp()[0, :n_head]
+        return cache[n_head]
+
+    def slant_separation(self) -> float:
+        """Share of the rear window's flow that has left the roof's rear edge (0 attached, 1 separated).
+
+        A logistic step in the window slope, centred on ``critical_slant`` with
+        width ``slant_width`` (Ahmed, Ramm & Faltin 1984 for the change near 30 deg;
+        the smooth form is this model's choice, so that a surrogate or a
+        calibration never meets a step).
+        """
+        co = self.settings.coefficients
+        return float(1.0 / (1.0 + np.exp(-(self.settings.car.rear_window_angle - co.critical_slant) / co.slant_width)))
+
+    def _body_pressures(self, geoms, sol, cp):
+        """The body's centreline pressures as its 3-D loads see them, shape (B, P) (zero off the body).
+
+        Head (front to the roof's rear edge): the bare car's 2-D pressures plus
+        the change the flap and the wing make, relieved with distance from the
+        flap's root (``relief_length``), all times ``body_3d_factor``. Rear
+        window: its 2-D pressures times the factor while the flow follows it,
+        moving to the base pressure as the flow leaves the roof's edge
+        (:meth:`slant_separation`). Flap: its 2-D pressures times the factor.
+        """
+        co = self.settings.coefficients
+        bodyp = sol.body == 0
+        b = geoms[0]["body"]
+        n_head = b.static_nodes - 1
+        n_win = b.rear_panels - b.flap_panels
+        out = np.zeros_like(cp)
+        cpb = cp[:, bodyp].copy()
+        bare = self._bare_head_cp(n_head)
+        root = np.stack([g["body"].flap_root for g in geoms])[:, None, :]
+        dist = np.hypot(*(sol.mid[:, bodyp][:, :n_head] - root).transpose(2, 0, 1))
+        cpb[:, :n_head] = bare + np.exp(-dist / co.relief_length) * (cpb[:, :n_head] - bare)
+        cpb *= co.body_3d_factor
+        s = self.slant_separation()
+        win = slice(n_head, n_head + n_win)
+        cpb[:, win] = (1.0 - s) * cpb[:, win] + s * self._base_pressure(geoms)[:, None]
+        out[:, bodyp] = cpb
+        return out
+
+    def _base_pressure(self, geoms) -> np.ndarray:
+        """Base pressure coefficient per configuration: lower when the flap turns the flow up."""
+        co, car = self.settings.coefficients, self.settings.car
+        p = [g["p"] for g in geoms]
+        chord = np.array([q["flap_chord"] / 1000.0 for q in p])
+        up = np.radians(np.array([q["flap_angle"] for q in p]) - car.rear_window_angle)   # above the horizontal
+        fade = 1.0 - np.exp(-chord / co.flap_fade_chord)
+        return co.base_pressure - co.flap_base_factor * fade * np.where(up > 0, np.sin(up), 0.0) ** 2
+
     @staticmethod
     def _panel_forces(sol, cp):
         """Pressure force of every panel per unit span over q, m (B, P, 2)."""
@@ -515,7 +623,11 @@ class RearPackageModel:
                 "downforce": -cla_total * q, "drag": cda_total * q, "cl_wing": ws.cl3d}
 
     def _body_loads(self, geoms, sol, f, x):
-        """The body's CLA, CDA and pitching moment about the front contact patch (m^3)."""
+        """The body's CLA, CDA and pitching moment about the front contact patch (m^3).
+
+        ``f`` carries the body's panel forces of :meth:`_body_pressures` (3-D
+        factor already applied); they are spread over the car's width.
+        """
         co, car = self.settings.coefficients, self.settings.car
         y = sol.mid[..., 1]
         bodyp = sol.body == 0
@@ -524,23 +636,28 @@ class RearPackageModel:
         base_vec = lo - up                                                  # base line, clockwise
         base_len = np.hypot(base_vec[:, 0], base_vec[:, 1])
         base_n = np.stack([-base_vec[:, 1], base_vec[:, 0]], axis=1) / base_len[:, None]
-        f_base = -co.base_pressure * base_n * base_len[:, None]             # (B, 2), per q per width
+        cp_base = self._base_pressure(geoms)
+        f_base = -cp_base[:, None] * base_n * base_len[:, None]             # (B, 2), per q per width
         base_mid = 0.5 * (up + lo) - [car.front_axle, 0.0]
-        k, w = co.body_3d_factor, car.width
+        w = car.width
         fy = f[..., 1][:, bodyp].sum(1) + f_base[:, 1]
         my = (x * f[..., 1])[:, bodyp].sum(1) + base_mid[:, 0] * f_base[:, 1]
-        # drag: forebody baseline, rear-window/flap pressure drag, base drag
+        # drag: forebody baseline, rear-window/flap pressure drag, rear-pillar vortices, base drag
         rear = np.zeros(len(sol.body), dtype=bool)
         n_rear = geoms[0]["body"].rear_panels
         if n_rear:
             rear[np.flatnonzero(bodyp)[-n_rear:]] = True
         fx_rear = f[..., 0][:, rear].sum(1)
         h_rear = (y * f[..., 0])[:, rear].sum(1) / np.where(np.abs(fx_rear) > 1e-12, fx_rear, 1.0)
-        d_rear = fx_rear * w * k
+        d_rear = fx_rear * w
+        phi = np.radians(car.rear_window_angle)
+        d_vortex = (1.0 - self.slant_separation()) * co.slant_vortex_cd * car.frontal_area * np.sin(phi) ** 2
+        h_vortex = car.roof_rear[1] - 0.5 * car.rear_window_length * np.sin(phi)
         d_base = f_base[:, 0] * w
         d_fore = np.full(len(geoms), co.forebody_cd * car.frontal_area)
-        moment = my * w * k - d_fore * 0.5 * car.roof_height - d_rear * h_rear - d_base * base_mid[:, 1]
-        return {"cla": fy * w * k, "cda": d_fore + d_rear + d_base, "moment": moment}
+        moment = (my * w - d_fore * 0.5 * car.roof_height - d_rear * h_rear - d_base * base_mid[:, 1]
+                  - d_vortex * h_vortex)
+        return {"cla": fy * w, "cda": d_fore + d_rear + d_base + d_vortex, "moment": moment}
 
     def _wing_loads(self, geoms, sol, f, x, ws):
         """The wing's CLA and CDA (3-D), and the x and height of its force, m."""

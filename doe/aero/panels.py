@@ -262,7 +262,8 @@ def signed_area(points) -> np.ndarray:
 
 
 def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = False,
-                upwash_body: str | None = None, static_nodes: int = 0, coupling=None) -> FieldSolution:
+                upwash_body: str | None = None, static_nodes: int = 0, coupling=None,
+                upper_edge=None) -> FieldSolution:
     """Solve the potential flow round the bodies of one or several configurations.
 
     A lifting body (a section) gets the Kutta condition ``gamma_first +
@@ -299,6 +300,12 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
         diagonal must be 1. Default: all ones (one potential flow). Used to
         relieve a 2-D body's influence on a wing the way the 3-D body relieves
         its own loads (see :mod:`doe.aero.model`).
+    upper_edge : tuple (int, array_like), optional
+        ``(node, w)``: on the first bluff body the condition at the upper edge
+        becomes ``(1 - w) gamma_node + w gamma_last = 0``, ``w`` of shape
+        ``(B,)`` in [0, 1]: the flow leaves the last node (w = 1), an earlier
+        node such as a short flap's root (w = 0), or a blend. A flap whose
+        effect fades with its length uses it.
 
     Returns
     -------
@@ -353,7 +360,13 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
             row += 1
         else:                                                           # regular flow at both edges
             M[:, row, first] = 1.0
-            M[:, row + 1, last] = 1.0
+            if upper_edge is not None and k == layout.bluff.index(True):
+                node, w = upper_edge
+                w = np.broadcast_to(np.asarray(w, dtype=float), (nodes.shape[0],))
+                M[:, row + 1, first + node] += 1.0 - w
+                M[:, row + 1, last] += w
+            else:
+                M[:, row + 1, last] = 1.0
             row += 2
     try:
         unknowns = np.linalg.solve(M, R)
