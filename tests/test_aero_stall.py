@@ -46,5 +46,20 @@ def test_stall_limit_keeps_lift_smooth():
     # no step: the limited lift changes by under 0.05 per quarter degree through stall
     cl = _peak("4412")[2]
     assert np.max(np.abs(np.diff(cl))) < 0.05
-    factor, _, stalled = StallLimit(21.0, 0.1, 0.05, 0.8).apply(np.linspace(0, 40, 801))
+    factor, _, stalled = StallLimit(23.0, 0.15, 0.05, 1.4).apply(np.linspace(0, 40, 801))
     assert np.all(np.diff(factor) <= 0) and stalled[-1] and not stalled[0]
+
+
+def test_ground_effect_has_a_viscous_limit():
+    # Zerihan & Zhang 2000, J. Aircraft 37:1058 (memory): an inverted single-element wing's downforce rises as
+    # it nears the ground until the boundary layer separates; the peak lies near a gap of 0.1 chord and the
+    # downforce falls below it. Inverted NACA 2412 at 2 deg, gap = the section's lowest point above the road
+    gaps = np.array([0.03, 0.05, 0.07, 0.1, 0.13, 0.2, 0.3, 0.5, 1.0])
+    cl = np.array([section_lift_curve(naca4(0.02, 0.4, 0.12), [2.0], ground_gap=g, inverted=True)[0][0]
+                   for g in gaps])
+    peak = int(np.argmin(cl))                           # most downforce (cl most negative)
+    assert 0.07 <= gaps[peak] <= 0.13
+    assert cl[0] > cl[peak] + 0.2                       # falls below the peak
+    assert np.all(np.diff(cl[peak:]) > 0)               # and rises steadily above it
+    # magnitude: peak sectional downforce of order 1.5 (Zerihan & Zhang's measured maximum about 1.7; memory)
+    assert 1.2 < -cl[peak] < 2.0

@@ -49,8 +49,21 @@ from .lifting_line import endplate_aspect_ratio, glauert
 from .panels import Layout, solve_field
 from .sections import naca4
 
-__all__ = ["Coefficients", "COEFFICIENT_RANGES", "ModelSettings", "DesignInput", "DESIGN_INPUTS", "OUTPUTS",
+__all__ = ["Coefficients", "COEFFICIENT_RANGES", "STALL_AFT_WEIGHT", "POST_STALL_EXPONENT", "SLANT_WIDTH",
+           "FLAP_FADE_CHORD", "ModelSettings", "DesignInput", "DESIGN_INPUTS", "OUTPUTS",
            "RearPackageModel", "ModelResult"]
+
+
+#: Weight of the aft pressure recovery in the stall measure (set with ``stall_dcp``; model choice).
+STALL_AFT_WEIGHT = 9.0
+#: Exponent ``p`` of the stall limit ``m^-p`` (1/2 holds the lift at its maximum; more makes it fall past it).
+POST_STALL_EXPONENT = 1.4
+#: Width, degrees, of the logistic change from attached to separated rear-window flow (model choice).
+SLANT_WIDTH = 2.0
+#: Flap length, m, below which the flow hardly leaves the flap's tip: the tip's share of the separation
+#: condition is ``1 - exp(-c / FLAP_FADE_CHORD)`` (a flap inside the boundary layer does little; model choice
+#: of the order of the boundary-layer thickness at the rear of a car).
+FLAP_FADE_CHORD = 0.015
 
 
 @dataclass(frozen=True)
@@ -79,16 +92,14 @@ class Coefficients:
         inviscid ones in Abbott & von Doenhoff's data).
     stall_dcp : float
         Critical value of the stall measure (:func:`doe.aero.drag.stall_measure`:
-        Valarezo-Chin pressure difference plus ``stall_aft_weight`` times the
-        aft pressure recovery). Set with the next three so that NACA 0012,
-        2412, 4412 and 6412 reach c_l,max near Abbott & von Doenhoff's values
-        at Re 3e6 (memory).
-    stall_aft_weight : float
-        Weight of the aft pressure recovery in the stall measure.
+        Valarezo-Chin pressure difference plus :data:`STALL_AFT_WEIGHT` times
+        the aft pressure recovery). Set with ``stall_width`` and the constants
+        :data:`STALL_AFT_WEIGHT` and :data:`POST_STALL_EXPONENT` so that NACA
+        0012, 2412, 4412 and 6412 reach c_l,max near Abbott & von Doenhoff's
+        values at Re 3e6 (memory), and so that a section's downforce over the
+        road peaks near a 0.1-chord gap (Zerihan & Zhang 2000; memory).
     stall_width : float
         Width of the smooth stall limit (fraction of ``stall_dcp``).
-    post_stall_exponent : float
-        Exponent ``p`` of the lift limit ``m^-p`` (1/2: a plateau; more: lift falls past the maximum).
     post_stall_drag : float
         Profile-drag rise past stall per unit of smooth stall excess (model choice).
     lift_drag_factor : float
@@ -97,11 +108,9 @@ class Coefficients:
         Drag coefficient on the wing's plan area of its endplates, supports and
         interference with the body's low-energy flow (common practice, no source).
     critical_slant : float
-        Rear-window slope, degrees, at the middle of the smooth change from
-        flow that follows the window to flow that leaves the roof's rear edge
-        (Ahmed, Ramm & Faltin 1984: about 30 degrees).
-    slant_width : float
-        Width of that change, degrees (logistic in the slope; model choice).
+        Rear-window slope, degrees, at the middle of the smooth change (width
+        :data:`SLANT_WIDTH`) from flow that follows the window to flow that
+        leaves the roof's rear edge (Ahmed, Ramm & Faltin 1984: about 30 degrees).
     slant_vortex_cd : float
         Drag coefficient, on the frontal area and times ``sin^2`` of the window
         slope, of the trailing vortices that an attached rear-window flow sheds
@@ -114,11 +123,6 @@ class Coefficients:
         of the change at distance ``d`` from the flap's root or hatch edge).
         In 2-D such a change moves the whole body's circulation; round a 3-D
         car it stays local (model choice, about a third of the car's width).
-    flap_fade_chord : float
-        Flap length, m, below which the flow hardly leaves its tip: the tip's
-        share of the separation condition is ``1 - exp(-c / c_fade)`` (a flap
-        buried in the boundary layer does little; model choice of the order of
-        the boundary-layer thickness at the rear of a car).
     flap_base_factor : float
         Fall of the base pressure coefficient with the square of the sine of
         the flap's angle above the horizontal (a flap that turns the flow up
@@ -129,18 +133,14 @@ class Coefficients:
     base_pressure: float = -0.15
     forebody_cd: float = 0.18
     viscous_lift_factor: float = 0.88
-    stall_dcp: float = 21.0
-    stall_aft_weight: float = 10.0
-    stall_width: float = 0.10
-    post_stall_exponent: float = 0.8
+    stall_dcp: float = 23.0
+    stall_width: float = 0.15
     post_stall_drag: float = 0.05
     lift_drag_factor: float = 0.005
     wing_parasite_cd: float = 0.030
     critical_slant: float = 30.0
-    slant_width: float = 2.0
     slant_vortex_cd: float = 0.15
     relief_length: float = 0.5
-    flap_fade_chord: float = 0.015
     flap_base_factor: float = 0.15
 
     def __post_init__(self):
@@ -158,17 +158,13 @@ COEFFICIENT_RANGES = {
     "forebody_cd": (0.08, 0.30),
     "viscous_lift_factor": (0.75, 1.0),
     "stall_dcp": (12.0, 35.0),
-    "stall_aft_weight": (0.0, 20.0),
     "stall_width": (0.02, 0.3),
-    "post_stall_exponent": (0.5, 1.5),
     "post_stall_drag": (0.0, 0.2),
     "lift_drag_factor": (0.0, 0.02),
     "wing_parasite_cd": (0.0, 0.05),
     "critical_slant": (20.0, 40.0),
-    "slant_width": (0.5, 6.0),
     "slant_vortex_cd": (0.0, 0.3),
     "relief_length": (0.15, 3.0),
-    "flap_fade_chord": (0.002, 0.05),
     "flap_base_factor": (0.0, 0.5),
 }
 
@@ -456,7 +452,7 @@ class RearPackageModel:
         flap = geoms[0]["body"].flap_panels
         edge = None
         if flap:                                            # the flow leaves the flap's tip as the flap grows
-            fade = np.array([1.0 - np.exp(-g["p"]["flap_chord"] / 1000.0 / co.flap_fade_chord) for g in geoms])
+            fade = np.array([1.0 - np.exp(-g["p"]["flap_chord"] / 1000.0 / FLAP_FADE_CHORD) for g in geoms])
             edge = (nb - 1 - flap, fade)
         sol = solve_field(nodes, layout, ground=st.ground, upwash_body="wing" if st.has_wing else None,
                           static_nodes=static, coupling=coupling, upper_edge=edge)
@@ -505,9 +501,9 @@ class RearPackageModel:
         g1 = sol.node_strength(np.stack([np.ones_like(cl2d), (inviscid - cl2d) / a_w], axis=1))
         start = sol.layout.starts[k]
         cp_w = 1.0 - g1[:, start:start + sol.layout.nodes[k]] ** 2
-        dcp, measure = stall_measure(cp_w, stall_w, co.stall_aft_weight)
+        dcp, measure = stall_measure(cp_w, stall_w, STALL_AFT_WEIGHT)
         factor, extra_cd, stalled = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag,
-                                               co.post_stall_exponent).apply(measure)
+                                               POST_STALL_EXPONENT).apply(measure)
         cl3d = target * factor
         weights = np.stack([np.ones_like(cl2d), (cl3d - cl2d) / a_w], axis=1)   # free stream + local upwash
         return _WingState(weights, cl3d, ll, extra_cd, measure, stalled)
@@ -553,12 +549,12 @@ class RearPackageModel:
         """Share of the rear window's flow that has left the roof's rear edge (0 attached, 1 separated).
 
         A logistic step in the window slope, centred on ``critical_slant`` with
-        width ``slant_width`` (Ahmed, Ramm & Faltin 1984 for the change near 30 deg;
+        width :data:`SLANT_WIDTH` (Ahmed, Ramm & Faltin 1984 for the change near 30 deg;
         the smooth form is this model's choice, so that a surrogate or a
         calibration never meets a step).
         """
         co = self.settings.coefficients
-        return float(1.0 / (1.0 + np.exp(-(self.settings.car.rear_window_angle - co.critical_slant) / co.slant_width)))
+        return float(1.0 / (1.0 + np.exp(-(self.settings.car.rear_window_angle - co.critical_slant) / SLANT_WIDTH)))
 
     def _body_pressures(self, geoms, sol, cp):
         """The body's centreline pressures as its 3-D loads see them, shape (B, P) (zero off the body).
@@ -594,7 +590,7 @@ class RearPackageModel:
         p = [g["p"] for g in geoms]
         chord = np.array([q["flap_chord"] / 1000.0 for q in p])
         up = np.radians(np.array([q["flap_angle"] for q in p]) - car.rear_window_angle)   # above the horizontal
-        fade = 1.0 - np.exp(-chord / co.flap_fade_chord)
+        fade = 1.0 - np.exp(-chord / FLAP_FADE_CHORD)
         return co.base_pressure - co.flap_base_factor * fade * np.where(up > 0, np.sin(up), 0.0) ** 2
 
     @staticmethod

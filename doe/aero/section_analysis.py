@@ -67,6 +67,27 @@ class SectionResult:
                 "pressure": {"x": self.x.tolist(), "y": self.y.tolist(), "cp": self.cp.tolist()}}
 
 
+def _placed(section: Section, alpha_deg: float, ground_height, inverted: bool) -> np.ndarray:
+    """The section's nodes turned to ``alpha_deg`` about its quarter chord (and inverted, and lifted), chords."""
+    pts = section.points.copy()
+    if inverted:
+        pts = (pts * [1.0, -1.0])[::-1]
+    a = np.radians(alpha_deg) * (1.0 if inverted else -1.0)    # geometry turned, the stream stays level
+    rot = np.array([[np.cos(a), -np.sin(a)], [np.sin(a), np.cos(a)]])
+    quarter = np.array([0.25, 0.0])
+    world = (pts - quarter) @ rot.T + quarter
+    if ground_height is not None:
+        world = world + [0.0, ground_height]
+        if np.any(world[:, 1] <= 0):
+            raise AeroError(f"at {alpha_deg:g} deg the section touches the ground; raise --ground-height")
+    return world
+
+
+def _stall_weights(section: Section, inverted: bool) -> np.ndarray:
+    w = stall_weights(section.points)
+    return w[:, ::-1] if inverted else w                        # inverting reverses the node order
+
+
 def analyse_section(section: Section, alpha_deg: float, ground_height: float | None = None,
                     inverted: bool = False) -> SectionResult:
     """Solve the flow round one section.
@@ -95,17 +116,10 @@ def analyse_section(section: Section, alpha_deg: float, ground_height: float | N
         raise AeroError(f"angle of attack {alpha_deg!r} deg must be between -30 and 30")
     if ground_height is not None and not (np.isfinite(ground_height) and ground_height > 0):
         raise AeroError(f"ground height {ground_height!r} chords must be a positive number")
-    pts = section.points.copy()
-    if inverted:
-        pts = (pts * [1.0, -1.0])[::-1]
-    a = np.radians(alpha_deg) * (1.0 if inverted else -1.0)    # geometry turned, the stream stays level
-    rot = np.array([[np.cos(a), -np.sin(a)], [np.sin(a), np.cos(a)]])
+    world = _placed(section, alpha_deg, ground_height, inverted)
     quarter = np.array([0.25, 0.0])
-    world = (pts - quarter) @ rot.T + quarter
-    if ground_height is not None:
-        world = world + [0.0, ground_height]
-        if np.any(world[:, 1] <= 0):
-            raise AeroError(f"at {alpha_deg:g} deg the section touches the ground; raise --ground-height")
+    a = np.radians(alpha_deg) * (1.0 if inverted else -1.0)
+    rot = np.array([[np.cos(a), -np.sin(a)], [np.sin(a), np.cos(a)]])
     sol = solve_field(world, Layout(("section",), (len(world),)), ground=ground_height is not None)
     cp = sol.cp()
     f = sol.sheet_forces()[0]                                    # exact integral of the linear sheet's pressures
@@ -118,18 +132,23 @@ def analyse_section(section: Section, alpha_deg: float, ground_height: float | N
     mid_local = (sol.mid[0] - [0.0, ground_height or 0.0] - quarter) @ rot + quarter
     if inverted:
         mid_local = mid_local * [1.0, -1.0]
-    dcp = float(pressure_difference(1.0 - sol.node_strength() ** 2, stall_weights(pts))[0])
+    dcp = float(pressure_difference(1.0 - sol.node_strength() ** 2, _stall_weights(section, inverted))[0])
     return SectionResult(section.name, float(alpha_deg), cl, cl_p, -mz,
                          ground_height, inverted, mid_local[:, 0], mid_local[:, 1], cp[0], dcp)
 
 
-def section_lift_curve(section: Section, alphas, coefficients=None):
-    """Viscous, stall-limited lift curve of a section in free air, as the built-in model treats its wing.
+def section_lift_curve(section: Section, alphas, coefficients=None, ground_gap=None, inverted: bool = False):
+    """Viscous, stall-limited lift curve of a section, as the built-in model treats its wing.
 
     ``c_l = k_v c_l,inviscid m^-p`` with the stall measure and limit of
     :mod:`doe.aero.drag` and the coefficients of
     :class:`doe.aero.model.Coefficients` (``viscous_lift_factor``,
-    ``stall_dcp``, ``stall_aft_weight``, ``stall_width``, ``post_stall_exponent``).
+    ``stall_dcp``, ``stall_width``) and the constants ``STALL_AFT_WEIGHT`` and
+    ``POST_STALL_EXPONENT`` of :mod:`doe.aero.model`.
+    Near the ground the stall measure is the viscous limit of ground effect:
+    the flow under the section speeds up, its pressure recovery steepens and
+    the limit caps the lift (the boundary-layer separation that Zerihan &
+    Zhang [1]_ found to end the rise of downforce near a gap of 0.1 chord).
 
     Parameters
     ----------
@@ -138,27 +157,42 @@ def section_lift_curve(section: Section, alphas, coefficients=None):
         Angles of attack, degrees (-30 to 30).
     coefficients : Coefficients, optional
         Default: the model's defaults.
+    ground_gap : float, optional
+        Height of the section's lowest point above the ground at each angle,
+        chords (> 0); None for free air.
+    inverted : bool
+        Turn the section upside down (a wing making downforce; ``cl`` negative).
 
     Returns
     -------
     cl, stall_margin : ndarray
         Limited lift coefficient and stall measure over its critical value, per angle.
+
+    References
+    ----------
+    .. [1] Zerihan, J., Zhang, X. (2000). Aerodynamics of a single element wing
+       in ground effect. Journal of Aircraft 37(6), 1058-1064.
     """
-    from .model import Coefficients
+    from .model import POST_STALL_EXPONENT, STALL_AFT_WEIGHT, Coefficients
 
     co = coefficients or Coefficients()
     alphas = np.atleast_1d(np.asarray(alphas, dtype=float))
     if not np.all(np.isfinite(alphas)) or np.any(np.abs(alphas) > 30):
         raise AeroError("angles of attack must be between -30 and 30 deg")
-    pts = section.points
-    a = np.radians(alphas)
-    sol = solve_field(np.broadcast_to(pts, (len(a),) + pts.shape), Layout(("section",), (len(pts),)))
-    # the geometry stays put and the stream turns: solve_field takes one stream, so superpose the two
-    # unit streams' solutions (the panel equations are linear in the onset flow)
-    sol_v = solve_field(pts, Layout(("section",), (len(pts),)), freestream=(0.0, 1.0))
-    g = np.cos(a)[:, None] * sol.node_strength() + np.sin(a)[:, None] * sol_v.node_strength()
-    circ_u, circ_v = sol.circulation()[0, 0], sol_v.circulation()[0, 0]
-    cl_inv = 2.0 * (np.cos(a) * circ_u + np.sin(a) * circ_v)          # Kutta-Joukowski, chord 1, unit speed
-    _, measure = stall_measure(1.0 - g**2, stall_weights(pts), co.stall_aft_weight)
-    factor, _, _ = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag, co.post_stall_exponent).apply(measure)
+    if ground_gap is not None and not (np.isfinite(ground_gap) and ground_gap > 0):
+        raise AeroError(f"ground gap {ground_gap!r} chords must be a positive number")
+    worlds = []
+    for a in alphas:
+        w = _placed(section, a, None, inverted)
+        if ground_gap is not None:
+            w = w + [0.0, ground_gap - w[:, 1].min()]
+        worlds.append(w)
+    worlds = np.stack(worlds)
+    sol = solve_field(worlds, Layout(("section",), (worlds.shape[1],)), ground=ground_gap is not None)
+    if ground_gap is None:
+        cl_inv = 2.0 * sol.circulation()[:, 0]                   # Kutta-Joukowski, chord 1, unit speed
+    else:
+        cl_inv = sol.sheet_forces()[..., 1].sum(axis=1)
+    _, measure = stall_measure(1.0 - sol.node_strength() ** 2, _stall_weights(section, inverted), STALL_AFT_WEIGHT)
+    factor, _, _ = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag, POST_STALL_EXPONENT).apply(measure)
     return co.viscous_lift_factor * cl_inv * factor, measure / co.stall_dcp
