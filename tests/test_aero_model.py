@@ -109,4 +109,4 @@ def test_bad_inputs():
     res = RearPackageModel().evaluate({"wing_aoa": [40.0], "wing_height": [5.0]})
     assert not res.ok[0] and "outside the model's range" in res.messages[0]
     res = RearPackageModel().evaluate({"wing_height": [20.0], "wing_overhang": [-150.0]})
-    assert not res.ok[0] and "of the body" in res.messages[0]
+    assert not res.ok[0] and "the body" in res.messages[0] and "gap" in res.messages[0]

@@ -41,7 +41,7 @@ import numpy as np
 
 from ..errors import AeroError
 
-__all__ = ["CarGeometry", "BodyContour", "body_contour", "wing_contour", "min_distance", "window_panels"]
+__all__ = ["CarGeometry", "BodyContour", "body_contour", "wing_contour", "min_distance", "clearance", "window_panels"]
 
 
 @dataclass(frozen=True)
@@ -340,6 +340,65 @@ def wing_contour(section_points, chord: float, aoa_deg, leading_edge) -> np.ndar
     a = np.radians(aoa_deg)
     rot = np.array([[np.cos(a), -np.sin(a)], [np.sin(a), np.cos(a)]])
     return p @ rot.T + np.asarray(leading_edge, dtype=float)
+
+
+def _node_to_panels(nodes, contour):
+    """Distances (N, S) from nodes to the panels of a contour, and the panels' lengths (S,)."""
+    p1, p2 = contour[:-1], contour[1:]
+    seg = p2 - p1
+    length = np.hypot(seg[:, 0], seg[:, 1])
+    rel = nodes[:, None, :] - p1[None]
+    t = np.clip(np.einsum("wsk,sk->ws", rel, seg) / (length**2)[None], 0.0, 1.0)
+    return np.hypot(*(rel - t[..., None] * seg[None]).transpose(2, 0, 1)), length
+
+
+def _crosses(a, b) -> bool:
+    """Whether any panel of contour ``a`` crosses any panel of contour ``b``."""
+    a1, a2, b1, b2 = a[:-1, None], a[1:, None], b[None, :-1], b[None, 1:]
+
+    def orient(p, q, r):
+        return np.sign((q[..., 0] - p[..., 0]) * (r[..., 1] - p[..., 1]) - (q[..., 1] - p[..., 1]) * (r[..., 0] - p[..., 0]))
+    return bool(np.any((orient(a1, a2, b1) * orient(a1, a2, b2) < 0) & (orient(b1, b2, a1) * orient(b1, b2, a2) < 0)))
+
+
+def clearance(wing, body):
+    """Smallest distance between the wing and the body's panels, and the panel length there, m.
+
+    Parameters
+    ----------
+    wing : ndarray, shape (n + 1, 2)
+        Wing nodes (a closed contour).
+    body : ndarray, shape (m + 1, 2)
+        Body nodes (an open contour).
+
+    Returns
+    -------
+    gap : float
+        Smallest distance from a node of either contour to a panel of the
+        other (0 when their panels cross).
+    panel : float
+        The longest panel on either side of that closest approach: a gap
+        much smaller than the panels beside it is not represented by the
+        panel method (the flow through it is that of the panels' end points).
+    """
+    lo, hi = wing.min(axis=0) - 0.5, wing.max(axis=0) + 0.5
+    keep = np.all((body > lo) & (body < hi), axis=1)
+    keep = keep | np.r_[keep[1:], False] | np.r_[False, keep[:-1]]           # and their neighbours
+    if keep.sum() < 2:
+        return np.inf, 0.0
+    idx = np.flatnonzero(keep)
+    body = body[idx[0]: idx[-1] + 1]
+    if _crosses(wing, body):
+        return 0.0, float(np.max(np.hypot(*np.diff(body, axis=0).T)))
+    d_wb, l_b = _node_to_panels(wing, body)
+    d_bw, l_w = _node_to_panels(body, wing)
+    if d_wb.min() <= d_bw.min():
+        i, j = np.unravel_index(np.argmin(d_wb), d_wb.shape)
+        local = max(l_b[j], l_w[max(i - 1, 0)], l_w[min(i, len(l_w) - 1)])
+        return float(d_wb[i, j]), float(local)
+    i, j = np.unravel_index(np.argmin(d_bw), d_bw.shape)
+    local = max(l_w[j], l_b[max(i - 1, 0)], l_b[min(i, len(l_b) - 1)])
+    return float(d_bw[i, j]), float(local)
 
 
 def min_distance(a, b) -> float:

@@ -131,10 +131,20 @@ TE_STATION = 0.95
 MID_STATION = 0.5
 
 
+#: The suction peak is sought ahead of this chord station (the inviscid speed at trailing-edge nodes is spurious).
+PEAK_REGION = 0.9
+
+
 def stall_weights(points) -> np.ndarray:
-    """Weights of :func:`stall_measure` for a section, shape ``(3, n + 1)``: TE pressure, mid-chord lower, upper."""
+    """Weights of :func:`stall_measure` for a section, shape ``(4, n + 1)``.
+
+    Rows: trailing-edge pressure (both surfaces at :data:`TE_STATION`), mid-chord
+    lower and upper surface (:data:`MID_STATION`), and a mask (1 or 0) of the
+    nodes ahead of :data:`PEAK_REGION` where the suction peak is sought.
+    """
     te = chord_station_weights(points, TE_STATION).mean(axis=0)
-    return np.vstack([te[None], chord_station_weights(points, MID_STATION)])
+    mask = (np.asarray(points, dtype=float)[:, 0] < PEAK_REGION).astype(float)
+    return np.vstack([te[None], chord_station_weights(points, MID_STATION), mask[None]])
 
 
 def pressure_difference(cp_nodes, weights=None):
@@ -146,24 +156,20 @@ def pressure_difference(cp_nodes, weights=None):
         Pressure coefficients at the body's nodes (``1 - gamma^2`` on a
         closed body, whose sheet strength is its surface speed: the suction
         peak is resolved better at the nodes than at panel mid-points).
-    weights : ndarray, shape (B, 3, n_nodes) or (3, n_nodes), optional
+    weights : ndarray, shape (B, 4, n_nodes) or (4, n_nodes), optional
         From :func:`stall_weights`. ``Cp_TE`` is the mean pressure of both
-        surfaces at 95 % chord: the inviscid pressure at a trailing-edge node
-        tends to stagnation as the panels shrink and does not converge. Without
-        weights the first and last nodes are used (the classic, panel-dependent reading).
+        surfaces at 95 % chord and ``Cp_min`` is sought ahead of 90 % chord:
+        the inviscid speed at trailing-edge nodes does not converge as the
+        panels shrink. Without weights the first and last nodes are used (the
+        classic, panel-dependent reading).
 
     Returns
     -------
     ndarray, shape (B,)
     """
-    return _te_pressure(cp_nodes, weights) - cp_nodes.min(axis=1)
-
-
-def _te_pressure(cp_nodes, weights):
     if weights is None:
-        return 0.5 * (cp_nodes[:, 0] + cp_nodes[:, -1])
-    w = np.broadcast_to(weights, (cp_nodes.shape[0],) + np.shape(weights)[-2:])
-    return np.einsum("bn,bn->b", w[:, 0], cp_nodes)
+        return 0.5 * (cp_nodes[:, 0] + cp_nodes[:, -1]) - cp_nodes.min(axis=1)
+    return stall_measure(cp_nodes, weights, 0.0)[0]
 
 
 def stall_measure(cp_nodes, weights, aft_weight: float):
@@ -182,7 +188,7 @@ def stall_measure(cp_nodes, weights, aft_weight: float):
     Parameters
     ----------
     cp_nodes : ndarray, shape (B, n_nodes)
-    weights : ndarray, shape (B, 3, n_nodes) or (3, n_nodes)
+    weights : ndarray, shape (B, 4, n_nodes) or (4, n_nodes)
         From :func:`stall_weights`.
     aft_weight : float
         ``k_aft``.
@@ -194,8 +200,8 @@ def stall_measure(cp_nodes, weights, aft_weight: float):
     """
     w = np.broadcast_to(weights, (cp_nodes.shape[0],) + np.shape(weights)[-2:])
     te = np.einsum("bn,bn->b", w[:, 0], cp_nodes)
-    mid = np.einsum("bkn,bn->bk", w[:, 1:], cp_nodes)
-    dcp = te - cp_nodes.min(axis=1)
+    mid = np.einsum("bkn,bn->bk", w[:, 1:3], cp_nodes)
+    dcp = te - np.where(w[:, 3] > 0, cp_nodes, np.inf).min(axis=1)
     return dcp, dcp + aft_weight * np.max(te[:, None] - mid, axis=1)
 
 

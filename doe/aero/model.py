@@ -43,17 +43,19 @@ from threadpoolctl import threadpool_limits
 
 from ..errors import AeroError
 from .atmosphere import ISA_DENSITY, ISA_TEMPERATURE, reynolds
-from .car import CarGeometry, body_contour, min_distance, wing_contour
+from .car import CarGeometry, body_contour, clearance, wing_contour
 from .drag import StallLimit, profile_drag, stall_measure, stall_weights
 from .lifting_line import endplate_aspect_ratio, glauert
 from .panels import Layout, solve_field
-from .sections import naca4
+from .sections import Section, naca4, read_coords
 
 __all__ = ["Coefficients", "COEFFICIENT_RANGES", "STALL_AFT_WEIGHT", "POST_STALL_EXPONENT", "SLANT_WIDTH",
            "FLAP_FADE_CHORD", "ModelSettings", "DesignInput", "DESIGN_INPUTS", "OUTPUTS",
            "RearPackageModel", "ModelResult"]
 
 
+#: Smallest gap, m, between the wing and the body (below it the boundary layers of both would meet).
+MIN_GAP = 0.010
 #: Weight of the aft pressure recovery in the stall measure (set with ``stall_dcp``; model choice).
 STALL_AFT_WEIGHT = 9.0
 #: Exponent ``p`` of the stall limit ``m^-p`` (1/2 holds the lift at its maximum; more makes it fall past it).
@@ -259,6 +261,11 @@ class ModelSettings:
         Air temperature for the viscosity, K.
     wing_panels, body_panels, flap_panels : int
         Panel counts.
+    wing_section : Section, str or Path, optional
+        The wing's section from a coordinate file (read with
+        :func:`doe.aero.sections.read_coords` and repanelled to
+        ``wing_panels``) instead of the NACA 4-digit section of
+        ``wing_camber`` and ``wing_thickness`` (which then have no effect).
     ground : bool
         Ground effect (image method); off only for checks.
     has_wing : bool
@@ -279,6 +286,7 @@ class ModelSettings:
     wing_panels: int = 60
     body_panels: int = 100
     flap_panels: int = 8
+    wing_section: object = None
     ground: bool = True
     has_wing: bool = True
     fixed: dict = field(default_factory=dict)
@@ -298,6 +306,13 @@ class ModelSettings:
             raise AeroError("setting camber_position must be between 0.1 and 0.9 chords")
         if self.body_panels < 40 or self.flap_panels < 2 or self.wing_panels < 20:
             raise AeroError("panel counts: body_panels >= 40, flap_panels >= 2, wing_panels >= 20")
+        sec = self.wing_section
+        if sec is not None and not isinstance(sec, Section):
+            sec = read_coords(sec, n_panels=self.wing_panels)
+        elif sec is not None and sec.n_panels != self.wing_panels:
+            from .sections import repanel
+            sec = repanel(sec, self.wing_panels)
+        object.__setattr__(self, "wing_section", sec)
 
     @property
     def dynamic_pressure(self) -> float:
@@ -361,6 +376,11 @@ class RearPackageModel:
         unknown = set(points) - set(DESIGN_INPUTS)
         if unknown:
             raise AeroError(f"unknown model input '{sorted(unknown)[0]}' (known: {', '.join(DESIGN_INPUTS)})")
+        if self.settings.wing_section is not None:
+            for name in ("wing_camber", "wing_thickness"):
+                if name in points or name in self.settings.fixed:
+                    raise AeroError(f"{name} has no effect when the wing's section comes from a coordinate file "
+                                    f"(wing_section); leave it out")
         return out
 
     def evaluate(self, points: dict, keep_cp: bool = False, batch: int = 16) -> ModelResult:
@@ -421,17 +441,22 @@ class RearPackageModel:
             body = body_contour(st.car, p["flap_angle"], p["flap_chord"] / 1000.0, st.body_panels,
                                 st.flap_panels, st.coefficients.critical_slant,
                                 flap_position=p["flap_position"] / 100.0)
-            m = p["wing_camber"] / 100.0
-            section = naca4(m, st.camber_position, p["wing_thickness"] / 100.0, st.wing_panels)
+            section = st.wing_section
+            if section is None:
+                section = naca4(p["wing_camber"] / 100.0, st.camber_position, p["wing_thickness"] / 100.0,
+                                st.wing_panels)
         except AeroError as exc:
             return str(exc)
         if not st.has_wing:
             return {"body": body, "wing": None, "thickness": section.thickness, "p": p}
         le = st.car.hatch_edge + [p["wing_overhang"] / 1000.0, p["wing_height"] / 1000.0]
         wing = wing_contour(section.points, st.chord, p["wing_aoa"], le)
-        gap = min_distance(wing, body.nodes)
-        if gap < 0.01:
-            return f"the wing comes within {gap * 1000:.0f} mm of the body (at least 10 mm needed)"
+        gap, panel = clearance(wing, body.nodes)
+        need = max(MIN_GAP, panel)
+        if gap < need:
+            what = "touches" if gap == 0.0 else f"comes within {gap * 1000:.1f} mm of"
+            return (f"the wing {what} the body; the panels there ({panel * 1000:.0f} mm) need a gap of at least "
+                    f"{need * 1000:.0f} mm (move the wing away or raise the panel counts)")
         return {"body": body, "wing": wing, "thickness": section.thickness, "p": p,
                 "stall_w": stall_weights(section.points)[:, ::-1]}        # the wing's nodes run backwards
 
