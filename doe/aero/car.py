@@ -381,7 +381,7 @@ def clearance(wing, body):
         much smaller than the panels beside it is not represented by the
         panel method (the flow through it is that of the panels' end points).
     """
-    lo, hi = wing.min(axis=0) - 0.5, wing.max(axis=0) + 0.5
+    lo, hi = wing.min(axis=0) - 0.3, wing.max(axis=0) + 0.3          # farther body nodes cannot be nearest
     keep = np.all((body > lo) & (body < hi), axis=1)
     keep = keep | np.r_[keep[1:], False] | np.r_[False, keep[:-1]]           # and their neighbours
     if keep.sum() < 2:

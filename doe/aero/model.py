@@ -116,7 +116,8 @@ class Coefficients:
     slant_vortex_cd : float
         Drag coefficient, on the frontal area and times ``sin^2`` of the window
         slope, of the trailing vortices that an attached rear-window flow sheds
-        from the rear pillars; it goes with the attached flow. Set so that the
+        from the rear pillars; their suction on the window also lifts (drag
+        over the tangent of the slope); both go with the attached flow. Set so that the
         drag rises from a minimum near 12 degrees to a peak near the critical
         slant (the trend Ahmed, Ramm & Faltin 1984 measured; model choice).
     relief_length : float
@@ -463,7 +464,9 @@ class RearPackageModel:
     def _solve(self, geoms, keep_cp):
         st, co = self.settings, self.settings.coefficients
         nb = len(geoms[0]["body"].nodes)
-        static = geoms[0]["body"].static_nodes                                # front to the roof's rear edge
+        body_nodes = np.stack([g["body"].nodes for g in geoms])
+        same = np.all(body_nodes == body_nodes[:1], axis=(0, 2))             # nodes shared by the whole batch
+        static = nb if same.all() else int(np.argmin(same))                  # (at least front to the roof's edge)
         if st.has_wing:
             layout = Layout(("body", "wing"), (nb, len(geoms[0]["wing"])), (True, False))
             nodes = np.stack([np.vstack([g["body"].nodes, g["wing"]]) for g in geoms])
@@ -672,13 +675,16 @@ class RearPackageModel:
         h_rear = (y * f[..., 0])[:, rear].sum(1) / np.where(np.abs(fx_rear) > 1e-12, fx_rear, 1.0)
         d_rear = fx_rear * w
         phi = np.radians(car.rear_window_angle)
+        # rear-pillar vortices of the attached window flow: their suction on the window gives drag and, normal
+        # to the window, lift d / tan(phi); both go as the flow leaves the roof's edge
         d_vortex = (1.0 - self.slant_separation()) * co.slant_vortex_cd * car.frontal_area * np.sin(phi) ** 2
-        h_vortex = car.roof_rear[1] - 0.5 * car.rear_window_length * np.sin(phi)
+        l_vortex = d_vortex / np.tan(phi)
+        win_mid = 0.5 * (car.roof_rear + car.hatch_edge) - [car.front_axle, 0.0]
         d_base = f_base[:, 0] * w
         d_fore = np.full(len(geoms), co.forebody_cd * car.frontal_area)
         moment = (my * w - d_fore * 0.5 * car.roof_height - d_rear * h_rear - d_base * base_mid[:, 1]
-                  - d_vortex * h_vortex)
-        return {"cla": fy * w, "cda": d_fore + d_rear + d_base + d_vortex, "moment": moment}
+                  - d_vortex * win_mid[1] + l_vortex * win_mid[0])
+        return {"cla": fy * w + l_vortex, "cda": d_fore + d_rear + d_base + d_vortex, "moment": moment}
 
     def _wing_loads(self, geoms, sol, f, x, ws):
         """The wing's CLA and CDA (3-D), and the x and height of its force, m."""
