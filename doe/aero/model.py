@@ -3,18 +3,31 @@
 For each configuration:
 
 1. build the car's centreline contour with its flap and the inverted wing
-   (:mod:`doe.aero.car`), the wing from a NACA 4-digit section (:mod:`doe.aero.sections`);
+   (:mod:`doe.aero.car`), the wing from a NACA 4-digit section or a
+   coordinate file (:mod:`doe.aero.sections`); refuse a wing nearer the body
+   than the panels there can represent;
 2. solve the 2-D potential flow round both in ground effect
-   (:mod:`doe.aero.panels`), with a second solution for a unit upwash at the wing;
+   (:mod:`doe.aero.panels`), with a second solution for a unit upwash at the
+   wing. The velocity the body induces at the wing is scaled by the 3-D body
+   factor, as the body's own loads are; the flow leaves the flap's tip with a
+   weight that grows with the flap's length (so a vanishing flap has a
+   vanishing effect);
 3. correct the wing's circulation to its 3-D value: lifting line with the
    endplate effective aspect ratio (:mod:`doe.aero.lifting_line`), the viscous
-   lift factor and the smooth stall limit (:mod:`doe.aero.drag`), applied as
-   the local upwash that gives that circulation, so that the body feels the
-   3-D wing and not the 2-D one;
-4. integrate pressures: the body's 2-D force is spread over the car's width
-   and scaled by the 3-D body factor; the base carries the base pressure;
+   lift factor and the smooth stall limit (:mod:`doe.aero.drag`: Valarezo-Chin
+   difference plus an aft-recovery term, read at chord stations so that it
+   converges), applied as the local upwash that gives that circulation, so
+   that the body feels the 3-D wing and not the 2-D one;
+4. integrate pressures: the changes the flap and the wing make to the body's
+   centreline pressures are relieved with distance from the flap's root (3-D
+   flow round the car keeps them local), the body's 2-D pressures are scaled
+   by the 3-D body factor and spread over the car's width; the rear window's
+   pressures move smoothly to the base pressure as its slope passes the
+   critical slant; the base carries the base pressure, lower when the flap
+   turns the flow up;
 5. add drag: wing profile, induced and parasite drag; body forebody baseline,
-   rear-window pressure drag and base drag;
+   rear-window pressure drag, the rear-pillar vortices of an attached window
+   flow (which also lift), and base drag;
 6. split the vertical load between the axles from the pitching moment about the
    front contact patch (drag moments included).
 
@@ -23,16 +36,18 @@ upward, so **negative CLA is downforce**; drag and CDA are positive rearward.
 CLA and CDA are in m^2 (force over dynamic pressure).
 
 Assumptions and limits: potential flow with separation fixed by the geometry
-(hatch edge, flap tip or roof edge; the underbody's rear edge); a 2-D
-centreline section stands for the 3-D body through one documented factor; no
-yaw, no cooling flow, no rotating wheels or wheel wells, no engine bay, no
-boundary-layer displacement, no unsteady wake; the stall rule is empirical;
-the lifting line ignores the ground's effect on the trailing vortices. Doubling
-the panels from the defaults moves the body's lift by up to about 1.5 % (first
-order, from the sharp separation edges) and the wing's lift and the drag by
-under 0.5 %; near stall the suction peak, and with it the stall margin and
-the limited lift, is more sensitive (a few per cent). This is a low-order model for ranking and
-planning, not for certifying loads.
+(hatch edge or flap tip; the underbody's rear edge); a 2-D centreline section
+stands for the 3-D body through one factor and a relief length; the slant
+regime, the flap's fade-in, the base-pressure change and the stall measure are
+empirical terms set against published trends (see docs/physics.md and the
+tests); no yaw, no cooling flow, no rotating wheels or wheel wells, no engine
+bay, no boundary-layer displacement, no unsteady wake; the lifting line
+ignores the ground's effect on the trailing vortices. Doubling the panels
+from the defaults moves lift, drag and the stall margin by under 1.5 %
+(reports/benchmarks.md). This is a low-order model for ranking and planning,
+not for certifying loads: aero changes alter high-speed handling, wing mounts
+must carry the loads, and only validated testing and the class's scrutineers
+settle what is safe and legal.
 """
 from __future__ import annotations
 
