@@ -87,3 +87,38 @@ def test_gaps_the_panels_cannot_represent_fail_with_a_reason():
     assert not res.ok[0] and "touches the body" in res.messages[0]
     assert not res.ok[1] and "need a gap of at least" in res.messages[1]
     assert res.ok[2]
+
+
+STUDY = """
+[study]
+name = "t-section-file"
+
+[[parameters]]
+name = "{param}"
+unit = "deg"
+low = 2.0
+high = 8.0
+
+[[responses]]
+name = "cla_wing"
+unit = "m^2"
+
+[evaluator]
+kind = "builtin"
+wing_section = "{section}"
+"""
+
+
+def test_study_reads_wing_section_relative_to_its_folder(tmp_path):
+    from doe.errors import StudyError
+    from doe.evaluators import make_evaluator
+    from doe.study import load_study
+
+    _write(tmp_path / "hl.dat", _high_lift_points(), "high lift")
+    (tmp_path / "s.toml").write_text(STUDY.format(param="wing_aoa", section="hl.dat"))
+    ev = make_evaluator(load_study(tmp_path / "s.toml"))
+    out = ev.evaluate("r1", {"wing_aoa": 4.0})
+    assert out.status == "ok" and out.values["cla_wing"] < -0.3   # the high-lift section, not the default 4412
+    (tmp_path / "bad.toml").write_text(STUDY.format(param="wing_aoa", section="missing.dat"))
+    with pytest.raises(StudyError, match="wing_section"):
+        load_study(tmp_path / "bad.toml")

@@ -578,14 +578,19 @@ class RearPackageModel:
             out[i] = self._wing_3d(sol, g["stall_w"][None], k=0).cl3d[0]
         return out
 
-    def _bare_head_cp(self, n_head: int) -> np.ndarray:
-        """Centreline pressures of the bare car (no flap, no wing) on its first ``n_head`` panels (cached)."""
+    def _bare_head_cp(self, n_head: int):
+        """The bare car's (no flap, no wing) pressures on its first ``n_head`` panels, and their relieved
+        change when the flow leaves the roof's rear edge instead of the hatch edge (both cached)."""
         cache = self.__dict__.setdefault("_bare_cache", {})
         if n_head not in cache:
             st = self.settings
             body = body_contour(st.car, 0.0, 0.0, st.body_panels, st.flap_panels, st.coefficients.critical_slant)
             sol = solve_field(body.nodes, Layout(("body",), (len(body.nodes),), (True,)), ground=st.ground)
-            cache[n_head] = sol.cp()[0, :n_head]
+            head = body.nodes[:n_head + 1]                     # the flow leaving the roof's rear edge
+            sep = solve_field(head, Layout(("body",), (len(head),), (True,)), ground=st.ground)
+            mid = sol.mid[0, :n_head]
+            relief = np.exp(-np.hypot(*(mid - st.car.roof_rear).T) / st.coefficients.relief_length)
+            cache[n_head] = (sol.cp()[0, :n_head], relief * (sep.cp()[0] - sol.cp()[0, :n_head]))
         return cache[n_head]
 
     def slant_separation(self) -> float:
@@ -604,7 +609,9 @@ class RearPackageModel:
 
         Head (front to the roof's rear edge): the bare car's 2-D pressures plus
         the change the flap and the wing make, relieved with distance from the
-        flap's root (``relief_length``), all times ``body_3d_factor``. Rear
+        flap's root (``relief_length``), plus the change of the flow leaving
+        the roof's rear edge (the bare car's, relieved with distance from that
+        edge, times :meth:`slant_separation`), all times ``body_3d_factor``. Rear
         window: its 2-D pressures times the factor while the flow follows it,
         moving to the base pressure as the flow leaves the roof's edge
         (:meth:`slant_separation`). Flap: its 2-D pressures times the factor.
@@ -616,12 +623,12 @@ class RearPackageModel:
         n_win = b.rear_panels - b.flap_panels
         out = np.zeros_like(cp)
         cpb = cp[:, bodyp].copy()
-        bare = self._bare_head_cp(n_head)
+        bare, separated = self._bare_head_cp(n_head)
+        s = self.slant_separation()
         root = np.stack([g["body"].flap_root for g in geoms])[:, None, :]
         dist = np.hypot(*(sol.mid[:, bodyp][:, :n_head] - root).transpose(2, 0, 1))
-        cpb[:, :n_head] = bare + np.exp(-dist / co.relief_length) * (cpb[:, :n_head] - bare)
+        cpb[:, :n_head] = bare + np.exp(-dist / co.relief_length) * (cpb[:, :n_head] - bare) + s * separated
         cpb *= co.body_3d_factor
-        s = self.slant_separation()
         win = slice(n_head, n_head + n_win)
         cpb[:, win] = (1.0 - s) * cpb[:, win] + s * self._base_pressure(geoms)[:, None]
         out[:, bodyp] = cpb
