@@ -65,7 +65,7 @@ from .panels import Layout, solve_field
 from .sections import Section, naca4, read_coords
 
 __all__ = ["Coefficients", "COEFFICIENT_RANGES", "STALL_AFT_WEIGHT", "POST_STALL_EXPONENT", "SLANT_WIDTH",
-           "FLAP_FADE_CHORD", "ModelSettings", "DesignInput", "DESIGN_INPUTS", "OUTPUTS",
+           "FLAP_FADE_CHORD", "FLAP_BASE_FACTOR", "ModelSettings", "DesignInput", "DESIGN_INPUTS", "OUTPUTS",
            "RearPackageModel", "ModelResult"]
 
 
@@ -81,6 +81,9 @@ SLANT_WIDTH = 2.0
 #: condition is ``1 - exp(-c / FLAP_FADE_CHORD)`` (a flap inside the boundary layer does little; model choice
 #: of the order of the boundary-layer thickness at the rear of a car).
 FLAP_FADE_CHORD = 0.015
+#: Fall of the base pressure coefficient with the square of the sine of the flap's angle above the horizontal
+#: (a flap that turns the flow up widens the wake; model choice).
+FLAP_BASE_FACTOR = 0.15
 
 
 @dataclass(frozen=True)
@@ -141,10 +144,6 @@ class Coefficients:
         of the change at distance ``d`` from the flap's root or hatch edge).
         In 2-D such a change moves the whole body's circulation; round a 3-D
         car it stays local (model choice, about a third of the car's width).
-    flap_base_factor : float
-        Fall of the base pressure coefficient with the square of the sine of
-        the flap's angle above the horizontal (a flap that turns the flow up
-        widens the wake; model choice).
     """
 
     body_3d_factor: float = 0.12
@@ -159,7 +158,6 @@ class Coefficients:
     critical_slant: float = 30.0
     slant_vortex_cd: float = 0.15
     relief_length: float = 0.5
-    flap_base_factor: float = 0.15
 
     def __post_init__(self):
         for f in fields(self):
@@ -183,7 +181,6 @@ COEFFICIENT_RANGES = {
     "critical_slant": (20.0, 40.0),
     "slant_vortex_cd": (0.0, 0.3),
     "relief_length": (0.15, 3.0),
-    "flap_base_factor": (0.0, 0.5),
 }
 
 
@@ -470,9 +467,10 @@ class RearPackageModel:
         gap, panel = clearance(wing, body.nodes)
         need = max(MIN_GAP, panel)
         if gap < need:
-            what = "touches" if gap == 0.0 else f"comes within {gap * 1000:.1f} mm of"
-            return (f"the wing {what} the body; the panels there ({panel * 1000:.0f} mm) need a gap of at least "
-                    f"{need * 1000:.0f} mm (move the wing away or raise the panel counts)")
+            what = " (they overlap)" if gap == 0.0 else ""
+            return (f"the wing comes within {gap * 1000:.1f} mm of the body{what}; the panels there "
+                    f"({panel * 1000:.0f} mm) need a gap of at least {need * 1000:.0f} mm (move the wing away or "
+                    f"raise the panel counts)")
         return {"body": body, "wing": wing, "thickness": section.thickness, "p": p,
                 "stall_w": stall_weights(section.points)[:, ::-1]}        # the wing's nodes run backwards
 
@@ -641,7 +639,7 @@ class RearPackageModel:
         chord = np.array([q["flap_chord"] / 1000.0 for q in p])
         up = np.radians(np.array([q["flap_angle"] for q in p]) - car.rear_window_angle)   # above the horizontal
         fade = 1.0 - np.exp(-chord / FLAP_FADE_CHORD)
-        return co.base_pressure - co.flap_base_factor * fade * np.where(up > 0, np.sin(up), 0.0) ** 2
+        return co.base_pressure - FLAP_BASE_FACTOR * fade * np.where(up > 0, np.sin(up), 0.0) ** 2
 
     @staticmethod
     def _panel_forces(sol, cp):
