@@ -1,23 +1,24 @@
 """The body in the built-in model: hatch flap, rear-window slant and base, against published trends."""
 from __future__ import annotations
 
+import sys
 from dataclasses import replace
+from pathlib import Path
 
 import numpy as np
-import pytest
 
 from doe.aero.car import CarGeometry
-from doe.aero.model import ModelSettings, RearPackageModel
+from doe.aero.model import ModelSettings
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from test_aero_model import _run as run_model  # noqa: E402
 
 BARE = replace(ModelSettings(), has_wing=False)
 DEMO_FLAP = np.arange(10.0, 45.1, 5.0)        # the demo study's flap-angle range, deg
 
 
 def _run(settings=BARE, **points):
-    pts = {k: np.atleast_1d(np.asarray(v, dtype=float)) for k, v in points.items()}
-    res = RearPackageModel(settings).evaluate(pts)
-    assert res.ok.all(), res.messages
-    return res.values
+    return run_model(settings, **points)
 
 
 def test_flap_cuts_rear_lift_with_little_front_change():
