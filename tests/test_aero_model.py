@@ -87,18 +87,21 @@ def test_stall_flag_and_plateau():
 
 
 def test_grid_convergence_of_the_car():
-    # doubling every panel count from the defaults: the wing's lift moves by less than 1 % (measured
-    # <= 0.5 %) and the body's by less than 2 % (measured <= 1.4 %, worst with a steep flap under a low
-    # wing; the body converges at first order near its sharp separation edges)
-    pts = dict(flap_angle=[15.0, 35.0, 45.0], wing_aoa=[3.0, 9.0, 14.0], wing_height=[80.0, 160.0, 60.0])
+    # the check: doubling every panel count (wing/body/flap 60/100/8 -> 120/200/16) moves the stall
+    # margin, the lifts and the drag by under 2 % across the demo's ranges (measured: stall margin <= 1.4 %,
+    # lifts <= 1 %, drag <= 0.1 %; the next doubling, in benchmarks/bench_aero.py, moves them less). Lifts
+    # are compared on the scale of the body's lift, since the axle and total lifts pass near zero
+    pts = dict(wing_aoa=[0.0, 0.0, 5.0, 10.0, 15.0, 20.0, 20.0], wing_camber=[2.0, 7.0, 4.0, 2.0, 7.0, 2.0, 7.0],
+               flap_angle=[10.0, 45.0, 30.0, 20.0, 40.0, 10.0, 45.0],
+               wing_height=[60.0, 200.0, 120.0, 80.0, 150.0, 200.0, 60.0],
+               wing_overhang=[0.0, 150.0, 50.0, 100.0, 20.0, 0.0, 150.0])
     coarse = _run(BASE, **pts)
     fine = _run(replace(BASE, wing_panels=2 * BASE.wing_panels, body_panels=2 * BASE.body_panels,
                         flap_panels=2 * BASE.flap_panels), **pts)
-    assert np.all(np.abs(fine["cla_wing"] / coarse["cla_wing"] - 1) < 0.01)
-    # 2 % of the body's lift, or of 0.25 m^2 where the body's lift nearly vanishes (a relative error of a
-    # near-zero lift says nothing)
-    assert np.all(np.abs(fine["cla_body"] - coarse["cla_body"]) < 0.02 * np.maximum(np.abs(coarse["cla_body"]), 0.25))
-    assert np.all(np.abs(fine["cda_total"] / coarse["cda_total"] - 1) < 0.005)
+    for key in ("stall_margin", "cla_wing", "cla_body", "cda_total"):
+        np.testing.assert_allclose(fine[key], coarse[key], rtol=0.02)
+    for key in ("cla_front", "cla_rear", "cla_total"):
+        assert np.all(np.abs(fine[key] - coarse[key]) < 0.02 * np.abs(coarse["cla_body"]))
 
 
 def test_bad_inputs():
