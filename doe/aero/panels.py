@@ -337,7 +337,7 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
     A_n, A_t = _influence(mid, tang, p1, p2, body, layout.n_nodes, ground, static_nodes)
     S_n, S_t = _base_sources(nodes, layout, mid, normal, tang, ground)
     if coupling is not None:
-        _scale_coupling(np.asarray(coupling, dtype=float), layout, body, A_n, A_t, S_n, S_t)
+        _scale_coupling(np.asarray(coupling, dtype=float), layout, A_n, A_t, S_n, S_t)
     v = np.asarray(freestream, dtype=float)
     rhs = [-(normal @ v)]
     onset_t = [tang @ v]
@@ -377,14 +377,15 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
     return FieldSolution(layout, nodes, gamma, qt, mid, normal, length, body, sigma)
 
 
-def _scale_coupling(c, layout, body, A_n, A_t, S_n, S_t):
+def _scale_coupling(c, layout, A_n, A_t, S_n, S_t):
     """Scale, in place, the influence of body ``j`` on body ``i``'s collocation points by ``c[i, j]``."""
     nb = len(layout.names)
     if c.shape != (nb, nb) or not np.allclose(np.diag(c), 1.0) or not np.all(np.isfinite(c)):
         raise AeroError(f"coupling must be a {nb} x {nb} matrix with ones on its diagonal")
     src = np.cumsum(layout.bluff) - 1                            # base-source column of each bluff body
+    first = np.r_[0, np.cumsum(np.asarray(layout.nodes) - 1)]    # panels of each body are contiguous
     for i in range(nb):
-        rows = body == i
+        rows = slice(first[i], first[i + 1])
         for j in range(nb):
             if i == j or c[i, j] == 1.0:
                 continue
