@@ -63,3 +63,15 @@ def test_ground_effect_has_a_viscous_limit():
     assert np.all(np.diff(cl[peak:]) > 0)               # and rises steadily above it
     # magnitude: peak sectional downforce of order 1.5 (Zerihan & Zhang's measured maximum about 1.7; memory)
     assert 1.2 < -cl[peak] < 2.0
+
+
+def test_section_analysis_reports_the_limited_lift():
+    # `doe section` (analyse_section) gives the same viscous, stall-limited lift as the model's lift curve
+    from doe.aero.section_analysis import analyse_section
+
+    sec = naca4(0.04, 0.4, 0.12, 60)
+    for alpha in (4.0, 16.0):
+        res = analyse_section(sec, alpha)
+        cl, margin = section_lift_curve(sec, [alpha])
+        assert res.cl_viscous == pytest.approx(cl[0], rel=1e-9)
+        assert res.stall_margin == pytest.approx(margin[0], rel=1e-9)

@@ -45,6 +45,12 @@ class SectionResult:
         Panel mid-points (chords, section axes before rotation) and pressure coefficients.
     dcp : float
         Valarezo-Chin pressure difference ``Cp_TE - Cp_min`` (``Cp_TE`` read at 95 % chord).
+    cl_viscous : float
+        The built-in model's viscous, stall-limited lift coefficient of the
+        same section (see :func:`section_lift_curve`; near the ground this is
+        where the viscous limit of ground effect shows).
+    stall_margin : float
+        The model's stall measure over its critical value (stall at 1).
     """
 
     name: str
@@ -58,12 +64,15 @@ class SectionResult:
     y: np.ndarray
     cp: np.ndarray
     dcp: float
+    cl_viscous: float = float("nan")
+    stall_margin: float = float("nan")
 
     def to_dict(self) -> dict:
         """JSON-ready record (keys documented in :func:`analyse_section`)."""
         return {"section": self.name, "alpha_deg": self.alpha, "cl": self.cl, "cl_pressure": self.cl_pressure,
                 "cm_quarter": self.cm_quarter, "ground_height_chords": self.ground_height,
-                "inverted": self.inverted, "dcp": self.dcp,
+                "inverted": self.inverted, "dcp": self.dcp, "cl_viscous": self.cl_viscous,
+                "stall_margin": self.stall_margin,
                 "pressure": {"x": self.x.tolist(), "y": self.y.tolist(), "cp": self.cp.tolist()}}
 
 
@@ -109,8 +118,9 @@ def analyse_section(section: Section, alpha_deg: float, ground_height: float | N
     SectionResult
         JSON keys of :meth:`SectionResult.to_dict`: ``section``, ``alpha_deg``,
         ``cl``, ``cl_pressure``, ``cm_quarter`` (about x/c = 0.25, clockwise
-        positive: nose-up for an upright section), ``ground_height_chords``, ``inverted``, ``dcp``, and
-        ``pressure`` with lists ``x``, ``y`` (chords) and ``cp``.
+        positive: nose-up for an upright section), ``ground_height_chords``, ``inverted``, ``dcp``,
+        ``cl_viscous`` and ``stall_margin`` (the built-in model's viscous, stall-limited lift and its
+        stall measure over the critical value), and ``pressure`` with lists ``x``, ``y`` (chords) and ``cp``.
     """
     if not np.isfinite(alpha_deg) or abs(alpha_deg) > 30:
         raise AeroError(f"angle of attack {alpha_deg!r} deg must be between -30 and 30")
@@ -132,9 +142,22 @@ def analyse_section(section: Section, alpha_deg: float, ground_height: float | N
     mid_local = (sol.mid[0] - [0.0, ground_height or 0.0] - quarter) @ rot + quarter
     if inverted:
         mid_local = mid_local * [1.0, -1.0]
-    dcp = float(pressure_difference(1.0 - sol.node_strength() ** 2, _stall_weights(section, inverted))[0])
+    weights = _stall_weights(section, inverted)
+    dcp = float(pressure_difference(1.0 - sol.node_strength() ** 2, weights)[0])
+    cl_v, margin = _limited(cl, 1.0 - sol.node_strength() ** 2, weights, None)
     return SectionResult(section.name, float(alpha_deg), cl, cl_p, -mz,
-                         ground_height, inverted, mid_local[:, 0], mid_local[:, 1], cp[0], dcp)
+                         ground_height, inverted, mid_local[:, 0], mid_local[:, 1], cp[0], dcp,
+                         float(cl_v[0]), float(margin[0]))
+
+
+def _limited(cl_inviscid, cp_nodes, weights, coefficients):
+    """The model's viscous, stall-limited lift and stall margin from inviscid lift and node pressures."""
+    from .model import POST_STALL_EXPONENT, STALL_AFT_WEIGHT, Coefficients
+
+    co = coefficients or Coefficients()
+    _, measure = stall_measure(cp_nodes, weights, STALL_AFT_WEIGHT)
+    factor, _, _ = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag, POST_STALL_EXPONENT).apply(measure)
+    return co.viscous_lift_factor * np.asarray(cl_inviscid) * factor, measure / co.stall_dcp
 
 
 def section_lift_curve(section: Section, alphas, coefficients=None, ground_gap=None, inverted: bool = False):
@@ -173,9 +196,6 @@ def section_lift_curve(section: Section, alphas, coefficients=None, ground_gap=N
     .. [1] Zerihan, J., Zhang, X. (2000). Aerodynamics of a single element wing
        in ground effect. Journal of Aircraft 37(6), 1058-1064.
     """
-    from .model import POST_STALL_EXPONENT, STALL_AFT_WEIGHT, Coefficients
-
-    co = coefficients or Coefficients()
     alphas = np.atleast_1d(np.asarray(alphas, dtype=float))
     if not np.all(np.isfinite(alphas)) or np.any(np.abs(alphas) > 30):
         raise AeroError("angles of attack must be between -30 and 30 deg")
@@ -193,6 +213,4 @@ def section_lift_curve(section: Section, alphas, coefficients=None, ground_gap=N
         cl_inv = 2.0 * sol.circulation()[:, 0]                   # Kutta-Joukowski, chord 1, unit speed
     else:
         cl_inv = sol.sheet_forces()[..., 1].sum(axis=1)
-    _, measure = stall_measure(1.0 - sol.node_strength() ** 2, _stall_weights(section, inverted), STALL_AFT_WEIGHT)
-    factor, _, _ = StallLimit(co.stall_dcp, co.stall_width, co.post_stall_drag, POST_STALL_EXPONENT).apply(measure)
-    return co.viscous_lift_factor * cl_inv * factor, measure / co.stall_dcp
+    return _limited(cl_inv, 1.0 - sol.node_strength() ** 2, _stall_weights(section, inverted), coefficients)
