@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from threadpoolctl import threadpool_limits
 
 from ..errors import AeroError
 from .drag import StallLimit, pressure_difference, stall_measure, stall_weights
@@ -208,7 +209,8 @@ def section_lift_curve(section: Section, alphas, coefficients=None, ground_gap=N
             w = w + [0.0, ground_gap - w[:, 1].min()]
         worlds.append(w)
     worlds = np.stack(worlds)
-    sol = solve_field(worlds, Layout(("section",), (worlds.shape[1],)), ground=ground_gap is not None)
+    with threadpool_limits(limits=1, user_api="blas"):       # small matrices: threads only contend
+        sol = solve_field(worlds, Layout(("section",), (worlds.shape[1],)), ground=ground_gap is not None)
     if ground_gap is None:
         cl_inv = 2.0 * sol.circulation()[:, 0]                   # Kutta-Joukowski, chord 1, unit speed
     else:
