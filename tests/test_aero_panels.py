@@ -182,13 +182,3 @@ def test_batch_equals_one_by_one_and_cache():
     for i in range(3):
         one = solve_field(nodes[i], lay, ground=True)
         np.testing.assert_allclose(batch.gamma[i], one.gamma[0], atol=1e-11)
-
-
-@pytest.mark.parametrize("m, p", [(0.0, 0.0), (0.02, 0.4), (0.04, 0.4)])
-def test_stall_criterion_gives_plausible_stall_angles(m, p):
-    # Valarezo & Chin 1994 rule with the model's default criterion: 12 % NACA 4-digit sections stall
-    # near 14-16 deg at Re of a few million (Abbott & von Doenhoff 1959, App. IV; memory: loose 12-18 band)
-    crit = Coefficients().stall_dcp
-    sec = naca4(m, p, 0.12)
-    first = next(a for a in np.arange(8.0, 24.0, 0.5) if analyse_section(sec, a).dcp >= crit)
-    assert 12.0 <= first <= 18.0

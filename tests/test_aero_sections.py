@@ -57,8 +57,9 @@ def _write(path, pts, header="test section"):
 
 
 def test_coordinate_file_round_trip(tmp_path):
-    # a file's chord is the longest line from the trailing edge; for a 2412 that ends at the NACA leading edge
-    ref = naca4(0.02, 0.4, 0.12, n_panels=160)
+    # a file's chord is the longest line from the trailing edge; for a 2412 with plain cosine spacing that
+    # ends at the NACA leading edge node (denser leading-edge spacing puts a node a hair further away)
+    ref = naca4(0.02, 0.4, 0.12, n_panels=160, le_stretch=1.0)
     selig = ref.points[::-1]                          # upper TE -> LE -> lower TE, the common file order
     got = read_coords(_write(tmp_path / "s.dat", selig), n_panels=None)
     assert got.name == "test section"

@@ -9,19 +9,19 @@ the rear overhang, a round nose, bonnet, raked windscreen, roof, rear window
 down to the hatch edge. The contour starts at the rear end of the underbody
 (where the flow leaves the underside) and ends at the edge where the flow
 leaves the upper side: the flap's tip when a flap is fitted, otherwise the
-hatch edge, or the roof's rear edge when the rear window is steeper than the
-critical slant (the flow then cannot follow the window; Ahmed, Ramm & Faltin
-1984 found the flow over a rear slant separates from the slant's top edge
-above about 30 degrees). The gap between these two separation edges is the
-base, the region of separated flow behind the car, which the panel method
-leaves open.
+hatch edge. The gap between these two separation edges is the base, the
+region of separated flow behind the car, which the panel method leaves open.
+A rear window steeper than the critical slant is still panelled (Ahmed, Ramm
+& Faltin 1984 found the flow over a rear slant leaves the slant's top edge
+above about 30 degrees): the model moves its pressures smoothly towards the
+base pressure instead of switching the contour (see :mod:`doe.aero.model`).
 
-The flap is a plate mounted flush at the hatch edge, without a slot; it is
-panelled as the last part of the body's upper contour (its underside faces the
-base and carries the base pressure). Its angle is measured up from the line of
-the rear window. When the window is steeper than the critical slant the flap
-is taken to sit on the roof's rear edge instead (a roof spoiler), its angle
-measured up from the horizontal.
+The flap is a plate without a slot whose root sits on the rear window: at the
+hatch edge by default, or further up the window, up to the roof's rear edge
+(``flap_position``); the window behind it lies in its wake. It is panelled as
+the last part of the body's upper contour (its underside faces the base and
+carries the base pressure). Its angle is measured up from the line of the
+rear window.
 
 The wing is an inverted section: its suction side faces the ground. Its angle
 of attack is positive when the trailing edge is above the leading edge (more
@@ -41,7 +41,7 @@ import numpy as np
 
 from ..errors import AeroError
 
-__all__ = ["CarGeometry", "BodyContour", "body_contour", "wing_contour", "min_distance"]
+__all__ = ["CarGeometry", "BodyContour", "body_contour", "wing_contour", "min_distance", "clearance", "window_panels"]
 
 
 @dataclass(frozen=True)
@@ -158,9 +158,15 @@ class BodyContour:
     flap_panels : int
         Number of panels on the flap (the last ones of the contour).
     rear_panels : int
-        Panels aft of the roof's rear edge (rear window and flap).
+        Panels aft of the roof's rear edge (the rear window ahead of the flap, and the flap).
     separation_at_roof : bool
-        Whether the flow leaves at the roof's rear edge (window steeper than critical).
+        Whether the rear window is steeper than the critical slant (the
+        model then lets its flow leave the roof's rear edge, smoothly; see
+        :mod:`doe.aero.model`).
+    static_nodes : int
+        Leading nodes that are the same for every flap (front to the roof's rear edge).
+    flap_root : ndarray, shape (2,)
+        Where the flap (or, without one, the contour) ends on the rear window, m.
     """
 
     nodes: np.ndarray
@@ -169,6 +175,8 @@ class BodyContour:
     flap_panels: int
     rear_panels: int
     separation_at_roof: bool
+    static_nodes: int = 0
+    flap_root: np.ndarray = None
 
 
 def _fillet(points, radius, n_arc):
@@ -207,9 +215,20 @@ def _resample(poly, n, cluster_ends=True):
     return np.column_stack([np.interp(u * s[-1], s, poly[:, 0]), np.interp(u * s[-1], s, poly[:, 1])])
 
 
+def _rear_share(n_body: int) -> int:
+    """Panels on the rear window (roof's rear edge to hatch edge) out of ``n_body``."""
+    return max(6, int(round(n_body * 0.12)))
+
+
 @lru_cache(maxsize=16)
-def _car_outline(car: CarGeometry, n_body: int, critical_slant: float):
-    """Nodes of the car without its flap (cached: the same for every configuration of a study)."""
+def _car_outline(car: CarGeometry, n_body: int, critical_slant: float = 30.0):
+    """Nodes of the car without its flap (cached: the same for every configuration of a study).
+
+    Returns the nodes from the underbody's rear end to the hatch edge, the
+    number of rear-window panels (the last ones) and whether the window is
+    steeper than ``critical_slant`` (the contour includes the window either
+    way; the model treats the steep window's separation smoothly).
+    """
     L, hc = car.length, car.ground_clearance
     kick = car.rear_axle + 0.25 * car.rear_overhang
     lower = np.array([L, hc + car.rear_lift])
@@ -217,25 +236,25 @@ def _car_outline(car: CarGeometry, n_body: int, critical_slant: float):
     rt = rr - [car.roof_length, 0.0]
     steep = car.rear_window_angle > critical_slant
     key = [lower, [kick, hc], [0.25, hc], [0.0, 0.5 * (hc + car.nose_height)], [0.12, car.nose_height],
-           ws, rt, rr]
-    radii = [0.30, 0.25, 0.25, 0.20, 0.10, 0.30] + ([] if steep else [0.25])
-    if not steep:
-        key.append(he)
+           ws, rt, rr, he]
+    radii = [0.30, 0.25, 0.25, 0.20, 0.10, 0.30, 0.25]
     poly = _fillet(np.array(key, dtype=float), radii, 9)
-    n_rear = 0 if steep else max(6, int(round(n_body * 0.12)))
-    if steep:
-        main = _resample(poly, n_body)
-    else:
-        i_rr = int(np.argmin(np.hypot(*(poly - rr).T)))
-        head = _resample(poly[: i_rr + 1], n_body - n_rear)
-        window = _resample(np.array([head[-1], he]), n_rear)
-        main = np.vstack([head, window[1:]])
+    n_rear = _rear_share(n_body)
+    i_rr = int(np.argmin(np.hypot(*(poly - rr).T)))
+    head = _resample(poly[: i_rr + 1], n_body - n_rear)
+    window = _resample(np.array([head[-1], he]), n_rear)
+    main = np.vstack([head, window[1:]])
     main.setflags(write=False)
     return main, n_rear, steep
 
 
+def window_panels(n_rear: int, flap_position: float) -> int:
+    """Panels kept on the rear window ahead of a flap whose root is ``flap_position`` of the way up it."""
+    return int(np.ceil(n_rear * (1.0 - flap_position) - 1e-9))
+
+
 def body_contour(car: CarGeometry, flap_angle, flap_chord: float, n_body: int, n_flap: int,
-                 critical_slant: float = 30.0) -> BodyContour:
+                 critical_slant: float = 30.0, *, flap_position: float = 0.0) -> BodyContour:
     """Panel nodes of the centreline profile, with the flap (see the module docstring).
 
     Parameters
@@ -246,26 +265,45 @@ def body_contour(car: CarGeometry, flap_angle, flap_chord: float, n_body: int, n
     flap_chord : float
         Flap length, m; 0 for no flap.
     n_body : int
-        Panels on the body without the flap.
+        Panels on the body without the flap (when the flap sits up the window,
+        the window panels behind it are dropped).
     n_flap : int
         Panels on the flap (ignored without one).
     critical_slant : float
-        Rear-window slope, degrees, above which the flow leaves at the roof's rear edge.
+        Rear-window slope, degrees, above which the window counts as steep (``separation_at_roof``).
+    flap_position : float, keyword-only
+        Where the flap's root sits on the rear window: 0 at the hatch edge,
+        1 at the roof's rear edge (fraction of the window length). The window
+        behind the flap lies in its wake (the base).
 
     Returns
     -------
     BodyContour
     """
-    main, n_rear_share, steep = _car_outline(car, n_body, critical_slant)
-    he, rr = car.hatch_edge, car.roof_rear
-    lower = main[0]
-    rear_panels = n_rear_share
-    flap_panels = 0
-    edge = main[-1]
     if flap_chord < 0:
         raise AeroError(f"flap chord {flap_chord:g} m must be >= 0")
+    if not 0.0 <= flap_position <= 1.0:
+        raise AeroError(f"flap position {flap_position:g} must be between 0 (hatch edge) and 1 (roof's rear edge)")
+    main, n_rear, steep = _car_outline(car, n_body, critical_slant)
+    he, rr = car.hatch_edge, car.roof_rear
+    lower = main[0]
+    n_static = len(main) - n_rear
+    flap_panels = 0
+    if flap_chord > 0 and flap_position > 0:                 # the window ends at the flap's root
+        root = he + flap_position * (rr - he)
+        n_win = window_panels(n_rear, flap_position)
+        if n_win:
+            window = _resample(np.array([main[n_static - 1], root]), n_win)
+            main = np.vstack([main[:n_static], window[1:]])
+        else:
+            main = main[:n_static]
+        rear_panels = n_win
+    else:
+        rear_panels = n_rear
+    root = main[-1]
+    edge = root
     if flap_chord > 0:
-        base_dir = (he - rr) / np.hypot(*(he - rr)) if not steep else np.array([1.0, 0.0])
+        base_dir = (he - rr) / np.hypot(*(he - rr))
         ang = np.radians(flap_angle)
         d = np.array([base_dir[0] * np.cos(ang) - base_dir[1] * np.sin(ang),
                       base_dir[0] * np.sin(ang) + base_dir[1] * np.cos(ang)])
@@ -275,7 +313,7 @@ def body_contour(car: CarGeometry, flap_angle, flap_chord: float, n_body: int, n
         flap_panels = n_flap
         rear_panels += n_flap
         edge = flap[-1]
-    return BodyContour(main, edge, lower, flap_panels, rear_panels, steep)
+    return BodyContour(main, edge, lower, flap_panels, rear_panels, steep, n_static, root)
 
 
 def wing_contour(section_points, chord: float, aoa_deg, leading_edge) -> np.ndarray:
@@ -302,6 +340,65 @@ def wing_contour(section_points, chord: float, aoa_deg, leading_edge) -> np.ndar
     a = np.radians(aoa_deg)
     rot = np.array([[np.cos(a), -np.sin(a)], [np.sin(a), np.cos(a)]])
     return p @ rot.T + np.asarray(leading_edge, dtype=float)
+
+
+def _node_to_panels(nodes, contour):
+    """Distances (N, S) from nodes to the panels of a contour, and the panels' lengths (S,)."""
+    p1, p2 = contour[:-1], contour[1:]
+    seg = p2 - p1
+    length = np.hypot(seg[:, 0], seg[:, 1])
+    rel = nodes[:, None, :] - p1[None]
+    t = np.clip(np.einsum("wsk,sk->ws", rel, seg) / (length**2)[None], 0.0, 1.0)
+    return np.hypot(*(rel - t[..., None] * seg[None]).transpose(2, 0, 1)), length
+
+
+def _crosses(a, b) -> bool:
+    """Whether any panel of contour ``a`` crosses any panel of contour ``b``."""
+    a1, a2, b1, b2 = a[:-1, None], a[1:, None], b[None, :-1], b[None, 1:]
+
+    def orient(p, q, r):
+        return np.sign((q[..., 0] - p[..., 0]) * (r[..., 1] - p[..., 1]) - (q[..., 1] - p[..., 1]) * (r[..., 0] - p[..., 0]))
+    return bool(np.any((orient(a1, a2, b1) * orient(a1, a2, b2) < 0) & (orient(b1, b2, a1) * orient(b1, b2, a2) < 0)))
+
+
+def clearance(wing, body):
+    """Smallest distance between the wing and the body's panels, and the panel length there, m.
+
+    Parameters
+    ----------
+    wing : ndarray, shape (n + 1, 2)
+        Wing nodes (a closed contour).
+    body : ndarray, shape (m + 1, 2)
+        Body nodes (an open contour).
+
+    Returns
+    -------
+    gap : float
+        Smallest distance from a node of either contour to a panel of the
+        other (0 when their panels cross).
+    panel : float
+        The longest panel on either side of that closest approach: a gap
+        much smaller than the panels beside it is not represented by the
+        panel method (the flow through it is that of the panels' end points).
+    """
+    lo, hi = wing.min(axis=0) - 0.3, wing.max(axis=0) + 0.3          # farther body nodes cannot be nearest
+    keep = np.all((body > lo) & (body < hi), axis=1)
+    keep = keep | np.r_[keep[1:], False] | np.r_[False, keep[:-1]]           # and their neighbours
+    if keep.sum() < 2:
+        return np.inf, 0.0
+    idx = np.flatnonzero(keep)
+    body = body[idx[0]: idx[-1] + 1]
+    if _crosses(wing, body):
+        return 0.0, float(np.max(np.hypot(*np.diff(body, axis=0).T)))
+    d_wb, l_b = _node_to_panels(wing, body)
+    d_bw, l_w = _node_to_panels(body, wing)
+    if d_wb.min() <= d_bw.min():
+        i, j = np.unravel_index(np.argmin(d_wb), d_wb.shape)
+        local = max(l_b[j], l_w[max(i - 1, 0)], l_w[min(i, len(l_w) - 1)])
+        return float(d_wb[i, j]), float(local)
+    i, j = np.unravel_index(np.argmin(d_bw), d_bw.shape)
+    local = max(l_w[j], l_b[max(i - 1, 0)], l_b[min(i, len(l_b) - 1)])
+    return float(d_bw[i, j]), float(local)
 
 
 def min_distance(a, b) -> float:

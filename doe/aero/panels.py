@@ -262,7 +262,8 @@ def signed_area(points) -> np.ndarray:
 
 
 def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = False,
-                upwash_body: str | None = None, static_nodes: int = 0) -> FieldSolution:
+                upwash_body: str | None = None, static_nodes: int = 0, coupling=None,
+                upper_edge=None) -> FieldSolution:
     """Solve the potential flow round the bodies of one or several configurations.
 
     A lifting body (a section) gets the Kutta condition ``gamma_first +
@@ -293,6 +294,18 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
     static_nodes : int
         How many leading nodes are the same in every configuration and call
         (their mutual influence is computed once and cached); 0 for none.
+    coupling : array_like, shape (n_bodies, n_bodies), optional
+        ``coupling[i, j]`` scales the velocity that body ``j`` (its vortex
+        sheet, base source and their images) induces on body ``i``; the
+        diagonal must be 1. Default: all ones (one potential flow). Used to
+        relieve a 2-D body's influence on a wing the way the 3-D body relieves
+        its own loads (see :mod:`doe.aero.model`).
+    upper_edge : tuple (int, array_like), optional
+        ``(node, w)``: on the first bluff body the condition at the upper edge
+        becomes ``(1 - w) gamma_node + w gamma_last = 0``, ``w`` of shape
+        ``(B,)`` in [0, 1]: the flow leaves the last node (w = 1), an earlier
+        node such as a short flap's root (w = 0), or a blend. A flap whose
+        effect fades with its length uses it.
 
     Returns
     -------
@@ -323,6 +336,8 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
         static_nodes = 0                                                # not the same in the whole batch
     A_n, A_t = _influence(mid, tang, p1, p2, body, layout.n_nodes, ground, static_nodes)
     S_n, S_t = _base_sources(nodes, layout, mid, normal, tang, ground)
+    if coupling is not None:
+        _scale_coupling(np.asarray(coupling, dtype=float), layout, A_n, A_t, S_n, S_t)
     v = np.asarray(freestream, dtype=float)
     rhs = [-(normal @ v)]
     onset_t = [tang @ v]
@@ -345,7 +360,13 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
             row += 1
         else:                                                           # regular flow at both edges
             M[:, row, first] = 1.0
-            M[:, row + 1, last] = 1.0
+            if upper_edge is not None and k == layout.bluff.index(True):
+                node, w = upper_edge
+                w = np.broadcast_to(np.asarray(w, dtype=float), (nodes.shape[0],))
+                M[:, row + 1, first + node] += 1.0 - w
+                M[:, row + 1, last] += w
+            else:
+                M[:, row + 1, last] = 1.0
             row += 2
     try:
         unknowns = np.linalg.solve(M, R)
@@ -354,6 +375,26 @@ def solve_field(nodes, layout: Layout, freestream=(1.0, 0.0), ground: bool = Fal
     gamma, sigma = unknowns[:, :N], unknowns[:, N:]
     qt = np.stack(onset_t, axis=-1) + A_t @ gamma + S_t @ sigma
     return FieldSolution(layout, nodes, gamma, qt, mid, normal, length, body, sigma)
+
+
+def _scale_coupling(c, layout, A_n, A_t, S_n, S_t):
+    """Scale, in place, the influence of body ``j`` on body ``i``'s collocation points by ``c[i, j]``."""
+    nb = len(layout.names)
+    if c.shape != (nb, nb) or not np.allclose(np.diag(c), 1.0) or not np.all(np.isfinite(c)):
+        raise AeroError(f"coupling must be a {nb} x {nb} matrix with ones on its diagonal")
+    src = np.cumsum(layout.bluff) - 1                            # base-source column of each bluff body
+    first = np.r_[0, np.cumsum(np.asarray(layout.nodes) - 1)]    # panels of each body are contiguous
+    for i in range(nb):
+        rows = slice(first[i], first[i + 1])
+        for j in range(nb):
+            if i == j or c[i, j] == 1.0:
+                continue
+            cols = slice(layout.starts[j], layout.starts[j] + layout.nodes[j])
+            for A in (A_n, A_t):
+                A[:, rows, cols] *= c[i, j]
+            if layout.bluff[j]:
+                for S in (S_n, S_t):
+                    S[:, rows, src[j]] *= c[i, j]
 
 
 def _base_sources(nodes, layout, mid, normal, tang, ground):

@@ -36,6 +36,7 @@ Study keys (all optional; defaults in brackets)::
     wing_panels = 60         # panels on the wing section          [60]
     body_panels = 100        # panels on the body without the flap [100]
     flap_panels = 8          # panels on the flap                  [8]
+    wing_section = "s.dat"   # wing section from a coordinate file (then no wing_camber/thickness) [NACA]
     wing = true              # false: the car and flap alone       [true]
     ground = true            # false: free air (no ground image)   [true]
     flap_chord = 60.0        # any design input not varied, in model units (mm, deg, % chord)
@@ -63,6 +64,7 @@ import numpy as np
 
 from ...aero.car import CarGeometry
 from ...aero.model import DESIGN_INPUTS, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
+from ...aero.sections import read_coords
 from ...errors import AeroError, DoeError
 from .base import Evaluator, Outcome, failed
 from .calibration_file import read_calibrated_coefficients
@@ -111,6 +113,14 @@ def read_builtin_settings(study, evaluator=None) -> tuple[ModelSettings, dict]:
     kw["has_wing"] = t.take("wing", bool, default=True)
     kw["ground"] = t.take("ground", bool, default=True)
     names = study.space.names
+    section = t.take("wing_section", str, default=None)
+    if section is not None:
+        if {"wing_camber", "wing_thickness"} & set(names):
+            raise t.error("wing_section", "a section from a file has no wing_camber or wing_thickness to vary")
+        try:
+            kw["wing_section"] = read_coords(study.resolve(section), n_panels=kw["wing_panels"])
+        except AeroError as exc:
+            raise t.error("wing_section", str(exc)) from exc
     fixed = {}
     for name, d in DESIGN_INPUTS.items():
         if t.has(name) and name in names:
