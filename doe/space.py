@@ -212,6 +212,12 @@ class Space:
         """Column indices of the choice knobs."""
         return [j for j, p in enumerate(self.parameters) if p.levels]
 
+    def refuse_choices(self, step: str) -> None:
+        """Raise a one-line DoeError when the space has choice knobs that ``step`` cannot handle yet."""
+        if self.choices:
+            raise DoeError(f"choice knobs are not yet supported by {step}; "
+                           f"the study's choice knobs: {', '.join(p.name for p in self.choices)}")
+
     def settable(self) -> "Space":
         """The space without its choice knobs (continuous and stepped knobs, same constraints)."""
         rest = tuple(p for p in self.parameters if not p.levels)

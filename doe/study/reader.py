@@ -30,6 +30,12 @@ Minimal example::
     runs = 40
     seed = 1
 
+Besides a continuous range, a parameter may be a stepped knob (``low``,
+``high`` and ``step``, the range a whole number of steps; or ``values = [0, 5,
+10]`` instead of the range) or a choice knob (``levels = ["on", "off"]`` or
+section file names; no range, step or tolerance; ``unit`` optional). A
+constraint may not weigh a choice knob.
+
 Optional tables for robust settings and vehicle figures (see
 ``studies/demo_vehicle.toml`` for a full example):
 
