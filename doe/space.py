@@ -4,6 +4,16 @@ Every plan is generated in the unit hypercube ``[0, 1]^d`` and converted to the
 study's units by :meth:`Space.from_unit`; :meth:`Space.to_unit` goes back. Points
 are always 2-D arrays of shape ``(n, d)`` with columns in the order of
 :attr:`Space.names`.
+
+Three kinds of knob share these arrays:
+
+* continuous: any value in ``[low, high]``, scaled linearly;
+* stepped: only the listed ``values`` (a wing mount with holes every 2 deg);
+  scaled linearly like a continuous knob, and :meth:`Space.from_unit` snaps
+  each value to the nearest step;
+* choice: named ``levels`` (a wing section, the flap on or off); the column holds
+  the level's index ``0 .. L-1`` in study units and in the unit cube alike (never
+  scaled, never interpolated).
 """
 from __future__ import annotations
 
@@ -33,6 +43,12 @@ class Parameter:
         0 when the setting is exact.
     description : str
         Free text shown in reports.
+    values : tuple of float
+        Stepped knob: the allowed settings, increasing (``low`` and ``high`` are
+        the first and last); empty for a continuous knob.
+    levels : tuple of str
+        Choice knob: the level names; the column then holds the index ``0 .. L-1``
+        (``low = 0``, ``high = L-1``); empty for other knobs.
     """
 
     name: str
@@ -41,6 +57,47 @@ class Parameter:
     high: float
     tolerance: float = 0.0
     description: str = ""
+    values: tuple = ()
+    levels: tuple = ()
+
+    @classmethod
+    def choice(cls, name: str, levels, description: str = "") -> "Parameter":
+        """A choice knob over named ``levels`` (at least two, all different)."""
+        levels = tuple(str(v) for v in levels)
+        if len(levels) < 2 or len(set(levels)) != len(levels):
+            raise DoeError(f"choice '{name}' needs at least two different levels, got {list(levels)}")
+        return cls(name, "-", 0.0, float(len(levels) - 1), 0.0, description, levels=levels)
+
+    @classmethod
+    def stepped(cls, name: str, unit: str, values, tolerance: float = 0.0, description: str = "") -> "Parameter":
+        """A stepped knob taking only ``values`` (at least two, all different; sorted here)."""
+        values = tuple(sorted(float(v) for v in values))
+        if len(values) < 2 or len(set(values)) != len(values):
+            raise DoeError(f"stepped knob '{name}' needs at least two different values, got {list(values)}")
+        return cls(name, unit, values[0], values[-1], tolerance, description, values=values)
+
+    @property
+    def kind(self) -> str:
+        """``"choice"``, ``"stepped"`` or ``"continuous"``."""
+        return "choice" if self.levels else "stepped" if self.values else "continuous"
+
+    def snap(self, x) -> np.ndarray:
+        """The allowed setting nearest to each of ``x`` (study units); ``x`` itself for a continuous knob."""
+        x = np.asarray(x, dtype=float)
+        if self.levels:
+            return np.clip(np.rint(x), 0, len(self.levels) - 1)
+        if not self.values:
+            return x
+        v = np.asarray(self.values)
+        i = np.clip(np.searchsorted(v, x), 1, len(v) - 1)
+        return np.where(np.abs(x - v[i - 1]) <= np.abs(v[i] - x), v[i - 1], v[i])
+
+    def level_index(self, level: str) -> int:
+        """Index of a level name of a choice knob; a DoeError for an unknown name."""
+        try:
+            return self.levels.index(level)
+        except ValueError:
+            raise DoeError(f"'{level}' is not a level of '{self.name}' (levels: {', '.join(self.levels)})") from None
 
     @property
     def span(self) -> float:
@@ -128,6 +185,11 @@ class Space:
         names = [p.name for p in self.parameters]
         if len(set(names)) != len(names):
             raise DoeError(f"parameter names repeat: {names}")
+        levels = {p.name for p in self.parameters if p.levels}
+        for c in self.constraints:
+            used = sorted(levels & set(c.terms))
+            if used:
+                raise DoeError(f"constraint '{c.name}' uses the choice knob '{used[0]}'; a choice has no value to weigh")
 
     # -- basic facts -------------------------------------------------------
     @property
@@ -139,6 +201,29 @@ class Space:
     def dim(self) -> int:
         """Number of parameters."""
         return len(self.parameters)
+
+    @property
+    def choices(self) -> list:
+        """The choice knobs (named levels), in column order."""
+        return [p for p in self.parameters if p.levels]
+
+    @property
+    def choice_columns(self) -> list:
+        """Column indices of the choice knobs."""
+        return [j for j, p in enumerate(self.parameters) if p.levels]
+
+    def refuse_choices(self, step: str) -> None:
+        """Raise a one-line DoeError when the space has choice knobs that ``step`` cannot handle yet."""
+        if self.choices:
+            raise DoeError(f"choice knobs are not yet supported by {step}; "
+                           f"the study's choice knobs: {', '.join(p.name for p in self.choices)}")
+
+    def settable(self) -> "Space":
+        """The space without its choice knobs (continuous and stepped knobs, same constraints)."""
+        rest = tuple(p for p in self.parameters if not p.levels)
+        if not rest:
+            raise DoeError("a design space of choice knobs only has no continuous or stepped knob to spread runs over")
+        return Space(rest, self.constraints)
 
     @property
     def lower(self) -> np.ndarray:
@@ -186,12 +271,25 @@ class Space:
             ``(X - low) / (high - low)``, column by column.
         """
         X = self.as_points(X)
-        return (X - self.lower) / (self.upper - self.lower)
+        U = (X - self.lower) / (self.upper - self.lower)
+        for j in self.choice_columns:
+            U[:, j] = X[:, j]
+        return U
 
     def from_unit(self, U) -> np.ndarray:
-        """Map points of the unit hypercube to study units (inverse of :meth:`to_unit`)."""
+        """Map points of the unit hypercube to study units (inverse of :meth:`to_unit`).
+
+        Stepped knobs snap to their nearest value; choice columns (level
+        indices) are rounded to whole levels, not scaled.
+        """
         U = self.as_points(U)
-        return self.lower + U * (self.upper - self.lower)
+        X = self.lower + U * (self.upper - self.lower)
+        for j, p in enumerate(self.parameters):
+            if p.levels:
+                X[:, j] = p.snap(U[:, j])
+            elif p.values:
+                X[:, j] = p.snap(X[:, j])
+        return X
 
     # -- feasibility -------------------------------------------------------
     def in_bounds(self, X, rtol: float = 1e-9) -> np.ndarray:

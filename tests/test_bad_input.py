@@ -33,6 +33,25 @@ BAD_STUDIES = [
      '[[constraints]]\nname = "c"\nterms = { x1 = 1.0 }\n\n[[responses]]', ["max", "min"]),
     ("unsafe study name", 'name = "t-study"', 'name = "../outside"', ["folder name"]),
     ("timeout not positive", 'timeout_s = 20', 'timeout_s = 0', ["timeout_s", "> 0"]),
+    # choice and stepped knobs
+    ("choice with one level", 'low = 0.0\nhigh = 10.0\ntolerance = 0.2', 'levels = ["on"]', ["levels", "at least two"]),
+    ("choice level twice", 'low = 0.0\nhigh = 10.0\ntolerance = 0.2', 'levels = ["on", "on"]', ["'on'", "twice"]),
+    ("choice level not a name", 'low = 0.0\nhigh = 10.0\ntolerance = 0.2', 'levels = ["on", "o,ff"]',
+     ["study.toml:8:", "levels", "'o,ff'"]),
+    ("choice level not text", 'low = 0.0\nhigh = 10.0\ntolerance = 0.2', 'levels = ["on", 2]', ["levels", "2"]),
+    ("choice with a range", 'low = 0.0\nhigh = 10.0\ntolerance = 0.2', 'low = 0.0\nlevels = ["a", "b"]',
+     ["low", "only levels"]),
+    ("choice with tolerance", 'low = 0.0\nhigh = 10.0\ntolerance = 0.2', 'tolerance = 0.2\nlevels = ["a", "b"]',
+     ["tolerance", "not scattered"]),
+    ("step not dividing range", 'tolerance = 0.2', 'tolerance = 0.2\nstep = 3.0', ["study.toml:11:", "step",
+                                                                                 "whole number of steps"]),
+    ("step not positive", 'tolerance = 0.2', 'tolerance = 0.2\nstep = 0.0', ["step", "> 0"]),
+    ("values and range", 'tolerance = 0.2', 'tolerance = 0.2\nvalues = [0, 5, 10]', ["low", "not both"]),
+    ("values too few", 'low = 0.0\nhigh = 10.0', 'values = [5]', ["values", "at least two"]),
+    ("values repeat", 'low = 0.0\nhigh = 10.0', 'values = [0, 5, 5]', ["values", "twice"]),
+    ("values not numbers", 'low = 0.0\nhigh = 10.0', 'values = [0, "5"]', ["values", "finite numbers"]),
+    ("stepped tolerance too wide", 'low = 0.0\nhigh = 10.0\ntolerance = 0.2', 'values = [0, 2]\ntolerance = 3.0',
+     ["tolerance", "wider"]),
 ]
 
 

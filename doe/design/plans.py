@@ -18,9 +18,14 @@ References
    bound. Math. Comp. 67, 299-322.
 .. [5] Loeppky, J. L., Sacks, J., Welch, W. J. (2009). Choosing the sample size of a
    computer experiment: a practical guide. Technometrics 51(4), 366-376.
+.. [6] Qian, P. Z. G. (2012). Sliced Latin hypercube designs. J. Amer. Statist.
+   Assoc. 107(497), 393-399.
+.. [7] Glover, F. (1967). Maximum matching in a convex bipartite graph. Naval
+   Res. Logist. Quart. 14(3), 313-316.
 """
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import asdict, dataclass, field
 
@@ -33,7 +38,7 @@ from ..errors import PlanError
 
 __all__ = ["PlanQuality", "Plan", "default_runs", "make_plan", "augment_plan", "plan_quality",
            "centered_l2_discrepancy", "phi_p", "maximin_lhs", "sobol_points", "constrained_maximin",
-           "greedy_maximin", "run_ids", "RUNS_PER_PARAMETER"]
+           "greedy_maximin", "run_ids", "RUNS_PER_PARAMETER", "sliced_lhs", "level_combinations"]
 
 #: Default plan size per parameter (Loeppky, Sacks & Welch 2009 [5]).
 RUNS_PER_PARAMETER = 10
@@ -54,6 +59,15 @@ def default_runs(dim: int) -> tuple[int, str]:
     n = max(RUNS_PER_PARAMETER * dim, 4)
     return n, (f"{n} runs: {RUNS_PER_PARAMETER} per parameter, the usual first plan for a Gaussian-process "
                "surrogate (Loeppky, Sacks & Welch 2009)")
+
+
+def _default_sliced_runs(space) -> tuple[int, str]:
+    """Default runs with choice knobs: 10 per continuous or stepped knob, at least 3 per level combination."""
+    m, d = len(level_combinations(space)), space.dim - len(space.choices)
+    n = max(RUNS_PER_PARAMETER * d, 3 * m)
+    n = -(-n // m) * m
+    return n, (f"{n} runs: {RUNS_PER_PARAMETER} per continuous or stepped knob (Loeppky, Sacks & Welch 2009), at "
+               f"least 3 per level combination, shared evenly over the {m} combinations")
 
 
 # ---------------------------------------------------------------------------
@@ -190,24 +204,52 @@ def maximin_lhs(n: int, d: int, seed=None, iterations: int | None = None) -> np.
     if n < 3:
         return U
     iterations = iterations if iterations is not None else min(15 * n * d, 20000)
+    return _exchange(U, rng, iterations)
+
+
+def _exchange(U: np.ndarray, rng, iterations: int, groups: np.ndarray | None = None) -> np.ndarray:
+    """Swap two values within a column whenever that lowers ``phi_p`` [2] (in place; returns ``U``).
+
+    Without ``groups`` any two runs may swap and every pair counts once. With
+    ``groups`` (one label per run) only runs of the same group swap, so each
+    group keeps its strata, and a pair within a group counts twice: the
+    criterion is the whole plan's plus each group's own.
+    """
+    n, d = U.shape
     p = PHI_P_EXPONENT
     D = np.sqrt(((U[:, None, :] - U[None, :, :]) ** 2).sum(-1)) if n <= 3000 else None
-    if D is None:  # huge plans: skip optimisation, the random LHS is already stratified
+    if D is None or not np.any(D > 0):  # huge plans: skip optimisation, the random LHS is already stratified
         return U
     scale = D[D > 0].min()
     with np.errstate(divide="ignore"):
         W = (scale / D) ** p
+    M = None
+    if groups is not None:
+        M = 1.0 + (groups[:, None] == groups[None, :])
+        W *= M
+        members = [np.flatnonzero(groups == g) for g in np.unique(groups)]
+        members = [m for m in members if len(m) >= 2]
+        if not members:
+            return U
+        weight = np.array([len(m) for m in members], dtype=float)
+        weight /= weight.sum()
     np.fill_diagonal(W, 0.0)
     for _ in range(iterations):
         j = rng.integers(d)
-        a, b = rng.choice(n, 2, replace=False)
+        if M is None:
+            a, b = rng.choice(n, 2, replace=False)
+        else:
+            a, b = rng.choice(members[rng.choice(len(members), p=weight)], 2, replace=False)
         new = U[[a, b]].copy()
         new[0, j], new[1, j] = U[b, j], U[a, j]
         da = np.sqrt(((U - new[0]) ** 2).sum(1))
         db = np.sqrt(((U - new[1]) ** 2).sum(1))
         da[[a, b]] = np.inf
         db[[a, b]] = np.inf
-        wa, wb = (scale / da) ** p, (scale / db) ** p
+        with np.errstate(divide="ignore"):
+            wa, wb = (scale / da) ** p, (scale / db) ** p
+        if M is not None:
+            wa, wb = wa * M[a], wb * M[b]
         old = W[a].sum() + W[b].sum() - 2 * W[a, b]
         if wa.sum() + wb.sum() < old:  # the a-b distance does not change under the swap
             U[a, j], U[b, j] = new[0, j], new[1, j]
@@ -217,6 +259,129 @@ def maximin_lhs(n: int, d: int, seed=None, iterations: int | None = None) -> np.
             W[a, b] = W[b, a] = wab
             W[a, a] = W[b, b] = 0.0
     return U
+
+
+def sliced_lhs(sizes, d: int, seed=None) -> tuple[np.ndarray, np.ndarray]:
+    """A sliced Latin hypercube: slices that are Latin on their own and together.
+
+    With ``n = sum(sizes)`` runs, every column of the whole design has one run in
+    each of the ``n`` strata of width ``1/n``, and every column of slice ``t``
+    has one run in each of its ``sizes[t]`` strata of width ``1/sizes[t]``
+    (Qian 2012 [6]). For equal slices this is Qian's construction: the ``m``
+    fine strata inside each coarse stratum are dealt out to the ``m`` slices at
+    random. Unequal slices (sizes differing by one, when the runs do not divide
+    evenly) are dealt the same way by a matching of fine strata to the slices'
+    coarse strata that overlap them, found by Glover's rule [7] (earliest-ending
+    coarse stratum first, ties at random); it always exists because every set
+    of fine strata overlaps at least as many coarse strata as it has members.
+
+    Parameters
+    ----------
+    sizes : sequence of int
+        Runs per slice, each at least 1.
+    d : int
+        Columns.
+    seed : int or numpy.random.Generator
+
+    Returns
+    -------
+    U : ndarray, shape (n, d)
+        Points in ``[0, 1)^d``, slice by slice (the first ``sizes[0]`` rows are slice 0, ...).
+    slice_of : ndarray of int, shape (n,)
+        The slice of each row.
+    """
+    rng = np.random.default_rng(seed)
+    sizes = [int(s) for s in sizes]
+    if not sizes or min(sizes) < 1:
+        raise PlanError(f"every slice needs at least one run, got sizes {sizes}")
+    n = sum(sizes)
+    slots = [(t, k) for t, size in enumerate(sizes) for k in range(size)]
+    # fine stratum i = [i/n, (i+1)/n) meets coarse stratum k of slice t = [k/s, (k+1)/s) when k n < (i+1) s and (k+1) n > i s
+    first = np.array([(k * n) // s for t, k in slots for s in [sizes[t]]])
+    last = np.array([-(-((k + 1) * n) // s) - 1 for t, k in slots for s in [sizes[t]]])
+    start = np.cumsum([0] + sizes[:-1])
+    U = np.empty((n, d))
+    for j in range(d):
+        tie = rng.random(n)
+        free = np.ones(n, dtype=bool)
+        lo = np.empty(n)
+        hi = np.empty(n)
+        for i in range(n):
+            open_ = np.flatnonzero(free & (first <= i) & (last >= i))
+            if open_.size == 0:  # pragma: no cover - excluded by Hall's condition (see above)
+                raise PlanError("internal error: no coarse stratum left for a fine stratum of the sliced plan")
+            q = open_[np.lexsort((tie[open_], last[open_]))[0]]
+            free[q] = False
+            t, k = slots[q]
+            lo[q] = max(i / n, k / sizes[t])
+            hi[q] = min((i + 1) / n, (k + 1) / sizes[t])
+        value = lo + rng.random(n) * (hi - lo)
+        for t, size in enumerate(sizes):  # the runs of a slice take its coarse strata in random order
+            U[start[t]:start[t] + size, j] = value[start[t] + rng.permutation(size)]
+    return U, np.repeat(np.arange(len(sizes)), sizes)
+
+
+def level_combinations(space) -> list:
+    """Every combination of the levels of the choice knobs, as tuples of level indices (one per choice knob)."""
+    return list(itertools.product(*(range(len(p.levels)) for p in space.choices)))
+
+
+def _slice_sizes(runs: int, slices: int, rng) -> list:
+    """``runs`` dealt to ``slices``: each gets ``runs // slices``, a random ``runs % slices`` of them one more."""
+    sizes = [runs // slices] * slices
+    for t in rng.choice(slices, runs % slices, replace=False):
+        sizes[t] += 1
+    return sizes
+
+
+def sliced_plan(space, runs: int, seed=None) -> tuple[np.ndarray, list]:
+    """A plan over choice knobs: one slice of runs per combination of levels [6].
+
+    The runs are shared out over the level combinations (each gets its share,
+    within one run). Without constraints the continuous and stepped knobs
+    form a sliced Latin hypercube (:func:`sliced_lhs`) improved by swaps
+    within slices (:func:`_exchange`), so each slice and the whole plan keep
+    one run per stratum; with constraints each slice is a maximin selection of
+    feasible points. Runs are listed slice after slice in turn, so a plan
+    stopped early is still close to balanced.
+
+    Returns
+    -------
+    U : ndarray, shape (runs, dim)
+        Unit-cube points of the whole space (choice columns hold level indices).
+    notes : list of str
+    """
+    rng = np.random.default_rng(seed)
+    combos = level_combinations(space)
+    m = len(combos)
+    if runs < m:
+        raise PlanError(f"{runs} runs cannot cover the {m} combinations of levels of "
+                        f"{', '.join(p.name for p in space.choices)}; give at least {m} runs")
+    sub = space.settable()
+    sizes = _slice_sizes(runs, m, rng)
+    share = f"{runs // m}" + (f" or {runs // m + 1}" if runs % m else "")
+    notes = [f"{m} level combinations of {', '.join(p.name for p in space.choices)}, {share} runs each"]
+    if sub.constraints:
+        sub.check_feasible()
+        parts = [constrained_maximin(sub, size, rng)[0] for size in sizes]
+        V, slice_of = np.vstack(parts), np.repeat(np.arange(m), sizes)
+        notes.append(f"constraints cut the box ({sub.feasible_fraction():.0%} of it is feasible): each level "
+                     "combination is a maximin selection of feasible points, so the one-run-per-stratum (Latin) "
+                     "property does not hold in general")
+    else:
+        V, slice_of = sliced_lhs(sizes, sub.dim, rng)
+        if runs >= 3:
+            _exchange(V, rng, min(15 * runs * sub.dim, 20000), groups=slice_of)
+        notes.append("sliced Latin hypercube (Qian 2012): one run per stratum within each level combination and "
+                     "over the whole plan")
+    if any(p.values for p in sub.parameters):
+        notes.append("stepped knobs are put on their steps, so their columns repeat values")
+    order = np.argsort(np.concatenate([np.arange(s) for s in sizes]) * m + slice_of, kind="stable")
+    U = np.empty((runs, space.dim))
+    cont = [j for j in range(space.dim) if j not in space.choice_columns]
+    U[:, cont] = V[order]
+    U[:, space.choice_columns] = np.array(combos, dtype=float)[slice_of[order]]
+    return U, notes
 
 
 def sobol_points(n: int, d: int, seed=None) -> tuple[np.ndarray, list]:
@@ -336,8 +501,33 @@ def _frame(space, U, ids) -> pd.DataFrame:
     X = space.from_unit(U)
     X = np.clip(X, space.lower, space.upper)
     frame = pd.DataFrame(X, columns=space.names)
+    for p in space.choices:
+        frame[p.name] = [p.levels[int(i)] for i in frame[p.name]]
     frame.insert(0, "run_id", ids)
     return frame
+
+
+def _onto_steps(space, U: np.ndarray) -> np.ndarray:
+    """Stepped columns moved onto their values by equal shares of ``[0, 1]`` (value k takes ``[k/K, (k+1)/K)``).
+
+    Rounding to the nearest value would give the end values half a share; equal
+    shares keep a Latin column balanced over the values (each within one run of
+    ``n/K``). Only for plans without constraints: under constraints the
+    feasibility of each candidate was judged at its nearest step.
+    """
+    U = U.copy()
+    for j, p in enumerate(space.parameters):
+        if p.values:
+            k = np.clip(np.floor(U[:, j] * len(p.values)).astype(int), 0, len(p.values) - 1)
+            U[:, j] = (np.asarray(p.values)[k] - p.low) / p.span
+    return U
+
+
+def _settable_quality(space, U, notes) -> PlanQuality:
+    """Quality of a plan measured on its continuous and stepped knobs, as set (stepped ones rounded)."""
+    cont = [j for j in range(space.dim) if j not in space.choice_columns]
+    sub = space.settable()
+    return plan_quality(sub.to_unit(sub.from_unit(U[:, cont])), notes)
 
 
 def make_plan(space, runs: int | None = None, seed: int = 0, method: str = "lhs") -> Plan:
@@ -361,7 +551,7 @@ def make_plan(space, runs: int | None = None, seed: int = 0, method: str = "lhs"
     """
     notes = []
     if runs is None:
-        runs, reason = default_runs(space.dim)
+        runs, reason = default_runs(space.dim) if not space.choices else _default_sliced_runs(space)
         notes.append(reason)
     if runs < 2:
         raise PlanError(f"a plan needs at least 2 runs, got {runs}")
@@ -369,6 +559,12 @@ def make_plan(space, runs: int | None = None, seed: int = 0, method: str = "lhs"
         raise PlanError(f"unknown plan method {method!r}; use 'lhs' or 'sobol'")
     if runs < space.dim + 1:
         notes.append(f"only {runs} runs for {space.dim} parameters: too few to fit a surrogate")
+    if space.choices:
+        if method != "lhs":
+            raise PlanError(f"plan method {method!r} does not take choice knobs; use 'lhs' (a sliced Latin hypercube)")
+        U, more = sliced_plan(space, runs, seed)
+        U = U if space.constraints else _onto_steps(space, U)
+        return Plan(_frame(space, U, run_ids(runs)), _settable_quality(space, U, notes + more), "sliced_lhs", seed)
     if space.constraints:
         space.check_feasible()
         U, more = constrained_maximin(space, runs, seed)
@@ -377,6 +573,10 @@ def make_plan(space, runs: int | None = None, seed: int = 0, method: str = "lhs"
     else:
         U, more = sobol_points(runs, space.dim, seed)
     notes += more
+    if any(p.values for p in space.parameters):
+        notes.append("stepped knobs are put on their steps, so their columns repeat values")
+        U = U if space.constraints else _onto_steps(space, U)
+        return Plan(_frame(space, U, run_ids(runs)), _settable_quality(space, U, notes), method, seed)
     return Plan(_frame(space, U, run_ids(runs)), plan_quality(U, notes), method, seed)
 
 
@@ -402,6 +602,8 @@ def augment_plan(space, existing: pd.DataFrame, runs: int, seed: int = 0) -> Pla
     """
     if runs < 1:
         raise PlanError(f"the number of runs to add must be at least 1, got {runs}")
+    if space.choices:
+        raise PlanError("choice knobs are not yet supported by plan augmentation (adding runs to a plan)")
     rng = np.random.default_rng(seed)
     U0 = space.to_unit(existing[space.names].to_numpy(dtype=float))
     C = candidates(space, min(max(64 * (len(U0) + runs), 4096), 65536), rng)

@@ -1,7 +1,8 @@
 """Plans and results on disk: careful readers and the append-safe results store.
 
 Plan CSV
-    ``run_id`` then one column per parameter, in the study's units.
+    ``run_id`` then one column per parameter, in the study's units; a choice
+    knob's column holds level names, a stepped knob's column one of its values.
 Results CSV
     ``run_id``, the parameter columns, one column per response (in its unit),
     then ``status`` (``ok`` or ``failed``), ``source`` (``builtin``, ``command``,
@@ -22,7 +23,7 @@ import io
 import math
 import os
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -41,6 +42,8 @@ META_COLUMNS = ("status", "source", "message", "elapsed_s")
 MAX_FILE_BYTES = 512 * 1024 * 1024
 #: Longest accepted line, in characters.
 MAX_LINE_CHARS = 100_000
+#: A recorded value of a stepped knob counts as on its step when it is within this share of the knob's range.
+STEP_RTOL = 1e-6
 
 
 # ---------------------------------------------------------------------------
@@ -119,6 +122,43 @@ def _number(text: str, rows: _Rows, line: int, column: str, allow_empty: bool) -
     return value
 
 
+def _setting(text: str, p, rows: _Rows, line: int) -> float:
+    """One parameter cell: a level name of a choice knob (its index is returned), or a number (a step when stepped)."""
+    if p.levels:
+        if text not in p.levels:
+            shown = ", ".join(p.levels[:8]) + (" ..." if len(p.levels) > 8 else "")
+            raise ResultsError(f"{where(rows.path, line, column=p.name)}: {text[:40]!r} is not a level of "
+                               f"{p.name} (levels: {shown})")
+        return float(p.levels.index(text))
+    value = _number(text, rows, line, p.name, allow_empty=False)
+    if p.values and p.low <= value <= p.high:
+        step = float(p.snap(value))
+        if abs(value - step) > STEP_RTOL * p.span:
+            shown = ", ".join(f"{v:g}" for v in p.values[:8]) + (" ..." if len(p.values) > 8 else "")
+            raise ResultsError(f"{where(rows.path, line, column=p.name)}: {text!r} {p.unit} is not a step of "
+                               f"{p.name} ({shown})")
+        return step
+    return value
+
+
+def _settings(rows: _Rows, space) -> np.ndarray:
+    """The parameter columns as numbers (study units; choice knobs as level indices), checked cell by cell."""
+    idx = [rows.header.index(n) for n in space.names]
+    X = np.empty((len(rows.rows), len(idx)))
+    for i, (line, cells) in enumerate(rows.rows):
+        for j, (k, p) in enumerate(zip(idx, space.parameters)):
+            X[i, j] = _setting(cells[k], p, rows, line)
+    return X
+
+
+def _parameter_frame(space, X: np.ndarray, columns=None, data=None) -> pd.DataFrame:
+    """A frame of parameter values (and any extra ``data`` columns) with level names in the choice columns."""
+    frame = pd.DataFrame(X if data is None else np.column_stack([X, data]), columns=columns or space.names)
+    for p in space.choices:
+        frame[p.name] = [p.levels[int(i)] for i in X[:, space.names.index(p.name)]]
+    return frame
+
+
 def _require_columns(rows: _Rows, columns, what: str) -> None:
     missing = [c for c in columns if c not in rows.header]
     if missing:
@@ -181,9 +221,9 @@ def read_plan(path, study) -> pd.DataFrame:
     rows = _read_rows(Path(path))
     _require_columns(rows, ["run_id", *study.space.names], "plan")
     ids = _run_ids(rows)
-    X = _matrix(rows, study.space.names, allow_empty=False)
+    X = _settings(rows, study.space)
     _check_bounds(study.space, X, rows, accept_outside=False)
-    frame = pd.DataFrame(X, columns=study.space.names)
+    frame = _parameter_frame(study.space, X)
     frame.insert(0, "run_id", ids)
     return frame
 
@@ -197,9 +237,9 @@ def read_points(path, study) -> pd.DataFrame:
     """
     rows = _read_rows(Path(path))
     _require_columns(rows, study.space.names, "parameter")
-    X = _matrix(rows, study.space.names, allow_empty=False)
+    X = _settings(rows, study.space)
     _check_bounds(study.space, X, rows, accept_outside=True)
-    frame = pd.DataFrame(X, columns=study.space.names)
+    frame = _parameter_frame(study.space, X)
     if "run_id" in rows.header:
         frame.insert(0, "run_id", _run_ids(rows))
     return frame
@@ -245,12 +285,15 @@ class ResultsTable:
         ``run_id``, parameters, responses, ``status``, ``source`` and any extra columns.
     parameters, responses : list of str
     path : Path or None
+    levels : dict of str to tuple of str
+        Level names of each choice knob; its column holds level names.
     """
 
     frame: pd.DataFrame
     parameters: list
     responses: list
     path: Path | None = None
+    levels: dict = field(default_factory=dict)
 
     @property
     def ok(self) -> pd.DataFrame:
@@ -263,8 +306,11 @@ class ResultsTable:
         return self.frame[self.frame["status"] == "failed"]
 
     def X(self) -> np.ndarray:
-        """Parameter values of the ok runs, shape ``(n_ok, d)``, study units."""
-        return self.ok[self.parameters].to_numpy(dtype=float)
+        """Parameter values of the ok runs, shape ``(n_ok, d)``, study units (choice knobs as level indices)."""
+        ok = self.ok[self.parameters].copy()
+        for name, levels in self.levels.items():
+            ok[name] = [levels.index(v) for v in ok[name]]
+        return ok.to_numpy(dtype=float)
 
     def y(self, response: str) -> np.ndarray:
         """Values of one response over the ok runs, in its unit."""
@@ -301,10 +347,10 @@ def read_results(path, study, accept_outside: bool = False, responses=None) -> R
     _require_columns(rows, ["run_id", *study.space.names], "parameter")
     _require_columns(rows, responses, "response")
     ids = _run_ids(rows)
-    X = _matrix(rows, study.space.names, allow_empty=False)
+    X = _settings(rows, study.space)
     Y = _matrix(rows, responses, allow_empty=True)
     inside = _check_bounds(study.space, X, rows, accept_outside)
-    frame = pd.DataFrame(np.column_stack([X, Y]), columns=[*study.space.names, *responses])
+    frame = _parameter_frame(study.space, X, [*study.space.names, *responses], Y)
     frame.insert(0, "run_id", ids)
     status = _status(rows, Y)
     frame["status"] = status
@@ -316,7 +362,8 @@ def read_results(path, study, accept_outside: bool = False, responses=None) -> R
         frame["source"] = "recorded"
     if not inside.all():
         frame["outside"] = ~inside
-    return ResultsTable(frame, study.space.names, responses, path)
+    return ResultsTable(frame, study.space.names, responses, path,
+                        {p.name: p.levels for p in study.space.choices})
 
 
 def _status(rows: _Rows, Y: np.ndarray) -> list:
@@ -456,5 +503,7 @@ class ResultsStore:
 
 
 def _fmt(value) -> str:
+    if isinstance(value, str):  # a level name of a choice knob
+        return value
     value = float(value)
     return "" if math.isnan(value) else repr(value)

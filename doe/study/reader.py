@@ -30,6 +30,12 @@ Minimal example::
     runs = 40
     seed = 1
 
+Besides a continuous range, a parameter may be a stepped knob (``low``,
+``high`` and ``step``, the range a whole number of steps; or ``values = [0, 5,
+10]`` instead of the range) or a choice knob (``levels = ["on", "off"]`` or
+section file names; no range, step or tolerance; ``unit`` optional). A
+constraint may not weigh a choice knob.
+
 Optional tables for robust settings and vehicle figures (see
 ``studies/demo_vehicle.toml`` for a full example):
 
@@ -58,7 +64,9 @@ Optional tables for robust settings and vehicle figures (see
 from __future__ import annotations
 
 import math
+import re
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 
 from ..checks import is_number
@@ -71,6 +79,13 @@ from .settings import (EVALUATOR_KINDS, GOALS, PLAN_METHODS, RESERVED_COLUMNS,
                        RobustSettings, SensitivitySettings, Study, VehicleSettings)
 from .tables import REQUIRED, Source, Table
 from ..vehicle import DRIVES, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle
+
+#: Level names of a choice knob (they may be file names, e.g. of wing sections).
+LEVEL_PATTERN = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_./-]{0,79}$")
+#: Relative slack when checking that a range is a whole number of steps.
+STEP_TOLERANCE = 1e-9
+#: Most steps a stepped knob may have.
+MAX_STEPS = 1000
 
 __all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "SensitivitySettings", "ResponseLimit",
            "RobustSettings", "VehicleSettings", "LowFidelitySettings", "Study", "load_study", "read_study_text",
@@ -134,7 +149,8 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     parameters = tuple(_read_parameter(t) for t in _array(top, "parameters", required=True))
     _no_repeats(parameters, "parameters", source)
     names = [p.name for p in parameters]
-    constraints = tuple(_read_constraint(t, names) for t in _array(top, "constraints"))
+    choices = [p.name for p in parameters if p.levels]
+    constraints = tuple(_read_constraint(t, names, choices) for t in _array(top, "constraints"))
     _no_repeats(constraints, "constraints", source)
     responses = tuple(_read_response(t) for t in _array(top, "responses", required=True))
     _no_repeats(responses, "responses", source)
@@ -226,11 +242,18 @@ def _unit(t: Table) -> str:
 
 def _read_parameter(t: Table) -> Parameter:
     name = _column_name(t)
+    if t.has("levels"):
+        return _read_choice(t, name)
     unit = _unit(t)
+    if t.has("values"):
+        return _read_values(t, name, unit)
     low = t.take("low", float)
     high = t.take("high", float)
     if not low < high:
         raise t.error("high", f"must be greater than low ({high:g} <= {low:g})")
+    step = t.take("step", float, default=None, check=lambda v: v > 0, why="must be > 0")
+    if step is not None:
+        return _read_step(t, name, unit, low, high, step)
     tol = t.take("tolerance", float, default=0.0, check=lambda v: v >= 0, why="must be >= 0")
     if tol > (high - low):
         raise t.error("tolerance", f"{tol:g} {unit} is wider than the whole range ({high - low:g} {unit})")
@@ -239,7 +262,57 @@ def _read_parameter(t: Table) -> Parameter:
     return Parameter(name, unit, low, high, tol, desc)
 
 
-def _read_constraint(t: Table, names: list[str]) -> LinearConstraint:
+def _read_choice(t: Table, name: str) -> Parameter:
+    levels = t.take("levels", list)
+    for key in ("low", "high", "step", "values", "tolerance"):
+        if t.has(key):
+            raise t.error(key, "leave it out: a choice knob takes only levels (a choice is not scattered or scaled)")
+    bad = next((v for v in levels if not isinstance(v, str) or not LEVEL_PATTERN.match(v) or ".." in v), None)
+    if bad is not None:
+        raise t.error("levels", f"{bad!r} must be a string of letters, digits, '_', '-', '.' or '/' (at most 80)")
+    if len(levels) < 2:
+        raise t.error("levels", "a choice needs at least two levels")
+    twice = next((v for i, v in enumerate(levels) if v in levels[:i]), None)
+    if twice is not None:
+        raise t.error("levels", f"'{twice}' is listed twice")
+    unit = _unit(t) if t.has("unit") else "-"
+    desc = t.take("description", str, default="")
+    t.finish()
+    return replace(Parameter.choice(name, levels, desc), unit=unit)
+
+
+def _read_values(t: Table, name: str, unit: str) -> Parameter:
+    values = t.take("values", list)
+    for key in ("low", "high", "step"):
+        if t.has(key):
+            raise t.error(key, "leave it out: give either values = [...] or low, high (and step), not both")
+    if len(values) < 2 or not all(is_number(v) and math.isfinite(v) for v in values):
+        raise t.error("values", "must be a list of at least two finite numbers")
+    if len(set(values)) != len(values):
+        raise t.error("values", "a value is listed twice")
+    return _stepped(t, name, unit, values)
+
+
+def _read_step(t: Table, name: str, unit: str, low: float, high: float, step: float) -> Parameter:
+    count = (high - low) / step
+    if abs(count - round(count)) > STEP_TOLERANCE * max(count, 1.0):
+        raise t.error("step", f"the range {low:g} to {high:g} {unit} is not a whole number of steps of {step:g}")
+    if round(count) > MAX_STEPS:
+        raise t.error("step", f"{round(count)} steps; at most {MAX_STEPS} (leave step out for a continuous knob)")
+    return _stepped(t, name, unit, [low + k * step for k in range(int(round(count)) + 1)])
+
+
+def _stepped(t: Table, name: str, unit: str, values) -> Parameter:
+    span = max(values) - min(values)
+    tol = t.take("tolerance", float, default=0.0, check=lambda v: v >= 0, why="must be >= 0")
+    if tol > span:
+        raise t.error("tolerance", f"{tol:g} {unit} is wider than the whole range ({span:g} {unit})")
+    desc = t.take("description", str, default="")
+    t.finish()
+    return Parameter.stepped(name, unit, values, tol, desc)
+
+
+def _read_constraint(t: Table, names: list[str], choices=()) -> LinearConstraint:
     name = t.take("name", str)
     unit = t.take("unit", str, default="")
     terms = t.take("terms", dict)
@@ -249,6 +322,8 @@ def _read_constraint(t: Table, names: list[str]) -> LinearConstraint:
     for key, coef in terms.items():
         if key not in names:
             raise t.error("terms", f"'{key}' is not a parameter (parameters: {', '.join(names)})")
+        if key in choices:
+            raise t.error("terms", f"'{key}' is a choice knob; a constraint weighs only numeric knobs")
         if not is_number(coef) or not math.isfinite(coef):
             raise t.error("terms", f"the coefficient of '{key}' must be a finite number, got {coef!r}")
         clean[key] = float(coef)

@@ -28,6 +28,7 @@ def calibrate_study(study, results, model_study=None, **options) -> Calibration:
     -------
     Calibration
     """
+    study.space.refuse_choices("calibration (doe calibrate)")
     source = model_study if model_study is not None else study
     settings, conversion = builtin_settings_for(source)
     if model_study is not None:

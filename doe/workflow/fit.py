@@ -55,6 +55,7 @@ def fit_surrogates(study, results, seed=0, low_results=None, **options) -> Surro
     (``[fit] exact_sources``, by default ``builtin`` and ``command``), and for
     a response whose replicated points disagree.
     """
+    study.space.refuse_choices("fitting surrogates (doe fit)")
     settings = _settings(study, options)
     ok = results.ok
     if len(ok) == 0:

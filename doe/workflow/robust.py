@@ -80,6 +80,7 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) ->
         Settings already run (study units).
     maxiter : int
     """
+    study.space.refuse_choices("the robust search (doe robust)")
     r = study.robust
     if r is None:
         raise DoeError("robust: the study has no [robust] settings")
@@ -93,6 +94,7 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) ->
 
 def study_tradeoff(study, predict, samples: int = 4096) -> pd.DataFrame:
     """:func:`tradeoff_set` of a study's ``[robust] tradeoff`` responses (goals from ``[[responses]]``)."""
+    study.space.refuse_choices("the trade-off set (doe robust)")
     r = study.robust
     if r is None or len(r.tradeoff) < 2:
         raise DoeError("trade-off: give at least two responses in [robust] tradeoff "

@@ -157,6 +157,7 @@ def next_step(study, sset, results, runs: int, out, seed: int | None = None, aim
 
     ``pending``: a plan (DataFrame) of runs planned but not yet evaluated.
     """
+    study.space.refuse_choices("next runs (doe next)")
     seed = study.plan.seed if seed is None else seed
     names = study.space.names
     taken = list(results.frame["run_id"]) + (list(pending["run_id"]) if pending is not None else [])

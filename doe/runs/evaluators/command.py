@@ -117,7 +117,7 @@ class CommandEvaluator(Evaluator):
     def command_line(self, run_id: str, point: dict, case_dir: Path) -> list:
         """The argument vector of one run, placeholders filled in (no shell is involved)."""
         values = {"case_dir": str(case_dir), "study_dir": str(self.study_folder.resolve()), "run_id": run_id}
-        values.update({k: repr(float(v)) for k, v in point.items()})
+        values.update({k: v if isinstance(v, str) else repr(float(v)) for k, v in point.items()})  # str: a level
         argv = [_PLACEHOLDER.sub(lambda m: values[m.group(1)], a) for a in self.settings.argv]
         prog = argv[0]
         if os.sep in prog or prog.startswith("."):
