@@ -111,8 +111,8 @@ wing_section = "{section}"
 
 def test_study_reads_wing_section_relative_to_its_folder(tmp_path):
     from doe.errors import StudyError
-    from doe.evaluators import make_evaluator
-    from doe.study import load_study
+    from doe.runs.evaluators import make_evaluator
+    from doe.study.reader import load_study
 
     _write(tmp_path / "hl.dat", _high_lift_points(), "high lift")
     (tmp_path / "s.toml").write_text(STUDY.format(param="wing_aoa", section="hl.dat"))
