@@ -139,3 +139,21 @@ def test_study_robust_lap_time_json():
     assert data["robust"]["figures"]["lap_time_s"]["mean"] <= data["baseline"]["figures"]["lap_time_s"]["mean"]
     assert data["balance_change"]["direction"] in ("towards understeer", "towards oversteer", "unchanged")
     assert {"response": "balance_shift", "unit": "-", "min": -0.045, "max": None} in data["limits"]
+
+
+def test_refined_tradeoff_reaches_the_true_ends():
+    from doe.robust.tradeoff import tradeoff_set
+
+    study = read_study_text(HEAD + SNIPPET)
+    goals = {r.name: r.goal for r in study.responses}
+    # brute force: the invented map on 2^18 random settings (its optimum is smooth, the sample dense)
+    X = study.space.from_unit(np.random.default_rng(0).random((2**18, 2)))
+    pred = invented_aero(X)
+    best_cla, best_cda = pred["cla_total"][0].min(), pred["cda_total"][0].min()
+    coarse = tradeoff_set(invented_aero, study.space, ["cla_total", "cda_total"], goals, samples=64, seed=0)
+    fine = tradeoff_set(invented_aero, study.space, ["cla_total", "cda_total"], goals, samples=64, seed=0,
+                        refine=True, include=[[10.0, 100.0]])
+    assert coarse["cla_total"].min() > best_cla + 5e-3       # 64 points miss the end ...
+    assert fine["cla_total"].min() <= best_cla + 1e-4         # ... the refined set reaches it
+    assert fine["cda_total"].min() <= best_cda + 1e-4
+    assert len(fine) > len(coarse)

@@ -114,11 +114,16 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) ->
                          aero_responses=_aero_responses(study) if vobj is not None else None)
 
 
-def study_tradeoff(study, predict, samples: int = 4096) -> pd.DataFrame:
-    """:func:`tradeoff_set` of a study's ``[robust] tradeoff`` responses (goals from ``[[responses]]``)."""
+def study_tradeoff(study, predict, samples: int = 4096, include=None) -> pd.DataFrame:
+    """:func:`tradeoff_set` of a study's ``[robust] tradeoff`` responses (goals from ``[[responses]]``).
+
+    Refined: each response's optimum and points along the line are added to the sample, and
+    ``include`` (settings in study units, e.g. the nominal and robust picks) joins the candidates.
+    """
     r = study.robust
     if r is None or len(r.tradeoff) < 2:
         raise DoeError("trade-off: give at least two responses in [robust] tradeoff "
                        "(by default the responses with a goal)")
     goals = {resp.name: resp.goal for resp in study.responses}
-    return tradeoff_set(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed)
+    return tradeoff_set(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed,
+                        include=include, refine=True)
