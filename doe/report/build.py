@@ -339,8 +339,9 @@ def _worth_lines(rob: dict) -> list:
     lines = []
     if rt is not None and nt is not None:
         d = rt - nt
-        than = ("the same as the nominal best on paper" if abs(d) < 0.005 else
-                f"{fmt(abs(d), 2)} s {'slower' if d > 0 else 'faster'} than the nominal best on paper")
+        than = ("the same as the nominal best on paper" if abs(d) < 0.0005 else
+                f"{fmt(abs(d), 1)} s {'slower' if d > 0 else 'faster'} than the nominal best on paper"
+                + (" (the price of holding the limits under setup scatter)" if d > 0 else ""))
         text = f"What it is worth: the robust setting laps in {F.format_with_interval(rt, rs, unit='s')}, {than}"
         base = rob.get("baseline")
         if base:
