@@ -76,7 +76,8 @@ def refine_points(predict, space: Space, responses, goals: dict, X, targets=None
     points: the best second response with the first no worse than a level
     between its two ends ([D]_ sec. 4.2; Haimes, Lasdon & Wismer 1971). Each is
     a local SLSQP polish (unit cube, the linear constraints kept) from the best
-    candidate of ``X`` for it, so it is never worse than that candidate.
+    candidate of ``X`` for it (and, along the line, also from the previous
+    level's point), so it is never worse than that candidate.
 
     Parameters
     ----------
@@ -129,11 +130,15 @@ def refine_points(predict, space: Space, responses, goals: dict, X, targets=None
     ends = [polish(X[np.argmin(F[:, j])], j) for j in range(len(responses))]
     out = list(ends)
     lo, hi = values(space.to_unit(ends[0][None, :]))[0], values(space.to_unit(ends[1][None, :]))[0]
+    last = ends[0]
     for level in np.linspace(lo, hi, levels + 2)[1:-1]:
         ok = F[:, 0] <= level
         if np.any(ok):
-            start = X[ok][np.argmin(F[ok, 1])]
-            out.append(polish(start, 1, level))
+            # two starts, the best sampled setting under the level and the last level's point (a
+            # continuation along the line); the better polish is kept
+            tries = [polish(X[ok][np.argmin(F[ok, 1])], 1, level), polish(last, 1, level)]
+            last = min(tries, key=lambda x: values(space.to_unit(x[None, :]))[1])
+            out.append(last)
     return np.asarray(out)
 
 
@@ -185,7 +190,7 @@ def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, sa
     if len(X) == 0:
         raise DoeError("trade-off: no candidate setting meets the constraints")
     if refine:
-        X = np.vstack([X, refine_points(predict, space, responses, goals, X, targets)])
+        X = np.unique(np.vstack([X, refine_points(predict, space, responses, goals, X, targets)]), axis=0)
     pred = predict_checked(predict, X, responses)
     keep = nondominated(_minimised(pred, responses, goals, targets))
     frame = pd.DataFrame(X[keep], columns=space.names)
