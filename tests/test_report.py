@@ -10,11 +10,13 @@ from html import unescape
 from pathlib import Path
 
 import matplotlib.pyplot as plt
+import numpy as np
 import pandas as pd
 import pytest
 
 from doe.cli import main
 from doe.errors import DoeError
+from doe.report import figures as F
 from doe.report.build import CAUTIONS, fmt
 from doe.report.style import new_figure, save
 
@@ -47,8 +49,23 @@ def _results(path: Path) -> None:
     pd.DataFrame(rows, columns=["run_id", "x1", "x2", "y", "z", "status", "source"]).to_csv(path, index=False)
 
 
+MARKERS_OUTSIDE = {}      # figure file -> markers that cross their axes, recorded as each figure is saved
+
+
 @pytest.fixture(scope="module")
-def built(tmp_path_factory):
+def watch_markers():
+    """Every figure the report saves is checked for markers outside its axes (F.markers_outside)."""
+    def checked_save(fig, path, *args, **kwargs):
+        MARKERS_OUTSIDE[Path(path).name] = F.markers_outside(fig)
+        return save(fig, path, *args, **kwargs)
+
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(F, "save", checked_save)
+        yield MARKERS_OUTSIDE
+
+
+@pytest.fixture(scope="module")
+def built(tmp_path_factory, watch_markers):
     folder = tmp_path_factory.mktemp("report")
     (folder / "study.toml").write_text(STUDY)
     _results(folder / "results.csv")
@@ -87,7 +104,20 @@ def test_report_numbers_equal_the_files_it_was_built_from(built):
     for key in ("nominal", "robust"):
         for p in ("x1", "x2"):
             assert fmt(rob[key]["point"][p]) in text
-        assert f"{fmt(rob[key]['mean'])} ± {fmt(rob[key]['std'], 2)}" in text
+        assert F.format_with_interval(rob[key]["mean"], rob[key]["std"]) in text
+
+
+def test_markers_lie_inside_their_axes(built, watch_markers):
+    assert len(watch_markers) >= 6 and "tradeoff_" in " ".join(watch_markers)
+    assert {name: bad for name, bad in watch_markers.items() if bad} == {}
+
+
+def test_one_collapsible_section_per_response_summary_first(built):
+    html = (built / "report" / "index.html").read_text()
+    for r in ("y", "z"):
+        # the sensitivity and the maps of each response sit in their own <details>, the summary first
+        assert len(re.findall(rf"<details[^>]*><summary><b>{r} \[m\^2\]</b>", html)) == 2
+    assert re.search(r"<details open><summary><b>y ", html)        # the objective's sections are open
 
 
 def test_report_carries_cautions_and_failed_runs(built):
@@ -174,3 +204,56 @@ def test_report_in_a_real_browser(built, tmp_path, width):
     shot = tmp_path / f"shot_{width}.png"
     subprocess.run([browser, *flags, f"--screenshot={shot}", page.as_uri()], capture_output=True, timeout=120)
     assert shot.exists() and shot.stat().st_size > 10_000
+
+
+# ---------------------------------------------------------------------------
+# a report of a lap-time study: the robust file made from an invented analytic aero map (labelled
+# invented, tests/test_robust_study.py), no surrogates needed for the vehicle part
+@pytest.fixture(scope="module")
+def lap_report(tmp_path_factory, watch_markers):
+    from test_robust_study import HEAD, SNIPPET, invented_aero
+    from doe.report.build import ReportInputs, build_report
+    from doe.runs.results import ResultsTable
+    from doe.study.reader import read_study_text
+    from doe.workflow.robust import study_robust, study_tradeoff
+
+    text = SNIPPET.replace('objective = "cla_total"', 'objective = "lap_time_s"').replace(
+        '{ response = "balance_front", min = 0.30, max = 0.55 }', '{ figure = "balance_shift", min = -0.045 }').replace(
+        "# baseline = { flap_angle = 4.0, wing_height = 120.0 }", "baseline = { flap_angle = 4.0, wing_height = 120.0 }")
+    study = read_study_text(HEAD + text)
+    rob = json.loads(json.dumps(study_robust(study, invented_aero, maxiter=8).to_dict()))
+    picks = [[rob[k]["point"][n] for n in study.space.names] for k in ("nominal", "robust")]
+    X = study.space.from_unit(np.linspace(0.05, 0.95, 12)[:, None] * np.ones((1, 2)))
+    pred = invented_aero(X)
+    frame = pd.DataFrame({"run_id": [f"r{i:02d}" for i in range(len(X))], "flap_angle": X[:, 0],
+                          "wing_height": X[:, 1], **{n: m for n, (m, _) in pred.items()}, "status": "ok",
+                          "source": "invented"})
+    results = ResultsTable(frame, study.space.names, study.response_names)
+    folder = tmp_path_factory.mktemp("lap_report")
+    index = build_report(ReportInputs(study, results, robust=rob,
+                                      tradeoff=study_tradeoff(study, invented_aero, samples=256, include=picks)),
+                         folder)
+    return rob, index
+
+
+def test_lap_report_shows_lap_time_with_its_uncertainty_and_the_balance(lap_report):
+    rob, index = lap_report
+    html = index.read_text()
+    text = _text(html)
+    assert "front share of the aero load" not in text          # meaningless near zero net lift: gone
+    assert "balance shift at 150 km/h" in text
+    for key in ("baseline", "nominal", "robust"):
+        lap = rob[key]["figures"]["lap_time_s"]
+        assert F.format_with_interval(lap["mean"], lap["std"]) in text
+    assert rob["balance_change"]["sentence"] in text
+    glance = _text(re.search(r'<section class="glance".*?</section>', html, re.S).group(0))
+    assert "How the balance moves" in glance and "What it is worth" in glance
+    assert F.format_with_interval(rob["robust"]["figures"]["lap_time_s"]["mean"],
+                                  rob["robust"]["figures"]["lap_time_s"]["std"], unit="s") in glance
+    for f in ("lap_time.png", "balance.png"):
+        assert (index.parent / f).exists() and f'src="{f}"' in html
+
+
+def test_lap_report_figures_keep_markers_inside(lap_report, watch_markers):
+    assert {"lap_time.png", "balance.png"} <= set(watch_markers)
+    assert {name: bad for name, bad in watch_markers.items() if bad} == {}

@@ -111,7 +111,7 @@ class ReportInputs:
 def _figure_html(fig) -> Markup:
     if fig is None:
         return Markup("")
-    return Markup(f'<figure><img src="{escape(fig.file)}" alt="{escape(fig.title)}" loading="lazy">'
+    return Markup(f'<figure><img src="{escape(fig.file)}" alt="{escape(fig.title)}">'
                   f'<figcaption><b>{escape(fig.title)}.</b> {escape(fig.caption)}</figcaption></figure>')
 
 
@@ -148,21 +148,12 @@ def _sensitivity_blocks(study, data: dict, folder: Path) -> list:
         about = meta.get(r.name, {})
         unresolved = about.get("unresolved") or []
         words = about.get("statement") or _rank_words(r.name, rows)
-        blocks.append({"response": r.name, "unit": r.unit, "rows": rows, "words": words,
+        blocks.append({"response": r.name, "unit": r.unit, "rows": rows, "words": words, "open": False,
                        "unresolved": "; ".join(" vs ".join(pair) if isinstance(pair, (list, tuple)) else str(pair)
                                                for pair in unresolved),
-                       "figure": F.sobol_bars(r.name, r.unit, _bars_record(rec, params), params, folder)})
+                       "figure": F.sobol_bars(r.name, r.unit, {p.name: rec[p.name] for p in params}, params,
+                                              folder)})
     return blocks
-
-
-def _bars_record(rec: dict, params) -> dict:
-    """The sensitivity record with the interval keys ``figures.sobol_bars`` reads (``S1_conf``, ``ST_conf``).
-
-    The sensitivity JSON names the 95 % half-widths ``S1_pm95`` and ``ST_pm95``; until the figure
-    module reads those names itself, they are handed to it under the names it knows.
-    """
-    return {p.name: {**rec[p.name], "S1_conf": rec[p.name].get("S1_pm95"), "ST_conf": rec[p.name].get("ST_pm95")}
-            for p in params}
 
 
 def _rank_words(response: str, rows: list) -> str:
@@ -192,7 +183,7 @@ def _robust_block(study, rob: dict) -> dict:
     rows = [[p.label(), *(fmt(rec.get("point", {}).get(p.name)) for rec in recs)] for p in study.space.parameters]
     rows.append([f"{name} at the setting [{unit}]", *(fmt(rec.get("value_at_point")) for rec in recs)])
     rows.append([f"{name} under scatter, mean ± std [{unit}]",
-                 *(f"{fmt(rec.get('mean'))} ± {fmt(rec.get('std'), 2)}" for rec in recs)])
+                 *(F.format_with_interval(rec.get("mean"), rec.get("std")) for rec in recs)])
     rows.append([f"surrogate uncertainty at the setting [{unit}]", *(fmt(rec.get("model_std"), 2) for rec in recs)])
     for lim in rob.get("limits", []):
         label = lim["response"]
@@ -202,7 +193,8 @@ def _robust_block(study, rob: dict) -> dict:
             probs.append(fmt(hit[0].get("probability"), 3) if hit else "–")
         bound = " ≤ ".join(x for x in (fmt(lim.get("min")) if lim.get("min") is not None else "", label,
                                         fmt(lim.get("max")) if lim.get("max") is not None else "") if x)
-        rows.append([f"chance that {bound} {lim.get('unit', '')} holds [-]", *probs])
+        unit_word = lim.get("unit", "") if lim.get("unit", "") not in ("", "-") else ""
+        rows.append([f"chance that {bound} {unit_word} holds [-]".replace("  ", " "), *probs])
     flags = [f"Check the {label} setting before trusting it: {rec.get('flag_reason', '')} "
              f"({len(rec.get('confirm_runs', []))} confirming runs are listed in robust.json)."
              for label, rec in cols if rec.get("flag")]
@@ -216,8 +208,24 @@ def _robust_block(study, rob: dict) -> dict:
             f"(the study's tolerances, one standard deviation): it optimises the mean {sign} {fmt(obj.get('k', 1), 3)} "
             "standard deviations under that scatter. The nominal setting is the best on paper, with every knob "
             "exactly where it should be.")
+    text += " " + _coincide(rob)
     return {"columns": [label for label, _ in cols], "rows": rows, "flags": flags, "fragility": frag, "text": text,
             "name": name, "unit": unit}
+
+
+def _coincide(rob: dict) -> str:
+    """One sentence on how far the robust setting moved from the nominal one, and why."""
+    nom, rb = rob.get("nominal", {}), rob.get("robust", {})
+    if not nom or not rb:
+        return ""
+    gap = rb.get("robust_value", 0.0) - nom.get("robust_value", 0.0)
+    same = all(abs(rb["point"][k] - v) <= 1e-3 * max(1.0, abs(v)) for k, v in nom.get("point", {}).items())
+    if same or abs(gap) < 1e-12:
+        return ("The two settings coincide: near the best point on paper the objective is flat against the "
+                "setup scatter, and no limit is close enough for the scatter to break it, so nothing is gained "
+                "by moving away.")
+    return ("The robust setting moves away from the nominal one because there the setup scatter costs less "
+            "(a flatter objective, or more room from a limit), at the price of a little on paper.")
 
 
 def _vehicle_rows(vs: list) -> list:
@@ -228,8 +236,14 @@ def _vehicle_rows(vs: list) -> list:
 
     first = vs[0]
     rows = [row("CLA (negative = downforce) [m^2]", [v["cla_m2"] for v in vs]),
-            row("CDA [m^2]", [v["cda_m2"] for v in vs]),
-            row("front share of the aero load [-]", [v["aero_front_share"] for v in vs])]
+            row("CDA [m^2]", [v["cda_m2"] for v in vs])]
+    for i, speed in enumerate(first["speeds_kph"]):
+        rows.append(row(f"front axle share of the car's load at {fmt(speed, 3)} km/h [-]",
+                        [v["front_load_share"][i] for v in vs], 3))
+    if all(v.get("balance_shift") for v in vs):
+        for i, speed in enumerate(first["speeds_kph"]):
+            rows.append(row(f"balance shift at {fmt(speed, 3)} km/h (negative: towards understeer) [-]",
+                            [v["balance_shift"][i] for v in vs], 3))
     for i, speed in enumerate(first["speeds_kph"]):
         rows.append(row(f"downforce at {fmt(speed, 3)} km/h [N]", [v["downforce_n"][i] for v in vs]))
         rows.append(row(f"drag at {fmt(speed, 3)} km/h [N]", [v["drag_n"][i] for v in vs]))
@@ -237,27 +251,58 @@ def _vehicle_rows(vs: list) -> list:
         rows.append(row(f"corner speed, {fmt(radius, 3)} m radius [km/h]", [v["corner_speed_kph"][i] for v in vs]))
     rows.append(row("top speed [km/h]", [v["top_speed_kph"] for v in vs]))
     if all(v.get("lap_time_s") is not None for v in vs):
-        rows.append(row("lap time [s]", [v["lap_time_s"] for v in vs], 5))
+        rows.append(row("lap time at the surrogate means [s]", [v["lap_time_s"] for v in vs], 5))
     return rows
 
 
+#: Short names of the compared settings, for figure axes.
+SHORT_LABELS = {"as the car runs now": "car now", "best on paper (nominal)": "best on paper",
+                "best under setup scatter (robust)": "best under scatter"}
+
+
+def _lap(rec: dict) -> tuple:
+    """Lap time of a point record and its surrogate std (None when the JSON has no lap-time figure), s."""
+    fig = (rec.get("figures") or {}).get("lap_time_s")
+    if fig:
+        return fig["mean"], fig["std"]
+    return (rec.get("vehicle") or {}).get("lap_time_s"), None
+
+
 def _vehicle_block(rob: dict, folder: Path):
-    cols = [(label, rec.get("vehicle")) for label, rec in _settings_compared(rob)]
-    cols = [(label, v) for label, v in cols if v]
+    recs = [(label, rec) for label, rec in _settings_compared(rob) if rec.get("vehicle")]
+    cols = [(label, rec["vehicle"]) for label, rec in recs]
     if len(cols) < 2:
         return None, []
     vs = [v for _, v in cols]
     figs = []
-    if all(v.get("lap_time_s") is not None for v in vs):
-        figs.append(F.vehicle_bars([label.split(" (")[0] for label, _ in cols], [v["lap_time_s"] for v in vs], "s",
-                                   "lap time", "lap_time.png", folder,
-                                   "Estimated lap time of each setting on the study's track (quasi-steady point "
-                                   "mass with braking and traction limits; shorter is better)."))
+    short = [SHORT_LABELS.get(label, label.split(" (")[0]) for label, _ in cols]
+    laps = [_lap(rec) for _, rec in recs]
+    if all(t is not None for t, _ in laps):
+        stds = [s for _, s in laps]
+        known = all(s is not None for s in stds)
+        half = ([float(np.hypot(s, stds[0])) for s in stds] if known else None)
+        figs.append(F.difference_bars(
+            short, [t for t, _ in laps], "s", "lap time", "lap_time.png", folder,
+            f"Estimated lap time of each setting minus that of {short[0]} on the study's track (quasi-steady point "
+            "mass with braking and traction limits; below zero is faster). "
+            + ("Whiskers: one standard deviation of the difference from the surrogates' uncertainty in CLA front, "
+               "CLA rear and CDA, taken as independent between the settings (an overstatement when they are "
+               "close)." if known else "No uncertainty is drawn: the robust file carries none for the lap time."),
+            intervals=half))
+    if all(v.get("front_load_share") for v in vs) and vs[0].get("static_front_share") is not None:
+        figs.append(F.balance_lines(short, vs[0]["speeds_kph"], [v["front_load_share"] for v in vs],
+                                    vs[0]["static_front_share"], folder))
     text = ("What the settings mean on this car: forces at a few speeds, corner speeds, top speed and lap time, "
             "from the vehicle and track data in the study (quasi-steady estimates, for comparing settings). The "
             "last column is the robust setting minus the " + ("car as it runs now." if len(cols) == 3 else
                                                               "nominal one."))
-    return {"columns": [label for label, _ in cols] + ["change"], "rows": _vehicle_rows(vs), "text": text}, figs
+    rows = _vehicle_rows(vs)
+    if all(s is not None for _, s in laps):
+        rows.append(["lap time ± surrogate std [s]", *(F.format_with_interval(t, s) for t, s in laps), ""])
+    balance = rob.get("balance_change")
+    if balance:
+        text += " " + balance["sentence"]
+    return {"columns": [label for label, _ in cols] + ["change"], "rows": rows, "text": text}, figs
 
 
 def _glance(study, inputs, blocks, robust, vehicle) -> list:
@@ -271,8 +316,9 @@ def _glance(study, inputs, blocks, robust, vehicle) -> list:
     if robust:
         rb = inputs.robust["robust"]
         where = ", ".join(f"{p.name} {fmt(rb['point'].get(p.name), 3)} {p.unit}" for p in study.space.parameters)
-        lines.append(f"What to set: {where}. There {robust['name']} is {fmt(rb.get('mean'))} ± "
-                     f"{fmt(rb.get('std'), 2)} {robust['unit']} under setup scatter.")
+        lines.append(f"What to set: {where}. There {robust['name']} is "
+                     f"{F.format_with_interval(rb.get('mean'), rb.get('std'), unit=robust['unit'])} under setup "
+                     "scatter.")
     if inputs.fit:
         ready = [n for n, r in inputs.fit.items() if str(r.get("verdict", "")).lower().startswith("ready")]
         other = [n for n in inputs.fit if n not in ready]
@@ -281,20 +327,34 @@ def _glance(study, inputs, blocks, robust, vehicle) -> list:
             text += f"; {', '.join(other)} need{'s' if len(other) == 1 else ''} more runs or a check of the data"
         lines.append(text + ".")
     if vehicle:
-        nv, rv = inputs.robust["nominal"]["vehicle"], inputs.robust["robust"]["vehicle"]
-        if nv.get("lap_time_s") is not None:
-            d = rv["lap_time_s"] - nv["lap_time_s"]
-            than = ("the same as the nominal best on paper" if abs(d) < 0.005 else
-                    f"{fmt(abs(d), 2)} s {'slower' if d > 0 else 'faster'} than the nominal best on paper")
-            text = f"What it is worth: the robust setting laps in {fmt(rv['lap_time_s'], 5)} s, {than}"
-            base = (inputs.robust.get("baseline") or {}).get("vehicle")
-            if base and base.get("lap_time_s") is not None:
-                gain = base["lap_time_s"] - rv["lap_time_s"]
-                text += (f", and {fmt(abs(gain), 2)} s {'quicker' if gain > 0 else 'slower'} than the car as it "
-                         f"runs now ({fmt(base['lap_time_s'], 5)} s)")
-            lines.append(text + ".")
+        lines += _worth_lines(inputs.robust)
     if inputs.next_plan is not None and len(inputs.next_plan):
         lines.append(f"Next: {len(inputs.next_plan)} more runs are proposed below to sharpen the maps.")
+    return lines
+
+
+def _worth_lines(rob: dict) -> list:
+    """"What it is worth" (lap time with its uncertainty) and how the balance moves, for "At a glance"."""
+    (rt, rs), (nt, ns) = _lap(rob["robust"]), _lap(rob["nominal"])
+    lines = []
+    if rt is not None and nt is not None:
+        d = rt - nt
+        than = ("the same as the nominal best on paper" if abs(d) < 0.0005 else
+                f"{fmt(abs(d), 1)} s {'slower' if d > 0 else 'faster'} than the nominal best on paper"
+                + (" (the price of holding the limits under setup scatter)" if d > 0 else ""))
+        text = f"What it is worth: the robust setting laps in {F.format_with_interval(rt, rs, unit='s')}, {than}"
+        base = rob.get("baseline")
+        if base:
+            bt, bs = _lap(base)
+            if bt is not None:
+                gain = bt - rt
+                text += (f", and {fmt(abs(gain), 2)} s {'quicker' if gain > 0 else 'slower'} than the car as it "
+                         f"runs now ({F.format_with_interval(bt, bs, unit='s')})")
+        if rs is not None:
+            text += "; ± is one standard deviation from the surrogates' uncertainty"
+        lines.append(text + ".")
+    if rob.get("balance_change"):
+        lines.append("How the balance moves: " + rob["balance_change"]["sentence"])
     return lines
 
 
@@ -315,6 +375,8 @@ def build_report(inputs: ReportInputs, folder) -> Path:
     if inputs.fit:
         figs["loo"] = [F.loo_scatter(n, r, folder) for n, r in inputs.fit.items()]
     blocks = _sensitivity_blocks(study, inputs.sensitivity, folder) if inputs.sensitivity else []
+    for b in blocks:
+        b["open"] = b["response"] == _objective(study, inputs)
     robust = _robust_block(study, inputs.robust) if inputs.robust else None
     vehicle, figs["vehicle"] = _vehicle_block(inputs.robust, folder) if inputs.robust else (None, [])
     pick = inputs.robust["robust"]["point"] if inputs.robust else None
@@ -381,18 +443,21 @@ def _strongest_two(study, blocks, response):
 
 
 def _effect_figures(study, inputs, blocks, pick, folder) -> list:
+    """One ``{"response", "unit", "open", "figures"}`` group per response (the objective's group open)."""
     sset = inputs.surrogates
-    figs = []
+    groups = []
     fixed = np.array([pick[n] for n in study.space.names]) if pick else (study.space.lower + study.space.upper) / 2
     for r in study.responses:
         if r.name not in sset.responses:
             continue
-        figs.append(F.main_effects(r.name, r.unit, sset.predict, study.space, folder))
+        figs = [F.main_effects(r.name, r.unit, sset.predict, study.space, folder)]
         px, py = _strongest_two(study, blocks, r.name)
         if px and py:
             figs.append(F.response_map(r.name, r.unit, sset.predict, study.space, px, py, fixed,
                                        inputs.results.frame, folder, pick=pick))
-    return figs
+        groups.append({"response": r.name, "unit": r.unit, "open": r.name == _objective(study, inputs),
+                       "figures": figs})
+    return groups
 
 
 def _tradeoff_figures(study, inputs, folder) -> list:
@@ -407,7 +472,10 @@ def _tradeoff_figures(study, inputs, folder) -> list:
             x = np.array([[inputs.robust[key]["point"][n] for n in study.space.names]])
             pred = inputs.surrogates.predict(x)
             points.append((label, colour, (float(pred[rx][0][0]), float(pred[ry][0][0]))))
-    return [F.tradeoff_plot(frame, rx, study.response(rx).unit, ry, study.response(ry).unit, folder, points)]
+    senses = tuple(g if g in ("minimize", "maximize") else "minimize"
+                   for g in (study.response(rx).goal, study.response(ry).goal))
+    return [F.tradeoff_plot(frame, rx, study.response(rx).unit, ry, study.response(ry).unit, folder, points,
+                            include=[p for _, _, p in points], senses=senses)]
 
 
 def _next_block(study, inputs):

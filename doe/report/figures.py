@@ -13,6 +13,7 @@ from decimal import ROUND_HALF_UP, Decimal
 from pathlib import Path
 
 import numpy as np
+from matplotlib.patches import Rectangle
 
 from .style import PALETTE, new_figure, save
 
@@ -166,8 +167,11 @@ def plan_pairs(study, frame, folder: Path) -> Figure:
             if (~ok).any():
                 ax.scatter(frame[px.name][~ok], frame[py.name][~ok], s=22, marker="x", color=PALETTE["caution"],
                            label="failed run")
+            ax.add_patch(Rectangle((px.low, py.low), px.high - px.low, py.high - py.low, fill=False, lw=0.6,
+                                   ls=":", color=PALETTE["muted"]))
             ax.set_xlim(px.low, px.high)
             ax.set_ylim(py.low, py.high)
+            _pad_limits(ax)                                    # runs on a bound stay whole inside the axes
             if i == d - 1:
                 ax.set_xlabel(px.label())
             if j == 0:
@@ -176,7 +180,7 @@ def plan_pairs(study, frame, folder: Path) -> Figure:
     failed = int((~ok).sum())
     return Figure("plan_pairs.png", "Where the runs are",
                   f"Each dot is a run, seen on every pair of parameters ({len(frame)} runs"
-                  + (f", {failed} failed, marked ×" if failed else "") + "). Even coverage with no clusters or "
+                  + (f", {failed} failed, marked ×" if failed else "") + "; the dotted box is the bounds). Even coverage with no clusters or "
                   "empty corners is what a space-filling plan is for.")
 
 
@@ -211,8 +215,8 @@ def sobol_bars(name: str, unit: str, record: dict, parameters, folder: Path) -> 
     names = [p.name for p in parameters if p.name in record]
     s1 = np.array([record[n]["S1"] for n in names])
     st = np.array([record[n]["ST"] for n in names])
-    c1 = np.array([record[n].get("S1_conf", 0.0) for n in names])
-    ct = np.array([record[n].get("ST_conf", 0.0) for n in names])
+    c1 = np.array([record[n].get("S1_pm95") or 0.0 for n in names])
+    ct = np.array([record[n].get("ST_pm95") or 0.0 for n in names])
     order = np.argsort(-st)
     y = np.arange(len(names))
     fig, ax = new_figure(6.4, 0.55 * len(names) + 1.4)

@@ -62,6 +62,8 @@ key                         meaning (unit)
                             neighbours that would confirm it
 ``fragility``               ``{parameter: {...}}``, see :class:`Fragility`
 ``vehicle``                 :class:`doe.vehicle.VehicleFigures` as a dict (with ``[vehicle]``)
+``figures``                 ``{figure: {"mean", "std", "unit"}}``: vehicle figures at the setting
+                            with the surrogates' uncertainty (with a vehicle objective), else null
 ==========================  ===================================================
 
 ``vehicle_change``: ``robust - nominal`` of every vehicle figure (with ``[vehicle]``), same
@@ -69,6 +71,15 @@ keys and units as ``vehicle``; a negative ``lap_time_s`` means the robust point 
 ``baseline``: the setting the car runs now (``[robust] baseline``), a record like
 ``robust`` (limits judged at the robust probability), or null.
 ``vehicle_change_from_baseline``: ``robust - baseline`` of the vehicle figures, or null.
+``balance_change``: with a vehicle objective, how the handling balance at speed moves from the
+baseline (or the nominal setting) to the robust one (:class:`doe.vehicle.BalanceChange` keys plus
+``from``), or null.
+
+*Vehicle figures.* The objective and the limits may name vehicle figures (lap
+time, top speed, balance) computed from three aero responses through a
+:class:`doe.vehicle.VehicleObjective` (:mod:`doe.robust.figures`); they are then
+read like responses. The baseline joins the starting points of both searches,
+so neither pick scores worse than the car as it runs now.
 
 Trade-off CSV (written by :func:`write_tradeoff`): the parameter columns (study
 units), then per trade-off response ``<response>`` (surrogate mean, response
@@ -98,7 +109,8 @@ from ..errors import DoeError
 from ..seeds import child_seeds, seed_value
 from ..space import Space
 from ..study.settings import ResponseLimit
-from ..vehicle import VehicleFigures, compare_figures
+from ..vehicle import Aero, VehicleFigures, VehicleLimit, balance_change, compare_figures, figure_unit
+from .figures import FigureTerms
 from .scatter import fragility, predict_checked, propagate, scatter_draws, goal_sign
 
 __all__ = ["PointResult", "RobustResult", "find_settings", "DEFAULT_MAXITER", "DEFAULT_RESTARTS"]
@@ -129,10 +141,20 @@ class _Problem:
     probability: float
     draws: np.ndarray
     ranges: dict            # response -> range of the surrogate mean over the space
+    terms: FigureTerms | None = None    # vehicle figures read like responses
 
     @property
     def responses(self) -> list:
         return list(dict.fromkeys([self.objective] + [lim.response for lim in self.limits]))
+
+    def spreads(self, X: np.ndarray, space: Space) -> dict:
+        """:func:`propagate` of the responses read, vehicle figures included."""
+        if self.terms is None:
+            return propagate(self.predict, space, X, self.draws, self.responses)
+        figures = [n for n in self.responses if self.terms.is_figure(n)]
+        plain = [n for n in self.responses if n not in figures] + (list(self.terms.aero) if figures else [])
+        spreads = propagate(self.terms.predict, space, X, self.draws, list(dict.fromkeys(plain)))
+        return self.terms.add_spreads(spreads, figures)
 
     def linear_violation(self, X: np.ndarray) -> np.ndarray:
         v = np.zeros(len(X))
@@ -163,7 +185,7 @@ class _Problem:
     def penalised(self, U: np.ndarray, robust: bool) -> np.ndarray:
         """Value the search minimises, for points ``U`` (m, d) in the unit cube."""
         X = self.space.from_unit(U)
-        spreads = propagate(self.predict, self._space(robust), X, self.draws, self.responses)
+        spreads = self.spreads(X, self._space(robust))
         obj = spreads[self.objective]
         k = self.k if robust else 0.0
         score = self.sense * obj.mean - k * obj.std
@@ -247,6 +269,10 @@ class PointResult:
     confirm_runs : list of dict
     fragility : list of Fragility
     vehicle : doe.vehicle.VehicleFigures or None
+    figures : dict or None
+        ``{figure: {"mean", "std", "unit"}}``: vehicle figures at the exact setting with the
+        surrogate's uncertainty of CLA front, CLA rear and CDA carried through (unscented
+        transform, :meth:`doe.vehicle.VehicleObjective.normal`); None without vehicle figures.
     """
 
     point: dict
@@ -263,6 +289,7 @@ class PointResult:
     confirm_runs: list
     fragility: list
     vehicle: VehicleFigures | None = None
+    figures: dict | None = None
 
     def to_dict(self, objective_unit: str = "") -> dict:
         """The JSON record (``objective_unit`` labels the fragility units)."""
@@ -310,7 +337,7 @@ def _confirm_runs(space: Space, x: np.ndarray) -> list:
 
 
 def _describe_point(problem: _Problem, x: np.ndarray, robust: bool, runs_X, vehicle_block) -> PointResult:
-    spreads = propagate(problem.predict, problem.space, x[None, :], problem.draws, problem.responses)
+    spreads = problem.spreads(x[None, :], problem.space)
     exact = predict_checked(problem.predict, x[None, :], problem.responses)
     obj = spreads[problem.objective]
     mean, std = float(obj.mean[0]), float(obj.std[0])
@@ -343,7 +370,34 @@ def _describe_point(problem: _Problem, x: np.ndarray, robust: bool, runs_X, vehi
         confirm_runs=_confirm_runs(problem.space, x),
         fragility=fragility(problem.predict, problem.space, problem.objective,
                             "maximize" if problem.sense > 0 else "minimize", x),
-        vehicle=vehicle_block(x) if vehicle_block is not None else None)
+        vehicle=vehicle_block(x) if vehicle_block is not None else None, figures=_figures_at(problem, x))
+
+
+def _aero_at(problem: _Problem, x: np.ndarray) -> tuple:
+    """Surrogate means and standard deviations of CLA front, CLA rear and CDA at setting ``x``, m^2."""
+    pred = predict_checked(problem.terms.predict, x[None, :], problem.terms.aero)
+    return [pred[n][0] for n in problem.terms.aero], [pred[n][1] for n in problem.terms.aero]
+
+
+def _figures_at(problem: _Problem, x: np.ndarray) -> dict | None:
+    if problem.terms is None:
+        return None
+    means, stds = _aero_at(problem, x)
+    out = problem.terms.objective.normal(means, stds)
+    return {name: {"mean": float(m[0]), "std": float(sd[0]), "unit": figure_unit(name)}
+            for name, (m, sd) in out.items()}
+
+
+def _balance(problem: _Problem, before: np.ndarray, after: np.ndarray, names) -> dict | None:
+    """:func:`doe.vehicle.balance_change` between two settings, from the surrogate means (JSON record)."""
+    if problem.terms is None:
+        return None
+    aero = []
+    for x in (before, after):
+        (cf, cr, cd), _ = _aero_at(problem, x)
+        aero.append(Aero(float(cf[0]), float(cr[0]), max(float(cd[0]), 0.0)))
+    obj = problem.terms.objective
+    return balance_change(obj.vehicle, aero[0], aero[1], obj.balance_speed_kph, names=names).to_dict()
 
 
 @dataclass(frozen=True)
@@ -364,6 +418,9 @@ class RobustResult:
         The setting the car runs now, described like the two optima.
     vehicle_change_from_baseline : dict or None
         ``robust - baseline`` of the vehicle figures.
+    balance_change : dict or None
+        :class:`doe.vehicle.BalanceChange` from the baseline (or, without one, the nominal
+        setting) to the robust setting, with ``from``: ``"baseline"`` or ``"nominal"``.
     """
 
     objective: str
@@ -377,6 +434,7 @@ class RobustResult:
     vehicle_change: dict | None = None
     baseline: PointResult | None = None
     vehicle_change_from_baseline: dict | None = None
+    balance_change: dict | None = None
 
     def to_dict(self) -> dict:
         """The robust JSON."""
@@ -385,7 +443,8 @@ class RobustResult:
                 "nominal": self.nominal.to_dict(self.unit), "robust": self.robust.to_dict(self.unit),
                 "vehicle_change": self.vehicle_change,
                 "baseline": self.baseline.to_dict(self.unit) if self.baseline is not None else None,
-                "vehicle_change_from_baseline": self.vehicle_change_from_baseline}
+                "vehicle_change_from_baseline": self.vehicle_change_from_baseline,
+                "balance_change": self.balance_change}
 
 
 def _ranges(predict, space: Space, responses, seed) -> dict:
@@ -397,7 +456,7 @@ def _ranges(predict, space: Space, responses, seed) -> dict:
 def find_settings(predict, space: Space, objective: str, goal: str, *, k: float = 1.0, limits=(),
                   probability: float = 0.9, samples: int = 128, seed=0, runs_X=None, units=None,
                   vehicle_block=None, baseline=None, maxiter: int = DEFAULT_MAXITER,
-                  restarts: int = DEFAULT_RESTARTS) -> RobustResult:
+                  restarts: int = DEFAULT_RESTARTS, vehicle_objective=None, aero_responses=None) -> RobustResult:
     """Nominal optimum on the surrogate mean, and robust optimum under setup scatter.
 
     Parameters
@@ -407,13 +466,14 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
     space : Space
         Bounds, tolerances (one standard deviation of setup scatter) and linear constraints.
     objective : str
-        Response to optimise.
+        Response to optimise, or (with ``vehicle_objective``) a vehicle figure such as ``"lap_time_s"``.
     goal : {"maximize", "minimize"}
     k : float
         Weight of the scatter spread in the robust value, -.
-    limits : sequence of doe.study.reader.ResponseLimit or dict
+    limits : sequence of doe.study.reader.ResponseLimit, doe.vehicle.VehicleLimit or dict
         ``min <= response <= max`` limits on other responses (their units); a
-        dict takes the keys ``response``, ``min`` and ``max``.
+        dict takes the keys ``response``, ``min`` and ``max``. A VehicleLimit
+        (and every limit of ``vehicle_objective``) limits a vehicle figure.
     probability : float
         Chance each limit must hold at the robust point, -.
     samples : int
@@ -433,6 +493,11 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
         Generations of each differential-evolution run.
     restarts : int
         Independent runs per search; the best is kept.
+    vehicle_objective : doe.vehicle.VehicleObjective, optional
+        Turns the aero responses into vehicle figures (lap time, balance, top
+        speed) that the objective and limits may name (:mod:`doe.robust.figures`).
+    aero_responses : (str, str, str), optional
+        Responses holding CLA front, CLA rear and CDA (m^2); needed with ``vehicle_objective``.
 
     Returns
     -------
@@ -453,19 +518,25 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
         baseline = space.as_points(baseline)[0]
         if not space.in_bounds(baseline[None, :])[0]:
             raise DoeError(f"robust: the baseline {dict(zip(space.names, baseline.tolist()))} is outside the bounds")
-    limits = tuple(_as_limit(lim) for lim in limits)
+    terms, limits = _figure_terms(predict, objective, limits, vehicle_objective, aero_responses)
+    if terms is not None:
+        predict = terms
+        units = {**{n: figure_unit(n) for n in terms.names}, **(units or {})}
     seeds = child_seeds(seed, 3)
     responses = list(dict.fromkeys([objective] + [lim.response for lim in limits]))
     ranges = _ranges(predict, space, responses, seeds[0])
     problem = _Problem(predict, space, objective, sense, float(k), tuple(limits), float(probability),
-                       scatter_draws(space.dim, samples, seeds[1]), ranges)
+                       scatter_draws(space.dim, samples, seeds[1]), ranges, terms)
     if int(maxiter) < 1 or int(restarts) < 1:
         raise DoeError(f"robust: maxiter and restarts must be at least 1, got {maxiter} and {restarts}")
     # the nominal search is cheap per point (no scatter draws): a dense pilot; its best points and the
     # nominal optimum seed the robust search (with zero tolerances the two problems coincide)
-    x_nom, seen = _search(problem, False, int(seeds[2]), int(maxiter), int(restarts), NOMINAL_PILOT)
+    # the car as it runs now joins both pilots, so neither pick can score worse than it
+    known = space.to_unit(baseline[None, :]) if baseline is not None else np.empty((0, space.dim))
+    x_nom, seen = _search(problem, False, int(seeds[2]), int(maxiter), int(restarts), NOMINAL_PILOT,
+                          extra=known if len(known) else None)
     x_rob, _ = _search(problem, True, int(seeds[2]), int(maxiter), int(restarts), ROBUST_PILOT,
-                       extra=np.vstack([space.to_unit(x_nom), seen]))
+                       extra=np.vstack([space.to_unit(x_nom), known, seen]))
     nominal = _describe_point(problem, x_nom, False, runs_X, vehicle_block)
     robust = _describe_point(problem, x_rob, True, runs_X, vehicle_block)
     base = _describe_point(problem, baseline, True, runs_X, vehicle_block) if baseline is not None else None
@@ -481,8 +552,35 @@ def find_settings(predict, space: Space, objective: str, goal: str, *, k: float 
               "probability_target": float(probability)}
     lims = [{"response": lim.response, "unit": units.get(lim.response, ""), "min": lim.min, "max": lim.max}
             for lim in limits]
+    balance = (_balance(problem, baseline, x_rob, ("the car as it runs now", "the robust setting"))
+               if baseline is not None else _balance(problem, x_nom, x_rob, ("the nominal setting", "the robust setting")))
+    if balance is not None:
+        balance = {"from": "baseline" if baseline is not None else "nominal", **balance}
     return RobustResult(objective, units.get(objective, ""), goal, float(k), nominal, robust, lims, method, change,
-                        base, change_base)
+                        base, change_base, balance)
+
+
+def _figure_terms(predict, objective: str, limits, vehicle_objective, aero_responses) -> tuple:
+    """The :class:`FigureTerms` a search needs (or None), and every limit as a ResponseLimit."""
+    plain, figures = [], []
+    for lim in list(limits) + list(vehicle_objective.limits if vehicle_objective is not None else ()):
+        if isinstance(lim, VehicleLimit):
+            figures.append(lim.figure)
+            plain.append(ResponseLimit(lim.figure, lim.max, lim.min))
+        else:
+            plain.append(_as_limit(lim))
+    if vehicle_objective is None:
+        if figures:
+            raise DoeError("robust: a limit on a vehicle figure needs a vehicle_objective")
+        return None, tuple(plain)
+    if aero_responses is None or len(aero_responses) != 3:
+        raise DoeError("robust: give aero_responses = (CLA front, CLA rear, CDA) with a vehicle_objective")
+    try:
+        figure_unit(objective)
+        figures.insert(0, objective)
+    except DoeError:
+        pass
+    return FigureTerms(predict, vehicle_objective, aero_responses, figures), tuple(plain)
 
 
 def _as_limit(lim) -> ResponseLimit:

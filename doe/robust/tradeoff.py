@@ -18,7 +18,7 @@ from ..errors import DoeError
 from ..space import Space
 from .scatter import goal_sign, predict_checked
 
-__all__ = ["nondominated", "tradeoff_set", "write_tradeoff"]
+__all__ = ["nondominated", "tradeoff_set", "refine_points", "write_tradeoff"]
 
 
 # ---------------------------------------------------------------------------
@@ -52,8 +52,98 @@ def nondominated(F) -> np.ndarray:
     return keep
 
 
+def _minimised(pred: dict, responses, goals: dict, targets: dict) -> np.ndarray:
+    """Columns to minimise, one per response: ``-+ mean`` by its goal, or the distance to its target."""
+    cols = []
+    for name in responses:
+        goal = goals.get(name, "none")
+        mean = pred[name][0]
+        if goal == "none":
+            if name not in targets:
+                raise DoeError(f"trade-off: response '{name}' has no goal; give it a target")
+            cols.append(np.abs(mean - targets[name]))
+        else:
+            cols.append(-goal_sign(goal) * mean)
+    return np.column_stack(cols)
+
+
+def refine_points(predict, space: Space, responses, goals: dict, X, targets=None, levels: int = 8,
+                  maxiter: int = 60) -> np.ndarray:
+    """Settings on the trade-off's edges and along it, polished from the best of the candidates ``X``.
+
+    Each response's own optimum on the surrogate mean (the ends of the trade-off
+    line), then, for the first two responses, ``levels`` epsilon-constraint
+    points: the best second response with the first no worse than a level
+    between its two ends ([D]_ sec. 4.2; Haimes, Lasdon & Wismer 1971). Each is
+    a local SLSQP polish (unit cube, the linear constraints kept) from the best
+    candidate of ``X`` for it (and, along the line, also from the previous
+    level's point), so it is never worse than that candidate.
+
+    Parameters
+    ----------
+    predict, space, responses, goals, targets
+        As :func:`tradeoff_set`.
+    X : array_like, shape (n, d)
+        Feasible candidate settings (study units) to start from.
+    levels : int
+    maxiter : int
+        SLSQP iterations per polish.
+
+    Returns
+    -------
+    ndarray, shape (k, d)
+        Feasible settings, study units.
+    """
+    from scipy.optimize import minimize
+
+    responses, targets = list(responses), targets or {}
+    X = space.as_points(X)
+    F = _minimised(predict_checked(predict, X, responses), responses, goals, targets)
+
+    def values(u):
+        x = space.from_unit(np.clip(np.atleast_2d(u), 0.0, 1.0))
+        return _minimised(predict_checked(predict, x, responses), responses, goals, targets)[0]
+
+    span = space.upper - space.lower
+    cons = []
+    for c in space.constraints:
+        coef = np.array([c.terms.get(n, 0.0) for n in space.names]) * span
+        base = float(np.dot([c.terms.get(n, 0.0) for n in space.names], space.lower))
+        scale = float(np.sum(np.abs(coef))) or 1.0
+        if c.max is not None:
+            cons.append({"type": "ineq", "fun": lambda u, a=coef, b=base, m=c.max, s=scale: (m - b - a @ u) / s})
+        if c.min is not None:
+            cons.append({"type": "ineq", "fun": lambda u, a=coef, b=base, m=c.min, s=scale: (a @ u + b - m) / s})
+    scale = np.ptp(F, axis=0)
+    scale = np.where(scale > 0, scale, 1.0)
+
+    def polish(start, j, level=None):
+        extra = [] if level is None else [{"type": "ineq", "fun": lambda u: (level - values(u)[0]) / scale[0]}]
+        res = minimize(lambda u: values(u)[j] / scale[j], space.to_unit(start[None, :])[0], method="SLSQP",
+                       bounds=[(0.0, 1.0)] * space.dim, constraints=cons + extra,
+                       options={"maxiter": maxiter, "ftol": 1e-10})
+        u = np.clip(res.x, 0.0, 1.0)
+        x, f = space.from_unit(u[None, :])[0], values(u)
+        ok = bool(space.feasible(x[None, :])[0]) and (level is None or f[0] <= level)
+        return x if ok and f[j] <= values(space.to_unit(start[None, :]))[j] else start
+
+    ends = [polish(X[np.argmin(F[:, j])], j) for j in range(len(responses))]
+    out = list(ends)
+    lo, hi = values(space.to_unit(ends[0][None, :]))[0], values(space.to_unit(ends[1][None, :]))[0]
+    last = ends[0]
+    for level in np.linspace(lo, hi, levels + 2)[1:-1]:
+        ok = F[:, 0] <= level
+        if np.any(ok):
+            # two starts, the best sampled setting under the level and the last level's point (a
+            # continuation along the line); the better polish is kept
+            tries = [polish(X[ok][np.argmin(F[ok, 1])], 1, level), polish(last, 1, level)]
+            last = min(tries, key=lambda x: values(space.to_unit(x[None, :]))[1])
+            out.append(last)
+    return np.asarray(out)
+
+
 def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, samples: int = 4096, seed=0,
-                 candidates=None) -> pd.DataFrame:
+                 candidates=None, include=None, refine: bool = False) -> pd.DataFrame:
     """Non-dominated settings of several responses on the surrogate mean (e.g. downforce vs drag).
 
     Parameters
@@ -72,6 +162,11 @@ def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, sa
     seed : int
     candidates : array_like, shape (n, d), optional
         Settings to filter instead of the sample (study units).
+    include : array_like, shape (k, d), optional
+        Settings added to the candidates (e.g. the recommended picks), study units.
+    refine : bool
+        Add each response's optimum and points along the line (:func:`refine_points`), so
+        the set reaches the true ends of the trade-off, not only the sample's.
 
     Returns
     -------
@@ -89,21 +184,15 @@ def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, sa
         X = space.from_unit(U)
     else:
         X = space.as_points(candidates)
+    if include is not None and len(include):
+        X = np.vstack([X, space.as_points(include)])
     X = X[space.feasible(X)]
     if len(X) == 0:
         raise DoeError("trade-off: no candidate setting meets the constraints")
+    if refine:
+        X = np.unique(np.vstack([X, refine_points(predict, space, responses, goals, X, targets)]), axis=0)
     pred = predict_checked(predict, X, responses)
-    cols = []
-    for name in responses:
-        goal = goals.get(name, "none")
-        mean = pred[name][0]
-        if goal == "none":
-            if name not in targets:
-                raise DoeError(f"trade-off: response '{name}' has no goal; give it a target")
-            cols.append(np.abs(mean - targets[name]))
-        else:
-            cols.append(-goal_sign(goal) * mean)
-    keep = nondominated(np.column_stack(cols))
+    keep = nondominated(_minimised(pred, responses, goals, targets))
     frame = pd.DataFrame(X[keep], columns=space.names)
     for name in responses:
         frame[name] = pred[name][0][keep]

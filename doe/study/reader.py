@@ -48,6 +48,11 @@ Optional tables for robust settings and vehicle figures (see
     ``tradeoff`` (responses of the trade-off set; default those with a goal),
     ``targets`` (``{ response = value }`` for trade-off responses with goal none),
     ``baseline`` (``{ parameter = value, ... }``: the setting run now, to compare with).
+    The objective may also be a vehicle figure computed from the ``[vehicle]`` axle responses
+    (``lap_time_s`` minimised, needs ``[track]``; ``top_speed_kph`` or
+    ``corner_speed_<radius>m_kph`` maximised), and a limit may be put on a figure with
+    ``{ figure = "balance_shift", min = -0.045 }`` (figures: ``lap_time_s``, ``top_speed_kph``,
+    ``front_load_share``, ``balance_shift``, ``corner_speed_<radius>m_kph``).
 ``[vehicle]``
     ``mass_kg``, ``tyre_mu``, ``power_kw`` (at the wheels), ``wheelbase_m``,
     ``cg_to_front_axle_m`` (required); ``rolling_resistance`` (-, default
@@ -55,7 +60,7 @@ Optional tables for robust settings and vehicle figures (see
     ``air_density_kg_m3`` (default 1.225); ``cla_response``/``cda_response``
     (default cla_total/cda_total), ``front_share_response`` or
     ``aero_front_share`` (front share of the aero load, -); ``speeds_kph`` and
-    ``radii_m`` of the tables.
+    ``radii_m`` of the tables; ``balance_speed_kph`` (speed of the balance figures, default 150).
 ``[track]``
     ``name`` and ``[[track.segments]]``, each ``kind = "straight"`` with
     ``length_m``, or ``kind = "corner"`` with ``radius_m`` and one of
@@ -71,14 +76,14 @@ from pathlib import Path
 
 from ..checks import is_number
 from .. import defaults
-from ..errors import StudyError, where
+from ..errors import DoeError, StudyError, where
 from ..runs.evaluators import check_settings
 from ..space import LinearConstraint, Parameter, Space
 from .settings import (EVALUATOR_KINDS, GOALS, PLAN_METHODS, RESERVED_COLUMNS,
                        EvaluatorSettings, FitSettings, LowFidelitySettings, PlanSettings, Response, ResponseLimit,
-                       RobustSettings, SensitivitySettings, Study, VehicleSettings)
+                       RobustSettings, SensitivitySettings, Study, VehicleSettings, figure_goal)
 from .tables import REQUIRED, Source, Table
-from ..vehicle import DRIVES, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle
+from ..vehicle import DRIVES, FIGURE_UNITS, RHO_SEA_LEVEL, SEGMENT_KINDS, Segment, Track, Vehicle, VehicleLimit
 
 #: Level names of a choice knob (they may be file names, e.g. of wing sections).
 LEVEL_PATTERN = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_./-]{0,79}$")
@@ -164,10 +169,10 @@ def read_study_text(text: str, path: str | Path | None = None) -> Study:
     fit = _read_fit(_one_table(top, "fit"))
     sensitivity = _read_sensitivity(_one_table(top, "sensitivity"), parameters)
     has_goal = any(r.goal != "none" for r in responses)
-    robust = (_read_robust(_one_table(top, "robust"), responses, plan.seed, parameters)
-              if "robust" in data or has_goal else None)
     vehicle = _read_vehicle(_one_table(top, "vehicle"), responses) if "vehicle" in data else None
     track = _read_track(_one_table(top, "track")) if "track" in data else None
+    robust = (_read_robust(_one_table(top, "robust"), responses, plan.seed, parameters, vehicle, track)
+              if "robust" in data or has_goal else None)
     low = _read_low_fidelity(_one_table(top, "low_fidelity"), plan.seed) if "low_fidelity" in data else None
     if fit.fidelity == "two" and low is None:
         raise StudyError(f"{where(path, source.line_of('fidelity'))}: [fit] fidelity = \"two\" needs a "
@@ -400,27 +405,70 @@ def _read_baseline(t: Table, parameters) -> dict | None:
     return {n: float(values[n]) for n in names}
 
 
-def _read_robust(t: Table, responses, plan_seed: int, parameters) -> RobustSettings:
+FIGURE_NAMES = ", ".join(list(FIGURE_UNITS) + ["corner_speed_<radius>m_kph"])
+
+
+def _figure_usable(t: Table, key: str, name: str, vehicle, track) -> None:
+    """A vehicle figure needs ``[vehicle]`` with the axle responses, and lap time a ``[track]``."""
+    if vehicle is None or vehicle.cla_front_response is None:
+        raise t.error(key, f"the vehicle figure '{name}' needs a [vehicle] table with cla_front_response and "
+                           "cla_rear_response (it is computed from their surrogates)")
+    if name == "lap_time_s" and track is None:
+        raise t.error(key, "the vehicle figure 'lap_time_s' needs a [track] table")
+
+
+def _objective(t: Table, responses, vehicle, track) -> tuple:
+    """``(name, goal, is_figure)`` of ``[robust] objective``: a response with a goal, or a vehicle figure."""
     goals = {r.name: r.goal for r in responses}
     first = next((r.name for r in responses if r.goal != "none"), responses[0].name)
-    objective = _response_name(t, "objective", responses, default=first)
-    if goals[objective] == "none":
-        raise t.error("objective", f"response '{objective}' has goal = \"none\"; give it goal = \"minimize\" "
-                                   "or \"maximize\" in [[responses]]")
+    name = t.take("objective", str, default=first)
+    if name in goals:
+        if goals[name] == "none":
+            raise t.error("objective", f"response '{name}' has goal = \"none\"; give it goal = \"minimize\" "
+                                       "or \"maximize\" in [[responses]]")
+        return name, goals[name], False
+    try:
+        goal = figure_goal(name)
+    except DoeError:
+        raise t.error("objective", f"'{name}' is not a response ({', '.join(goals)}) or a vehicle figure "
+                                   f"({FIGURE_NAMES})") from None
+    if goal == "none":
+        raise t.error("objective", f"the vehicle figure '{name}' has no better direction; put a window on it "
+                                   "in limits instead")
+    _figure_usable(t, "objective", name, vehicle, track)
+    return name, goal, True
+
+
+def _read_limit(lt: Table, responses, vehicle, track):
+    """One entry of ``[robust] limits``: ``{ response = ... }`` or ``{ figure = ... }`` with ``min``/``max``."""
+    if lt.has("figure") and lt.has("response"):
+        raise lt.error("figure", "give 'response' or 'figure', not both")
+    if lt.has("figure"):
+        name = lt.take("figure", str)
+        try:
+            figure_goal(name)
+        except DoeError:
+            raise lt.error("figure", f"'{name}' is not a vehicle figure ({FIGURE_NAMES})") from None
+        _figure_usable(lt, "figure", name, vehicle, track)
+    else:
+        name = _response_name(lt, "response", responses)
+    hi, lo = lt.take("max", float, default=None), lt.take("min", float, default=None)
+    lt.finish()
+    if hi is None and lo is None:
+        raise lt.error(None, "give 'max', 'min' or both")
+    if hi is not None and lo is not None and not lo < hi:
+        raise lt.error("max", f"must be greater than min ({hi:g} <= {lo:g})")
+    return VehicleLimit(name, lo, hi) if lt.has("figure") else ResponseLimit(name, hi, lo)
+
+
+def _read_robust(t: Table, responses, plan_seed: int, parameters, vehicle=None, track=None) -> RobustSettings:
+    goals = {r.name: r.goal for r in responses}
+    objective, goal, is_figure = _objective(t, responses, vehicle, track)
     k = t.take("k", float, default=1.0, check=lambda v: v >= 0, why="must be >= 0")
     prob = t.take("probability", float, default=0.9, check=lambda v: 0 < v < 1, why="must be between 0 and 1")
     samples = t.take("samples", int, default=128, check=lambda v: 16 <= v <= 65536, why="must be 16 to 65536")
     seed = t.take("seed", int, default=plan_seed, check=lambda v: 0 <= v < 2**63, why="must be between 0 and 2^63-1")
-    limits = []
-    for lt in _array(t, "limits"):
-        name = _response_name(lt, "response", responses)
-        hi, lo = lt.take("max", float, default=None), lt.take("min", float, default=None)
-        lt.finish()
-        if hi is None and lo is None:
-            raise lt.error(None, "give 'max', 'min' or both")
-        if hi is not None and lo is not None and not lo < hi:
-            raise lt.error("max", f"must be greater than min ({hi:g} <= {lo:g})")
-        limits.append(ResponseLimit(name, hi, lo))
+    limits = [_read_limit(lt, responses, vehicle, track) for lt in _array(t, "limits")]
     with_goal = tuple(r.name for r in responses if r.goal != "none")
     tradeoff = tuple(t.take("tradeoff", list, default=list(with_goal)))
     targets = t.take("targets", dict, default={})
@@ -434,8 +482,9 @@ def _read_robust(t: Table, responses, plan_seed: int, parameters) -> RobustSetti
             raise t.error("targets", f"'{name}' must be a trade-off response with a number as its target")
     baseline = _read_baseline(t, parameters)
     t.finish()
-    return RobustSettings(objective, goals[objective], k, prob, tuple(limits), samples, seed, tradeoff,
-                          {n: float(v) for n, v in targets.items()}, baseline)
+    return RobustSettings(objective, goal, k, prob, tuple(lim for lim in limits if isinstance(lim, ResponseLimit)),
+                          samples, seed, tradeoff, {n: float(v) for n, v in targets.items()}, baseline,
+                          tuple(lim for lim in limits if isinstance(lim, VehicleLimit)), is_figure)
 
 
 def _read_vehicle(t: Table, responses) -> VehicleSettings:
@@ -468,7 +517,9 @@ def _read_vehicle(t: Table, responses) -> VehicleSettings:
         front_share_response=_response_name(t, "front_share_response", responses, default=None),
         aero_front_share=t.take("aero_front_share", float, default=0.5),
         speeds_kph=_numbers(t, "speeds_kph", VehicleSettings.speeds_kph),
-        radii_m=_numbers(t, "radii_m", VehicleSettings.radii_m))
+        radii_m=_numbers(t, "radii_m", VehicleSettings.radii_m),
+        balance_speed_kph=t.take("balance_speed_kph", float, default=VehicleSettings.balance_speed_kph,
+                                 check=lambda v: 0 < v < 500, why="must be between 0 and 500 km/h"))
     t.finish()
     return settings
 

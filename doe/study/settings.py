@@ -11,12 +11,12 @@ from pathlib import Path
 from .. import defaults
 from ..errors import StudyError, where
 from ..space import Space
-from ..vehicle import Track, Vehicle
+from ..vehicle import Track, Vehicle, figure_unit
 from .tables import Source, Table
 
 __all__ = ["Response", "PlanSettings", "FitSettings", "EvaluatorSettings", "SensitivitySettings", "ResponseLimit",
            "RobustSettings", "VehicleSettings", "LowFidelitySettings", "Study", "RESERVED_COLUMNS", "GOALS",
-           "PLAN_METHODS", "EVALUATOR_KINDS", "LOW_RUNS_PER_PARAMETER", "LOW_RUNS_MAX"]
+           "PLAN_METHODS", "EVALUATOR_KINDS", "LOW_RUNS_PER_PARAMETER", "LOW_RUNS_MAX", "figure_goal"]
 
 #: Column names a parameter or response may not take.
 RESERVED_COLUMNS = frozenset({"run_id", "status", "source", "message", "elapsed_s"})
@@ -208,6 +208,21 @@ class ResponseLimit:
         return f"{left}{self.response}{right}"
 
 
+def figure_goal(name: str) -> str:
+    """The direction a driver wants of a vehicle figure: ``"minimize"``, ``"maximize"`` or ``"none"``.
+
+    Lap time is minimised, top speed and corner speeds (``corner_speed_<radius>m_kph``) maximised;
+    the balance figures have no direction (put a window on them as a limit). A DoeError for an
+    unknown name.
+    """
+    figure_unit(name)
+    if name == "lap_time_s":
+        return "minimize"
+    if name == "top_speed_kph" or name.startswith("corner_speed_"):
+        return "maximize"
+    return "none"
+
+
 @dataclass(frozen=True)
 class RobustSettings:
     """``[robust]``: what the robust search looks for (see :mod:`doe.robust.search`).
@@ -215,15 +230,19 @@ class RobustSettings:
     Attributes
     ----------
     objective : str
-        Response to optimise, in the direction of its ``goal``.
+        Response or vehicle figure (:func:`doe.vehicle.figure_unit`, e.g. ``"lap_time_s"``) to
+        optimise, in the direction of its ``goal``.
     goal : {"minimize", "maximize"}
-        The objective's goal.
+        The objective's goal (a figure's from :func:`figure_goal`).
     k : float
         Robust score is mean - k * std (maximize) or mean + k * std (minimize), -.
     probability : float
         Chance, under setup scatter and surrogate error, that each limit holds at
         the robust point, -.
     limits : tuple of ResponseLimit
+    vehicle_limits : tuple of doe.vehicle.VehicleLimit
+        Limits on vehicle figures (e.g. a ``balance_shift`` window, a top-speed floor), computed
+        from the ``[vehicle]`` aero responses.
     samples : int
         Monte-Carlo draws of setup scatter per candidate point.
     seed : int
@@ -234,6 +253,8 @@ class RobustSettings:
         For trade-off responses with goal ``none``: the value aimed at (distance to it is minimised).
     baseline : dict of str to float or None
         The setting the car runs now, one value per parameter (its unit), to compare with.
+    objective_is_figure : bool
+        True when ``objective`` names a vehicle figure, not a response.
     """
 
     objective: str
@@ -246,6 +267,14 @@ class RobustSettings:
     tradeoff: tuple = ()
     targets: dict = field(default_factory=dict)
     baseline: dict | None = None
+    vehicle_limits: tuple = ()
+    objective_is_figure: bool = False
+
+    @property
+    def figures(self) -> list:
+        """Vehicle figures the search reads (the objective when it is one, then the limited ones), in order."""
+        names = [self.objective] if self.objective_is_figure else []
+        return list(dict.fromkeys(names + [lim.figure for lim in self.vehicle_limits]))
 
 
 @dataclass(frozen=True)
@@ -268,6 +297,9 @@ class VehicleSettings:
         Speeds of the force tables, km/h.
     radii_m : tuple of float
         Radii of the corner-speed tables, m.
+    balance_speed_kph : float
+        Speed at which the balance figures (``front_load_share``, ``balance_shift``) are taken
+        for limits and the report, km/h.
     """
 
     car: Vehicle
@@ -279,6 +311,7 @@ class VehicleSettings:
     aero_front_share: float = 0.5
     speeds_kph: tuple = (100.0, 150.0, 200.0)
     radii_m: tuple = (25.0, 50.0, 100.0, 200.0)
+    balance_speed_kph: float = 150.0
 
 
 @dataclass(frozen=True)

@@ -9,9 +9,10 @@ from ..errors import DoeError
 from ..robust.scatter import predict_checked
 from ..robust.search import DEFAULT_MAXITER, RobustResult, find_settings
 from ..robust.tradeoff import tradeoff_set
-from ..vehicle import Aero, VehicleFigures, vehicle_figures
+from ..vehicle import Aero, VehicleFigures, VehicleObjective, vehicle_figures
 
-__all__ = ["study_vehicle_figures", "study_responses", "only_responses", "study_robust", "study_tradeoff"]
+__all__ = ["study_vehicle_figures", "study_vehicle_objective", "study_responses", "only_responses", "study_robust",
+           "study_tradeoff"]
 
 
 # ---------------------------------------------------------------------------
@@ -41,12 +42,32 @@ def study_responses(study) -> list:
     """Responses the robust analysis of a study reads: objective, limits, trade-off, ``[vehicle]`` aero."""
     names = []
     if study.robust is not None:
-        names += [study.robust.objective] + [lim.response for lim in study.robust.limits] + list(study.robust.tradeoff)
+        r = study.robust
+        names += ([] if r.objective_is_figure else [r.objective]) + [lim.response for lim in r.limits] + list(r.tradeoff)
     v = study.vehicle
     if v is not None:
         names += [n for n in (v.cla_response, v.cda_response, v.cla_front_response, v.cla_rear_response,
                               v.front_share_response) if n is not None]
     return list(dict.fromkeys(names))
+
+
+def study_vehicle_objective(study) -> VehicleObjective | None:
+    """The :class:`VehicleObjective` of a study whose ``[robust]`` objective or limits name vehicle figures.
+
+    None when they name none. Built from ``[vehicle]`` (car, ``balance_speed_kph``), ``[track]``
+    and the ``[robust]`` limits on figures.
+    """
+    r, v = study.robust, study.vehicle
+    if r is None or not r.figures:
+        return None
+    if v is None or v.cla_front_response is None:
+        raise DoeError("robust: vehicle figures need [vehicle] with cla_front_response and cla_rear_response")
+    return VehicleObjective(v.car, study.track, balance_speed_kph=v.balance_speed_kph, limits=r.vehicle_limits)
+
+
+def _aero_responses(study) -> tuple | None:
+    v = study.vehicle
+    return (v.cla_front_response, v.cla_rear_response, v.cda_response) if v is not None else None
 
 
 def only_responses(surrogates, names):
@@ -87,17 +108,24 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) ->
     units = {resp.name: resp.unit for resp in study.responses}
     block = (lambda x: study_vehicle_figures(study, predict, x[None, :])) if study.vehicle is not None else None
     baseline = [r.baseline[n] for n in study.space.names] if r.baseline is not None else None
+    vobj = study_vehicle_objective(study)
     return find_settings(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
                          probability=r.probability, samples=r.samples, seed=r.seed, runs_X=runs_X, units=units,
-                         vehicle_block=block, baseline=baseline, maxiter=maxiter)
+                         vehicle_block=block, baseline=baseline, maxiter=maxiter, vehicle_objective=vobj,
+                         aero_responses=_aero_responses(study) if vobj is not None else None)
 
 
-def study_tradeoff(study, predict, samples: int = 4096) -> pd.DataFrame:
-    """:func:`tradeoff_set` of a study's ``[robust] tradeoff`` responses (goals from ``[[responses]]``)."""
+def study_tradeoff(study, predict, samples: int = 4096, include=None) -> pd.DataFrame:
+    """:func:`tradeoff_set` of a study's ``[robust] tradeoff`` responses (goals from ``[[responses]]``).
+
+    Refined: each response's optimum and points along the line are added to the sample, and
+    ``include`` (settings in study units, e.g. the nominal and robust picks) joins the candidates.
+    """
     study.space.refuse_choices("the trade-off set (doe robust)")
     r = study.robust
     if r is None or len(r.tradeoff) < 2:
         raise DoeError("trade-off: give at least two responses in [robust] tradeoff "
                        "(by default the responses with a goal)")
     goals = {resp.name: resp.goal for resp in study.responses}
-    return tradeoff_set(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed)
+    return tradeoff_set(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed,
+                        include=include, refine=True)

@@ -135,7 +135,8 @@ def robust_step(study, sset, results, out, tradeoff_out=None):
     write_json(result.to_dict(), out)
     table = None
     if len(study.robust.tradeoff) >= 2:
-        table = study_tradeoff(study, sset.predict)
+        picks = [[rec.point[n] for n in study.space.names] for rec in (result.nominal, result.robust)]
+        table = study_tradeoff(study, sset.predict, include=picks)
         write_tradeoff(table, tradeoff_out or Path(out).with_name("tradeoff.csv"))
     return result, table
 
