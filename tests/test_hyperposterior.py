@@ -48,7 +48,7 @@ def test_sampler_targets_the_exact_marginal_posterior_of_a_length_scale():
     # (Neal 2003). Tolerances: a few Monte-Carlo standard errors with ~1500 effective draws.
     X, y = _data(8, 1)
     t = _target(X, y)
-    base = np.array([0.0, 0.0, math.log(1e-3)])
+    base = t.prior_mean.copy()                      # amplitude, trend (and pooled mean) held at their prior means
 
     def logp(u):
         theta = base.copy()
