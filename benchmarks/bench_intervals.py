@@ -39,7 +39,7 @@ from doe import testfunctions as tf  # noqa: E402
 from doe.distributions import InputDistribution  # noqa: E402
 from doe.hyperposterior import HyperPosterior  # noqa: E402
 from doe.plans import maximin_lhs  # noqa: E402
-from doe.sensitivity import sobol_indices  # noqa: E402
+from doe.sensitivity import Z95, sobol_indices  # noqa: E402
 from doe.sensitivity_study import surrogate_callables  # noqa: E402
 from doe.surrogate import ResponseSurrogate, SurrogateSet  # noqa: E402
 
@@ -50,6 +50,8 @@ N_TEST = 1000
 SOBOL_BASE = 2**11
 N_PATHS = 64
 REFERENCE_BASE = 2**15
+#: Base rows of the path-centred intervals: (d + 2) 2^10 joint points per path.
+PATH_BASE = 2**10
 
 
 @dataclass
@@ -87,6 +89,29 @@ def _sobol(space, model, paths, ref, seed):
     return np.abs(est - truth) <= half, half, float(np.max(np.abs(est - truth)))
 
 
+def _path_centred(space, paths, ref, seed):
+    """Marrel et al. (2009): indices of each sample path, centred on their mean, spread from paths and estimator.
+
+    Every path is a response of one model call on a Saltelli sample of
+    :data:`PATH_BASE` base rows (so that the draws are joint over it); the
+    interval is ``mean_p S_p +- 1.96 sqrt(var_p S_p + mean_p var_mc,p)``.
+    """
+    names = [f"p{i}" for i in range(N_PATHS)]
+
+    def model(X):
+        draws = paths(X, N_PATHS, seed)
+        return {nm: draws[i] for i, nm in enumerate(names)}
+
+    res = sobol_indices(model, InputDistribution.uniform(space), responses=names, base_samples=PATH_BASE,
+                        seed=seed)
+    est = np.array([np.r_[res[nm].S1, res[nm].ST] for nm in names])             # (P, 2d)
+    mc = np.array([np.r_[res[nm].S1_conf_mc, res[nm].ST_conf_mc] for nm in names]) / Z95
+    centre = est.mean(axis=0)
+    half = Z95 * np.sqrt(est.var(axis=0, ddof=1) + np.mean(mc**2, axis=0))
+    truth = np.r_[ref["S1"], ref["ST"]]
+    return np.abs(centre - truth) <= half, half, float(np.max(np.abs(centre - truth)))
+
+
 def _band(mean, std, yt):
     return float(np.mean(np.abs(mean - yt) <= 2 * std)), float(1 - np.mean((mean - yt) ** 2) / np.var(yt))
 
@@ -117,9 +142,11 @@ def fit_mixture(f, U, y, Ut, yt, ref, seed, mode="auto") -> Fit:
         return hp.sample_paths(space.to_unit(X), n_paths, path_seed)
 
     cover, half, err = _sobol(space, model, paths, ref, seed)
+    pc_cover, pc_half, pc_err = _path_centred(space, paths, ref, seed)
     q2_draws = hp.q2_draws(seed=seed)
     return Fit(band, q2, hp.loo()["q2"], hp.fit_seconds_, cover, half, err,
                {"method": hp.method_, "expected_q2": hp.expected_q2(seed=seed),
+                "pc_cover": pc_cover, "pc_half": pc_half, "pc_error": pc_err,
                 "q2_low": float(np.quantile(q2_draws, 0.05)), "q2_median": float(np.median(q2_draws))})
 
 
@@ -182,9 +209,10 @@ def _verdict_lines(cases) -> list:
 
 def _table_lines(cases, ref_half) -> list:
     lines = ["| function | n | band plug-in | band mixture | Sobol coverage plug-in | Sobol coverage mixture | "
-             "half-width plug-in | half-width mixture | max error plug-in | max error mixture | q2 plug-in | "
-             "q2 mixture | fit s plug-in | fit s mixture |", "|" + "---|" * 14]
-    tot = {"bp": [], "bm": [], "cp": [], "cm": []}
+             "half-width plug-in | half-width mixture | max error plug-in | max error mixture | "
+             "path-centred coverage / half-width / max error (mixture) | q2 plug-in | "
+             "q2 mixture | fit s plug-in | fit s mixture |", "|" + "---|" * 15]
+    tot = {"bp": [], "bm": [], "cp": [], "cm": [], "pc": []}
     for (name, n), runs in cases.items():
         P = [p for p, _ in runs]
         M = [m for _, m in runs]
@@ -198,18 +226,23 @@ def _table_lines(cases, ref_half) -> list:
         tot["bm"] += [m.band for m in M]
         tot["cp"].append(cp)
         tot["cm"].append(cm)
+        pc = np.concatenate([m.extra["pc_cover"] for m in M])
+        tot["pc"].append(pc)
         method = "/".join(sorted({m.extra["method"] for m in M}))
         lines.append(f"| {name} | {n} | {mean([p.band for p in P]):.2f} | {mean([m.band for m in M]):.2f} "
                      f"({method}) | {cp.mean():.2f} | {cm.mean():.2f} | "
                      f"{mean([p.sobol_half.mean() for p in P]):.3f} | {mean([m.sobol_half.mean() for m in M]):.3f} | "
                      f"{mean([p.sobol_error for p in P]):.3f} | {mean([m.sobol_error for m in M]):.3f} | "
+                     f"{pc.mean():.2f} / {mean([m.extra['pc_half'].mean() for m in M]):.3f} / "
+                     f"{mean([m.extra['pc_error'] for m in M]):.3f} | "
                      f"{mean([p.q2_test for p in P]):.3f} | {mean([m.q2_test for m in M]):.3f} | "
                      f"{mean([p.seconds for p in P]):.1f} | {mean([m.seconds for m in M]):.1f} |")
     cp, cm = np.concatenate(tot["cp"]), np.concatenate(tot["cm"])
     lines += ["", f"Overall: 2-sigma band holds {np.mean(tot['bp']):.1%} (plug-in) and {np.mean(tot['bm']):.1%} "
               f"(mixture) of held-out errors; worst case {np.min(tot['bp']):.1%} and {np.min(tot['bm']):.1%}. "
               f"95 % Sobol intervals hold the reference in {cp.mean():.1%} (plug-in) and {cm.mean():.1%} (mixture) "
-              f"of {len(cp)} indices.", ""]
+              f"of {len(cp)} indices; centred on the mean index of the mixture's paths (Marrel et al. 2009) "
+              f"{np.concatenate(tot['pc']).mean():.1%}.", ""]
     refs = [f"{k} {v:.4f}" for k, v in ref_half.items() if v > 0]
     if refs:
         lines += ["Largest 95 % half-width of the direct-route reference indices: " + ", ".join(refs) + ".", ""]
@@ -236,7 +269,7 @@ def run(quick: bool) -> list:
     if quick:
         functions, multiples, seeds = ("ishigami", "borehole"), (2, 10), (0,)
     else:
-        functions, multiples, seeds = FUNCTIONS, MULTIPLES, (0, 1, 2)
+        functions, multiples, seeds = FUNCTIONS, MULTIPLES, (0, 1)
     t0 = time.perf_counter()
     cases, ref_half = run_cases(functions, multiples, seeds,
                                 log=lambda s: print(f"[intervals] {s}", file=sys.stderr, flush=True))
