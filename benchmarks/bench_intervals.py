@@ -265,6 +265,17 @@ def _fit_time_lines(seeds) -> list:
     return lines + [""]
 
 
+def _report(cases, ref_half, seeds, seconds) -> list:
+    lines = ["## Calibration at small budgets: bands, Sobol intervals, verdicts", "",
+             *[" ".join(part.split()) for part in __doc__.split("\n\n")[1:]], "",
+             f"Seeds {list(seeds)}; each row averages them.", ""]
+    lines += _table_lines(cases, ref_half)
+    lines += _verdict_lines(cases)
+    lines += _fit_time_lines(seeds)
+    lines.append(f"Wall time of this section: {seconds:.0f} s.")
+    return lines
+
+
 def run(quick: bool) -> list:
     if quick:
         functions, multiples, seeds = ("ishigami", "borehole"), (2, 10), (0,)
@@ -273,15 +284,44 @@ def run(quick: bool) -> list:
     t0 = time.perf_counter()
     cases, ref_half = run_cases(functions, multiples, seeds,
                                 log=lambda s: print(f"[intervals] {s}", file=sys.stderr, flush=True))
-    lines = ["## Calibration at small budgets: bands, Sobol intervals, verdicts", "",
-             *[" ".join(part.split()) for part in __doc__.split("\n\n")[1:]], "",
-             f"Seeds {list(seeds)}; each row averages them.", ""]
-    lines += _table_lines(cases, ref_half)
-    lines += _verdict_lines(cases)
-    lines += _fit_time_lines(seeds)
-    lines.append(f"Wall time of this section: {time.perf_counter() - t0:.0f} s.")
-    return lines
+    return _report(cases, ref_half, seeds, time.perf_counter() - t0)
+
+
+def _to_json(cases, ref_half) -> dict:
+    def fit(f):
+        return {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in f.__dict__.items() if k != "extra"} | {
+            "extra": {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in f.extra.items()}}
+    return {"ref_half": ref_half, "cases": [[name, n, [[fit(p), fit(m)] for p, m in runs]]
+                                            for (name, n), runs in cases.items()]}
+
+
+def _from_json(blob: dict):
+    def fit(d):
+        arr = {k: np.asarray(v) for k, v in d.items() if k in ("sobol_cover", "sobol_half")}
+        extra = {k: (np.asarray(v) if isinstance(v, list) else v) for k, v in d["extra"].items()}
+        return Fit(**{**{k: v for k, v in d.items() if k != "extra"}, **arr, "extra": extra})
+    cases = {(name, n): [(fit(p), fit(m)) for p, m in runs] for name, n, runs in blob["cases"]}
+    return cases, blob["ref_half"]
 
 
 if __name__ == "__main__":
-    print("\n".join(run(quick="--quick" in sys.argv[1:])))
+    # a full run split over processes (a shared machine):
+    #   bench_intervals.py --functions ishigami,g_function --dump a.json; ...; bench_intervals.py --combine a.json b.json
+    import json
+
+    args = sys.argv[1:]
+    if "--combine" in args:
+        cases, ref_half = {}, {}
+        for path in args[args.index("--combine") + 1:]:
+            c, r = _from_json(json.loads(Path(path).read_text()))
+            cases.update(c)
+            ref_half.update(r)
+        print("\n".join(_report(cases, ref_half, (0, 1), 0.0)))
+    elif "--functions" in args:
+        t0 = time.perf_counter()
+        cases, ref_half = run_cases(args[args.index("--functions") + 1].split(","), MULTIPLES, (0, 1),
+                                    log=lambda s: print(f"[intervals] {s}", file=sys.stderr, flush=True))
+        Path(args[args.index("--dump") + 1]).write_text(json.dumps(_to_json(cases, ref_half)))
+        print(f"{time.perf_counter() - t0:.0f} s", file=sys.stderr)
+    else:
+        print("\n".join(run(quick="--quick" in args)))
