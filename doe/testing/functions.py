@@ -615,3 +615,131 @@ def get_pair(name: str) -> tuple[TestFunction, TestFunction]:
     except KeyError:
         raise DoeError(f"no two-fidelity pair '{name}'; choose one of {', '.join(PAIRS)}") from None
     return TEST_FUNCTIONS[high], TEST_FUNCTIONS[low]
+
+
+# ---------------------------------------------------------------------------
+# engineering test functions for calibration benchmarks (appended; definitions as published)
+
+
+def otl_circuit(X) -> np.ndarray:
+    """OTL circuit: midpoint voltage of an output-transformerless push-pull circuit, in V.
+
+    ``V_b1 = 12 R_b2 / (R_b1 + R_b2)`` and, with ``g = beta (R_c2 + 9)``,
+
+    ``V_m = (V_b1 + 0.74) g / (g + R_f) + 11.35 R_f / (g + R_f) + 0.74 R_f g / ((g + R_f) R_c1)``
+
+    Inputs, in column order, with their domains: ``R_b1`` in [50, 150] kOhm,
+    ``R_b2`` in [25, 70] kOhm, ``R_f`` in [0.5, 3] kOhm, ``R_c1`` in
+    [1.2, 2.5] kOhm, ``R_c2`` in [0.25, 1.2] kOhm, current gain ``beta`` in
+    [50, 300] (dimensionless).
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 6)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Midpoint voltage, V.
+
+    References
+    ----------
+    Ben-Ari, E. N. and Steinberg, D. M. (2007). Modeling data from computer
+    experiments: an empirical comparison of kriging with MARS and projection
+    pursuit regression. Quality Engineering 19(4), 327-338.
+    """
+    rb1, rb2, rf, rc1, rc2, beta = _points(X, 6, "otl_circuit").T
+    vb1 = 12 * rb2 / (rb1 + rb2)
+    g = beta * (rc2 + 9)
+    return (vb1 + 0.74) * g / (g + rf) + 11.35 * rf / (g + rf) + 0.74 * rf * g / ((g + rf) * rc1)
+
+
+def piston(X) -> np.ndarray:
+    """Piston simulation: time of one cycle of a piston in a cylinder, in s.
+
+    ``A = P_0 S + 19.62 M - k V_0 / S``,
+    ``V = S / (2 k) [sqrt(A^2 + 4 k P_0 V_0 T_a / T_0) - A]``,
+    ``C = 2 pi sqrt(M / (k + S^2 P_0 V_0 T_a / (T_0 V^2)))``.
+
+    Inputs, in column order, with their domains: piston mass ``M`` in [30, 60]
+    kg, surface area ``S`` in [0.005, 0.020] m^2, initial gas volume ``V_0``
+    in [0.002, 0.010] m^3, spring coefficient ``k`` in [1000, 5000] N/m,
+    atmospheric pressure ``P_0`` in [90000, 110000] N/m^2, ambient
+    temperature ``T_a`` in [290, 296] K, filling gas temperature ``T_0`` in
+    [340, 360] K.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 7)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Cycle time, s.
+
+    References
+    ----------
+    Kenett, R. and Zacks, S. (1998). Modern Industrial Statistics: Design and
+    Control of Quality and Reliability. Duxbury Press.
+    Ben-Ari, E. N. and Steinberg, D. M. (2007). Quality Engineering 19(4), 327-338.
+    """
+    m, s, v0, k, p0, ta, t0 = _points(X, 7, "piston").T
+    a = p0 * s + 19.62 * m - k * v0 / s
+    v = s / (2 * k) * (np.sqrt(a**2 + 4 * k * p0 * v0 * ta / t0) - a)
+    return 2 * math.pi * np.sqrt(m / (k + s**2 * p0 * v0 * ta / (t0 * v**2)))
+
+
+def wing_weight(X) -> np.ndarray:
+    """Wing weight of a light aircraft, in lb.
+
+    ``W = 0.036 S_w^0.758 W_fw^0.0035 (A / cos^2 L)^0.6 q^0.006 lam^0.04 (100 t_c / cos L)^-0.3
+    (N_z W_dg)^0.49 + S_w W_p``
+
+    Inputs, in column order, with their domains: wing area ``S_w`` in
+    [150, 200] ft^2, weight of fuel in the wing ``W_fw`` in [220, 300] lb,
+    aspect ratio ``A`` in [6, 10], quarter-chord sweep ``L`` in [-10, 10]
+    deg, dynamic pressure at cruise ``q`` in [16, 45] lb/ft^2, taper ratio
+    ``lam`` in [0.5, 1], thickness to chord ratio ``t_c`` in [0.08, 0.18],
+    ultimate load factor ``N_z`` in [2.5, 6], flight design gross weight
+    ``W_dg`` in [1700, 2500] lb, paint weight ``W_p`` in [0.025, 0.08] lb/ft^2.
+
+    Parameters
+    ----------
+    X : array_like, shape (n, 10)
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Wing weight, lb.
+
+    References
+    ----------
+    Forrester, A. I. J., Sobester, A. and Keane, A. J. (2008). Engineering
+    Design via Surrogate Modelling: A Practical Guide. Wiley, sec. 1.3.
+    doi:10.1002/9780470770801
+    """
+    sw, wfw, ar, sweep_deg, q, lam, tc, nz, wdg, wp = _points(X, 10, "wing_weight").T
+    cos_sweep = np.cos(np.radians(sweep_deg))
+    return (0.036 * sw**0.758 * wfw**0.0035 * (ar / cos_sweep**2) ** 0.6 * q**0.006 * lam**0.04
+            * (100 * tc / cos_sweep) ** -0.3 * (nz * wdg) ** 0.49 + sw * wp)
+
+
+_BAS = "Ben-Ari & Steinberg 2007, Qual. Eng. 19:327; " + _VLSE
+TEST_FUNCTIONS.update({
+    "otl_circuit": TestFunction("otl_circuit", otl_circuit, ("R_b1", "R_b2", "R_f", "R_c1", "R_c2", "beta"),
+                                (50.0, 25.0, 0.5, 1.2, 0.25, 50.0), (150.0, 70.0, 3.0, 2.5, 1.2, 300.0),
+                                units=("kOhm",) * 5 + ("-",), reference=_BAS),
+    "piston": TestFunction("piston", piston, ("M", "S", "V_0", "k", "P_0", "T_a", "T_0"),
+                           (30.0, 0.005, 0.002, 1000.0, 90000.0, 290.0, 340.0),
+                           (60.0, 0.020, 0.010, 5000.0, 110000.0, 296.0, 360.0),
+                           units=("kg", "m^2", "m^3", "N/m", "N/m^2", "K", "K"),
+                           reference="Kenett & Zacks 1998; " + _BAS),
+    "wing_weight": TestFunction("wing_weight", wing_weight,
+                                ("S_w", "W_fw", "A", "sweep", "q", "taper", "t_c", "N_z", "W_dg", "W_p"),
+                                (150.0, 220.0, 6.0, -10.0, 16.0, 0.5, 0.08, 2.5, 1700.0, 0.025),
+                                (200.0, 300.0, 10.0, 10.0, 45.0, 1.0, 0.18, 6.0, 2500.0, 0.08),
+                                units=("ft^2", "lb", "-", "deg", "lb/ft^2", "-", "-", "-", "lb", "lb/ft^2"),
+                                reference="Forrester, Sobester & Keane 2008, Engineering Design via Surrogate "
+                                          "Modelling, sec. 1.3; " + _VLSE),
+})
+__all__ += ["otl_circuit", "piston", "wing_weight"]
