@@ -2,18 +2,18 @@
 
 For Ishigami, the G-function (8 inputs), borehole, the OTL circuit, the
 piston simulation and the wing-weight function, ``n = 2d, 5d, 10d, 20d`` runs
-of a maximin Latin hypercube (``doe.plans.maximin_lhs``, one plan per seed)
+of a maximin Latin hypercube (``doe.design.plans.maximin_lhs``, one plan per seed)
 are fitted by
 
-* **plug-in**: today's surrogate (``doe.surrogate.ResponseSurrogate``, default
+* **plug-in**: today's surrogate (``doe.surrogate.gp.ResponseSurrogate``, default
   settings: kernel chosen by leave-one-out, 3 restarts), hyperparameters fixed
   at their fitted values;
-* **mixture**: ``doe.hyperposterior.HyperPosterior`` (``mode = "auto"``:
+* **mixture**: ``doe.surrogate.hyperposterior.HyperPosterior`` (``mode = "auto"``:
   hyperparameters sampled below 20 runs per parameter, the posterior mode above).
 
 Measured per fit: the share of 1000 uniform held-out points whose error lies
 inside the 2-sigma band; the held-out q2; the 95 % intervals of the surrogate
-route's Sobol indices (``doe.sensitivity.sobol_indices`` on the posterior mean
+route's Sobol indices (``doe.sensitivity.sobol.sobol_indices`` on the posterior mean
 with the surrogate's sample paths, fixed base sample 2^11, 64 paths): share
 of the d first-order and d total indices whose interval holds the reference
 value, mean half-width, largest error. Reference indices: analytic for
@@ -35,13 +35,14 @@ ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from doe import testfunctions as tf  # noqa: E402
-from doe.distributions import InputDistribution  # noqa: E402
-from doe.hyperposterior import HyperPosterior  # noqa: E402
-from doe.plans import maximin_lhs  # noqa: E402
-from doe.sensitivity import Z95, sobol_indices  # noqa: E402
-from doe.sensitivity_study import surrogate_callables  # noqa: E402
-from doe.surrogate import ResponseSurrogate, SurrogateSet  # noqa: E402
+from doe.testing import functions as tf  # noqa: E402
+from doe.sensitivity.inputs import InputDistribution  # noqa: E402
+from doe.surrogate.hyperposterior import HyperPosterior  # noqa: E402
+from doe.design.plans import maximin_lhs  # noqa: E402
+from doe.sensitivity.sobol import Z95, sobol_indices  # noqa: E402
+from doe.workflow.sensitivity import surrogate_callables  # noqa: E402
+from doe.surrogate.gp import ResponseSurrogate  # noqa: E402
+from doe.surrogate.set import SurrogateSet  # noqa: E402
 
 FUNCTIONS = ("ishigami", "g_function", "borehole", "otl_circuit", "piston", "wing_weight")
 MULTIPLES = (2, 5, 10, 20)

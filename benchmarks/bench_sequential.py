@@ -2,11 +2,11 @@
 
 For the borehole, OTL circuit, piston and wing-weight functions, ``10 d`` runs
 are placed two ways: (a) a maximin Latin hypercube of ``4 d`` runs
-(``doe.plans.maximin_lhs``), then batches of ``max(2, d // 2)`` runs proposed
-by ``doe.sequential.propose_batch`` (integrated variance reduction averaged
+(``doe.design.plans.maximin_lhs``), then batches of ``max(2, d // 2)`` runs proposed
+by ``doe.design.sequential.propose_batch`` (integrated variance reduction averaged
 over hyperparameter draws, refitted after every batch); (b) a fresh maximin
 Latin hypercube of ``10 d`` runs. Both final designs are fitted the same way
-(``doe.hyperposterior.HyperPosterior``, posterior mode) and scored by the
+(``doe.surrogate.hyperposterior.HyperPosterior``, posterior mode) and scored by the
 root mean square error on 2000 uniform held-out points. The issue's aim is a
 ratio of at most 0.85 on at least three functions.
 """
@@ -22,10 +22,10 @@ ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from doe import testfunctions as tf  # noqa: E402
-from doe.hyperposterior import HyperPosterior  # noqa: E402
-from doe.plans import maximin_lhs  # noqa: E402
-from doe.sequential import run_sequential  # noqa: E402
+from doe.testing import functions as tf  # noqa: E402
+from doe.surrogate.hyperposterior import HyperPosterior  # noqa: E402
+from doe.design.plans import maximin_lhs  # noqa: E402
+from doe.design.sequential import run_sequential  # noqa: E402
 
 FUNCTIONS = ("borehole", "otl_circuit", "piston", "wing_weight")
 TOTAL = 10

@@ -7,11 +7,11 @@ import pytest
 from scipy.stats import qmc
 from sklearn.gaussian_process import GaussianProcessRegressor
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 from doe.errors import NotFittedError, SurrogateError
-from doe.hyperposterior import (NUGGET, PLUGIN_RUNS_PER_PARAMETER, HyperPosterior, _Draw, _sklearn_kernel, _Target,
+from doe.surrogate.hyperposterior import (NUGGET, PLUGIN_RUNS_PER_PARAMETER, HyperPosterior, _Draw, _sklearn_kernel, _Target,
                                 slice_sample)
-from doe.plans import maximin_lhs
+from doe.design.plans import maximin_lhs
 
 
 def _data(n=10, d=2, seed=0):

@@ -1,9 +1,9 @@
 """Batch proposals under the hyperparameter posterior: exact rank-one conditioning, valid picks."""
 import numpy as np
 
-from doe.hyperposterior import NUGGET, HyperPosterior, _Draw, _Target
-from doe.plans import maximin_lhs
-from doe.sequential import _condition, _draw_state, propose_batch
+from doe.surrogate.hyperposterior import NUGGET, HyperPosterior, _Draw, _Target
+from doe.design.plans import maximin_lhs
+from doe.design.sequential import _condition, _draw_state, propose_batch
 
 
 def _fit(mode="plugin", n=10):

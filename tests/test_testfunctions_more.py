@@ -5,7 +5,7 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-from doe import testfunctions as tf
+from doe.testing import functions as tf
 
 
 def _otl_exact(rb1, rb2, rf, rc1, rc2, beta):

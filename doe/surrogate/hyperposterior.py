@@ -56,7 +56,7 @@ Each draw ``j`` gives a Gaussian posterior with mean ``m_j(x)`` and variance
 ``v_j(x)``; the mixture has mean ``mean_j m_j`` and variance
 ``mean_j (v_j + m_j^2) - mean^2`` (law of total variance). Sample paths are
 spread over the draws, each drawn jointly from its draw's posterior
-(:mod:`doe.gppaths`), so that functions of the paths (Sobol indices) carry
+(:mod:`doe.surrogate.paths`), so that functions of the paths (Sobol indices) carry
 the hyperparameter uncertainty too.
 
 Leave-one-out
@@ -101,8 +101,8 @@ from scipy.stats import qmc
 from sklearn.gaussian_process.kernels import RBF, ConstantKernel, DotProduct, Matern
 from threadpoolctl import threadpool_limits
 
-from . import gppaths
-from .errors import NotFittedError, SurrogateError
+from . import paths
+from ..errors import NotFittedError, SurrogateError
 
 __all__ = ["HyperPosterior", "slice_sample", "FAMILIES", "TRENDS", "MODES", "BOUNDS", "PLUGIN_RUNS_PER_PARAMETER",
            "FORMAT"]
@@ -326,7 +326,7 @@ class _Target:
 
 
 class _Draw:
-    """The posterior of one hyperparameter draw; also the view :func:`doe.gppaths.draw_paths` expects."""
+    """The posterior of one hyperparameter draw; also the view :func:`doe.surrogate.paths.draw_paths` expects."""
 
     def __init__(self, target: _Target, theta):
         self.theta = np.asarray(theta, dtype=float)
@@ -621,7 +621,7 @@ class HyperPosterior:
         n_paths : int
         seed : int or numpy.random.Generator
         method : {"auto", "exact", "features"}
-            As in :func:`doe.gppaths.draw_paths`; ``"auto"`` is exact up to
+            As in :func:`doe.surrogate.paths.draw_paths`; ``"auto"`` is exact up to
             :data:`EXACT_PATH_POINTS` points.
 
         Returns
@@ -643,7 +643,7 @@ class HyperPosterior:
         with threadpool_limits(limits=1, user_api="blas"):
             for j in np.unique(owner):
                 rows = np.flatnonzero(owner == j)
-                out[rows] = gppaths.draw_paths(self.draws_[j], Z, len(rows), rng, method)
+                out[rows] = paths.draw_paths(self.draws_[j], Z, len(rows), rng, method)
         return self.y_mean_ + self.y_std_ * out
 
     # -- checks of the fit -------------------------------------------------

@@ -1,4 +1,4 @@
-"""Next runs for a better map, chosen under the hyperparameter posterior (:mod:`doe.hyperposterior`).
+"""Next runs for a better map, chosen under the hyperparameter posterior (:mod:`doe.surrogate.hyperposterior`).
 
 Criterion: integrated variance reduction (IVR; Cohn 1996, the IMSE criterion
 of Sacks, Welch, Mitchell & Wynn 1989), averaged over hyperparameter draws.
@@ -32,8 +32,8 @@ from scipy.linalg import solve_triangular
 from scipy.stats import qmc
 from threadpoolctl import threadpool_limits
 
-from .errors import SurrogateError
-from .hyperposterior import HyperPosterior
+from ..errors import SurrogateError
+from ..surrogate.hyperposterior import HyperPosterior
 
 __all__ = ["propose_batch", "run_sequential", "N_CANDIDATES", "N_REFERENCE", "MAX_DRAWS"]
 
@@ -146,7 +146,7 @@ def run_sequential(func, d: int, n_start: int, n_total: int, batch: int, seed=0,
     on_round : callable, optional
         ``on_round(model, U, y)`` after each fit.
     **options
-        Passed to :class:`~doe.hyperposterior.HyperPosterior` (e.g. ``mode``).
+        Passed to :class:`~doe.surrogate.hyperposterior.HyperPosterior` (e.g. ``mode``).
 
     Returns
     -------
