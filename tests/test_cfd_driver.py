@@ -376,3 +376,28 @@ def test_real_coarse_case_end_to_end(tmp_path):
     # a car-sized body at 40 m/s: drag per metre of width positive, a few tenths of q times 1 m^2
     assert 0.05 < res["cda_body"] / 1.75 < 2.0
     assert (tmp_path / "geometry.json").exists() and not (tmp_path / "openfoam" / "constant" / "polyMesh").exists()
+
+
+def test_dataset_record_keeps_spread_convergence_and_cost(tmp_path):
+    """make_rans_dataset.collect: stored rows plus each case's record from its result.json (a real medium run)."""
+    import make_rans_dataset as mk
+
+    res = json.loads((DATA / "result_medium_r001.json").read_text())
+    head = "run_id,flap_angle,wing_height,wing_aoa,wing_camber,wing_overhang," + ",".join(mk.RESPONSES)
+    ok_row = "r001,12.46,88.32,13.77,5.26,99.46," + ",".join(str(res[r]) for r in mk.RESPONSES)
+    bad_row = "r002,43.2,190.9,0.2,4.0,9.6," + ",".join("" for _ in mk.RESPONSES)
+    (tmp_path / "results.csv").write_text(f"{head},status,source,message,elapsed_s\n{ok_row},ok,command,,199.3\n"
+                                          f"{bad_row},failed,command,exit code 1; log: run failed: geometry,1.2\n")
+    case = tmp_path / "cases" / "r001"
+    case.mkdir(parents=True)
+    (case / "result.json").write_text(json.dumps(res))
+    out = tmp_path / "rec.csv"
+    assert mk.collect(tmp_path / "results.csv", tmp_path / "cases", out) == 2
+    import pandas as pd
+
+    frame = pd.read_csv(out)
+    first = frame.iloc[0]
+    assert first["converged"] == 1 and first["iterations"] == 1290 and first["cells"] == 24963
+    assert first["cla_total_std"] == pytest.approx(res["cla_total_std"], rel=1e-5)
+    assert first["solver_version"] == "OPENFOAM=1912 patch=200626" and first["source"] == "cfd-rans-2d"
+    assert frame.iloc[1]["status"] == "failed" and "geometry" in frame.iloc[1]["message"]
