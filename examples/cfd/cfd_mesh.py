@@ -12,11 +12,42 @@ Patches (gmsh physical groups): ``inlet``, ``outlet``, ``top``, ``ground``,
 """
 from __future__ import annotations
 
+import signal
+from contextlib import contextmanager
 from dataclasses import dataclass, asdict
 
 import numpy as np
 
-__all__ = ["MeshSettings", "MESH_LEVELS", "split_at_corners", "write_mesh"]
+__all__ = ["MeshSettings", "MESH_LEVELS", "split_at_corners", "write_mesh", "gmsh_session"]
+
+
+@contextmanager
+def gmsh_session():
+    """gmsh initialised, then finalised, with the process's signal handling put back.
+
+    gmsh's initialisation resets SIGPIPE to its default action (ending the
+    process) at the C level, where Python ignores it; a later write to a
+    closed pipe or socket would then kill the whole program (a test run, a
+    worker). SIGPIPE and SIGINT are restored after initialising and after
+    finalising.
+    """
+    import gmsh
+
+    saved = {sig: signal.getsignal(sig) for sig in (signal.SIGPIPE, signal.SIGINT)}
+
+    def restore():
+        for sig, handler in saved.items():
+            if handler is not None:
+                signal.signal(sig, handler)
+
+    gmsh.initialize(["-noenv"], interruptible=False)
+    restore()
+    try:
+        gmsh.option.setNumber("General.Terminal", 0)
+        yield gmsh
+    finally:
+        gmsh.finalize()
+        restore()
 
 
 @dataclass(frozen=True)
@@ -130,12 +161,8 @@ def write_mesh(outlines, settings: MeshSettings, path, car_length: float, roof_h
         ``cells_2d`` (elements of the 2-D mesh, i.e. cells of the case),
         ``body_wall_faces``, ``wing_wall_faces``, gmsh's version.
     """
-    import gmsh
-
     s = settings
-    gmsh.initialize(["-noenv"]) if not gmsh.isInitialized() else None
-    try:
-        gmsh.option.setNumber("General.Terminal", 0)
+    with gmsh_session() as gmsh:
         gmsh.option.setNumber("General.NumThreads", 1)
         gmsh.model.add("rear_package")
         geo = gmsh.model.geo
@@ -182,8 +209,6 @@ def write_mesh(outlines, settings: MeshSettings, path, car_length: float, roof_h
         info = _count(surface, body_curves, wing_curves)
         info["gmsh_version"] = gmsh.__version__
         gmsh.write(str(path))
-    finally:
-        gmsh.finalize()
     return info
 
 

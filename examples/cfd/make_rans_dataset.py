@@ -10,10 +10,11 @@ the demo, over the demo's five knobs, made by ``rear_package_case.py``. It is
 Steps (each resumes where it stopped):
 
 1. ``doe plan studies/rans_rear_run.toml --runs N --seed S`` (maximin plan inside the class box),
-   kept in ``reports/rans-rear-run/plan.csv`` (made once; delete it for a new plan);
+   committed as ``studies/rans_rear_plan.csv`` (made once; delete it for a new plan);
 2. ``doe evaluate`` of that plan, one run at a time, into ``reports/rans-rear-run/results.csv``
    (the store resumes: runs already stored are never run again; case folders in
-   ``reports/rans-rear-run/cases/``);
+   ``reports/rans-rear-run/cases/``). In a fresh checkout the store starts from the committed
+   ``studies/rans_rear_results.csv``, so the data set resumes where the last session left it;
 3. the recorded CSV: the stored rows with, from each case's ``result.json``, the
    spread of every response (``<name>_std``), ``converged``, ``oscillating``,
    ``iterations``, ``cells``, mesh, solver and mesher versions, wall time.
@@ -40,6 +41,7 @@ ROOT = Path(__file__).resolve().parents[2]
 RUN_STUDY = ROOT / "studies" / "rans_rear_run.toml"
 WORK = ROOT / "reports" / "rans-rear-run"
 RECORDED = ROOT / "studies" / "rans_rear_results.csv"
+PLAN = ROOT / "studies" / "rans_rear_plan.csv"
 
 #: Columns taken from each case's result.json besides the responses.
 EXTRA = ("converged", "oscillating", "iterations", "window", "cells", "mesh", "solver_version", "gmsh_version",
@@ -62,12 +64,32 @@ def env_with_venv() -> dict:
 
 
 def plan(runs: int, seed: int) -> Path:
-    path = WORK / "plan.csv"
-    if not path.exists():
-        WORK.mkdir(parents=True, exist_ok=True)
+    """The committed plan (made once with ``doe plan``: maximin inside the class box)."""
+    if not PLAN.exists():
         subprocess.run(doe_command() + ["plan", str(RUN_STUDY), "--runs", str(runs), "--seed", str(seed),
-                                        "--out", str(path)], check=True, env=env_with_venv())
-    return path
+                                        "--out", str(PLAN)], check=True, env=env_with_venv())
+    return PLAN
+
+
+def seed_store(results: Path = None, recorded: Path = RECORDED) -> int:
+    """Start the results store from the committed record when there is none (a fresh checkout resumes).
+
+    Returns the number of runs taken over. Failed runs are taken over as failed
+    (``doe evaluate --retry-failed`` runs them again).
+    """
+    results = results or WORK / "results.csv"
+    if results.exists() or not recorded.exists():
+        return 0
+    with open(recorded, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    results.parent.mkdir(parents=True, exist_ok=True)
+    header = ["run_id", *PARAMETERS, *RESPONSES, "status", "source", "message", "elapsed_s"]
+    with open(results, "w", newline="") as fh:
+        w = csv.DictWriter(fh, fieldnames=header, extrasaction="ignore")
+        w.writeheader()
+        for row in rows:
+            w.writerow({**row, "source": "command", "elapsed_s": row.get("wall_s") or "0"})
+    return len(rows)
 
 
 def evaluate(plan_csv: Path) -> int:
@@ -85,6 +107,10 @@ def collect(results: Path = None, cases: Path = None, out: Path = RECORDED) -> i
         return 0
     with open(results, newline="") as fh:
         rows = list(csv.DictReader(fh))
+    before = {}
+    if out.exists():                       # runs recorded earlier whose case folders are not here
+        with open(out, newline="") as fh:
+            before = {r["run_id"]: r for r in csv.DictReader(fh)}
     header = (["run_id", *PARAMETERS, *RESPONSES, "status", "source"]
               + [f"{r}_std" for r in RESPONSES] + list(EXTRA) + ["message"])
     out_rows = []
@@ -98,6 +124,10 @@ def collect(results: Path = None, cases: Path = None, out: Path = RECORDED) -> i
                 rec[f"{r}_std"] = _fmt(data.get(f"{r}_std"))
             for k in EXTRA:
                 rec[k] = _fmt(data.get(k))
+        elif row["run_id"] in before:
+            old = before[row["run_id"]]
+            for k in [f"{r}_std" for r in RESPONSES] + list(EXTRA):
+                rec[k] = old.get(k, "")
         out_rows.append(rec)
     tmp = out.with_suffix(".csv.tmp")
     with open(tmp, "w", newline="") as fh:
@@ -126,6 +156,9 @@ def main(argv=None) -> int:
     ap.add_argument("--collect-only", action="store_true", help="only write the recorded CSV from what is done")
     args = ap.parse_args(argv)
     if not args.collect_only:
+        taken = seed_store()
+        if taken:
+            print(f"started the store from {RECORDED.name}: {taken} runs already done")
         code = evaluate(plan(args.runs, args.seed))
         if code not in (0,):
             print(f"doe evaluate ended with exit code {code}; recording what is done")
