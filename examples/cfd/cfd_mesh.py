@@ -96,11 +96,12 @@ class MeshSettings:
         return MeshSettings(**{**asdict(self), **{k: getattr(self, k) * factor for k in keys}})
 
 
-#: Named meshes: ``coarse`` for tests and quick looks, ``medium`` for the data set.
+#: Named meshes: ``coarse`` for tests and quick looks, ``medium`` for the data set, ``fine`` to check it.
 MESH_LEVELS = {
     "coarse": MeshSettings(body_size=0.04, wing_size=0.003, flap_size=0.005, wake_size=0.08,
                            wing_field_size=0.05),
     "medium": MeshSettings(),
+    "fine": MeshSettings().scaled(0.7),       # for checking the medium mesh's discretisation error
 }
 
 
