@@ -334,7 +334,15 @@ def test_driver_reports_missing_params_and_unknown_parameter(tmp_path):
     assert r.returncode == 1 and "parameter 'spoiler' is not a model input" in r.stdout
 
 
-@pytest.mark.skipif(not HAS_GMSH, reason="gmsh is not installed (pip install 'doe[cfd]')")
+def test_driver_without_openfoam_says_so(tmp_path):
+    (tmp_path / "params.json").write_text(json.dumps({"run_id": "r1", **POINT}))
+    r = subprocess.run([sys.executable, str(CFD / "rear_package_case.py"), str(tmp_path)], capture_output=True,
+                       text=True, timeout=120, env={"PATH": str(tmp_path), "HOME": str(tmp_path)})
+    assert r.returncode == 1
+    assert r.stdout.strip().endswith("is not on PATH (Debian: apt-get install openfoam)")
+
+
+@pytest.mark.skipif(not (HAS_FOAM and HAS_GMSH), reason="OpenFOAM and gmsh are needed to reach the time limit")
 def test_driver_time_limit_is_a_failure(tmp_path):
     (tmp_path / "params.json").write_text(json.dumps({"run_id": "r1", **POINT}))
     r = _driver(tmp_path, "--mesh", "coarse", "--time-limit", "0.01")

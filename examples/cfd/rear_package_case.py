@@ -42,6 +42,7 @@ gmsh (``pip install 'doe[cfd]'``). See ``README.md`` and ``docs/cfd.md``:
 from __future__ import annotations
 
 import argparse
+import importlib.util
 import json
 import math
 import platform
@@ -172,6 +173,11 @@ def run_case(args) -> dict:
         {"units": "m", "axes": "x rearward from the bumper tip, y up from the ground",
          "body": np.round(outlines.body, 6).tolist(),
          "wing": None if outlines.wing is None else np.round(outlines.wing, 6).tolist()}) + "\n")
+    missing = [t for t in ("gmshToFoam", "checkMesh", "renumberMesh", "simpleFoam") if shutil.which(t) is None]
+    if missing:
+        raise CaseFailure(f"OpenFOAM's {missing[0]} is not on PATH (Debian: apt-get install openfoam)")
+    if importlib.util.find_spec("gmsh") is None:
+        raise CaseFailure("gmsh is not installed for this Python (pip install 'doe[cfd]')")
     try:
         minfo = write_mesh(outlines, mesh, work / "mesh.msh", settings.car.length, settings.car.roof_height)
     except Exception as exc:                          # gmsh raises plain Exceptions
