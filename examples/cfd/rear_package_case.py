@@ -98,7 +98,8 @@ def parse_args(argv=None):
     ap.add_argument("--abs-tol", type=float, default=SOLVER_DEFAULTS["abs_tol"],
                     help="... or by less than this, m^2")
     ap.add_argument("--time-limit", type=float, default=900.0, help="wall-time limit of the whole run, s")
-    ap.add_argument("--keep", action="store_true", help="keep the OpenFOAM case (mesh and fields)")
+    ap.add_argument("--keep", action="store_true",
+                    help="keep the OpenFOAM case: mesh, and fields written every 100 iterations")
     return ap.parse_args(argv)
 
 
@@ -133,8 +134,8 @@ def model_point(params: dict, study_path: Path | None):
     return settings, point, str(study_path)
 
 
-def case_values(settings, mesh, solver: dict) -> dict:
-    """Values for the dictionary templates."""
+def case_values(settings, mesh, solver: dict, keep: bool = False) -> dict:
+    """Values for the dictionary templates (``keep``: write the fields every 100 iterations, for a look)."""
     from doe.aero.atmosphere import viscosity
 
     nu = float(viscosity(settings.temperature)) / settings.density
@@ -142,6 +143,7 @@ def case_values(settings, mesh, solver: dict) -> dict:
     return {"speed": settings.speed, "density": settings.density, "nu": nu, "depth": mesh.depth,
             "front_axle": settings.car.front_axle, "k_inlet": k,
             "omega_inlet": k / (nu * solver["viscosity_ratio"]),
+            "write_interval": 100 if keep else solver["max_iterations"],
             **{key: solver[key] for key in ("max_iterations", "relax_p", "relax_U", "relax_turb")}}
 
 
@@ -182,7 +184,7 @@ def run_case(args) -> dict:
         minfo = write_mesh(outlines, mesh, work / "mesh.msh", settings.car.length, settings.car.roof_height)
     except Exception as exc:                          # gmsh raises plain Exceptions
         raise CaseFailure(f"mesh generation failed: {exc}") from exc
-    write_dictionaries(work, case_values(settings, mesh, solver))
+    write_dictionaries(work, case_values(settings, mesh, solver, keep=args.keep))
 
     def remaining():
         left = args.time_limit - (time.monotonic() - t0)
