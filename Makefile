@@ -4,7 +4,7 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test bench clean
+.PHONY: demo test bench clean cfd-example
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -24,3 +24,11 @@ bench: $(STAMP)
 
 clean:
 	rm -rf $(VENV) reports/demo-* build *.egg-info
+
+# Real CFD in the loop (needs root or sudo for apt): OpenFOAM from Debian, gmsh from PyPI, then four coarse
+# 2-D RANS runs of the invented hatchback planned, run, stored (resumable), fitted and reported.
+cfd-example: $(STAMP)
+	@command -v simpleFoam >/dev/null 2>&1 || { SUDO=$$([ "$$(id -u)" -eq 0 ] || echo sudo); \
+	  $$SUDO apt-get update -qq && DEBIAN_FRONTEND=noninteractive $$SUDO apt-get install -y -qq openfoam; }
+	$(PY) -m pip install --quiet -e '.[cfd]'
+	PATH="$(CURDIR)/$(VENV)/bin:$$PATH" $(VENV)/bin/doe run studies/rans_example.toml
