@@ -18,8 +18,8 @@ import pandas as pd
 from scipy.stats import spearmanr
 
 from doe.aero.model import RearPackageModel
-from doe.evaluators.builtin import read_builtin_settings
-from doe.study import load_study
+from doe.runs.evaluators.builtin import read_builtin_settings
+from doe.study.reader import load_study
 
 ROOT = Path(__file__).resolve().parents[1]
 STUDY = ROOT / "studies" / "rans_rear.toml"

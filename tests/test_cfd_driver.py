@@ -362,7 +362,7 @@ def test_tool_poll_stops_the_program(tmp_path):
 
 
 def test_command_evaluator_records_driver_failure(tmp_path):
-    from doe.evaluators.command import CommandEvaluator, CommandSettings
+    from doe.runs.evaluators.command import CommandEvaluator, CommandSettings
 
     ev = CommandEvaluator(CommandSettings((sys.executable, str(CFD / "rear_package_case.py"), "{case_dir}"),
                                           timeout_s=60),
@@ -420,7 +420,7 @@ def test_dataset_store_resumes_from_the_committed_record(tmp_path):
     """A fresh checkout has no store: it starts from the recorded CSV, and its runs count as done."""
     import make_rans_dataset as mk
 
-    from doe.results import ResultsStore
+    from doe.runs.results import ResultsStore
 
     rec = tmp_path / "rec.csv"
     res = json.loads((DATA / "result_medium_r001.json").read_text())

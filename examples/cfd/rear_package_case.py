@@ -115,8 +115,8 @@ def model_point(params: dict, study_path: Path | None):
             raise CaseFailure(f"parameter '{unknown[0]}' is not a model input")
         return ModelSettings(), values, "model defaults"
     from doe.errors import DoeError
-    from doe.evaluators.builtin import read_builtin_settings
-    from doe.study import load_study
+    from doe.runs.evaluators.builtin import read_builtin_settings
+    from doe.study.reader import load_study
 
     try:
         study = load_study(study_path)
