@@ -12,9 +12,12 @@ Examples
 """
 from __future__ import annotations
 
+import math
 import numbers
 
-__all__ = ["is_whole", "is_number"]
+from .errors import DoeError
+
+__all__ = ["is_whole", "is_number", "check_limit_bounds"]
 
 
 def is_whole(value) -> bool:
@@ -25,3 +28,29 @@ def is_whole(value) -> bool:
 def is_number(value) -> bool:
     """Whether ``value`` is a real number (int, float or a numpy scalar of either, not a bool)."""
     return isinstance(value, numbers.Real) and not isinstance(value, bool)
+
+
+def check_limit_bounds(where: str, name: str, low, high) -> None:
+    """Check a limit's ``min``/``max``: finite numbers, at least one given, ``min < max``.
+
+    Parameters
+    ----------
+    where : str
+        What the limit belongs to, for the message (e.g. ``"robust"``, ``"vehicle"``).
+    name : str
+        The limited response or figure.
+    low, high : float or None
+        The bounds, in the limited quantity's unit.
+
+    Raises
+    ------
+    DoeError
+        One line naming the limit and what is wrong.
+    """
+    for bound in (low, high):
+        if bound is not None and not (isinstance(bound, (int, float)) and math.isfinite(bound)):
+            raise DoeError(f"{where}: the limit on '{name}' must be finite numbers, got {bound!r}")
+    if low is None and high is None:
+        raise DoeError(f"{where}: the limit on '{name}' needs 'min', 'max' or both")
+    if low is not None and high is not None and not low < high:
+        raise DoeError(f"{where}: the limit on '{name}' has min {low:g} >= max {high:g}")

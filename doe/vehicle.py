@@ -57,6 +57,7 @@ from dataclasses import asdict, dataclass, field
 
 import numpy as np
 
+from .checks import check_limit_bounds
 from .errors import DoeError
 
 __all__ = ["G", "RHO_SEA_LEVEL", "DRIVES", "Vehicle", "Aero", "Segment", "Track", "aero_forces",
@@ -1087,13 +1088,7 @@ class VehicleLimit:
 
     def __post_init__(self):
         figure_unit(self.figure)
-        for bound in (self.min, self.max):
-            if bound is not None and not (isinstance(bound, (int, float)) and math.isfinite(bound)):
-                raise DoeError(f"vehicle: the limit on '{self.figure}' must be finite numbers, got {bound!r}")
-        if self.min is None and self.max is None:
-            raise DoeError(f"vehicle: the limit on '{self.figure}' needs 'min', 'max' or both")
-        if self.min is not None and self.max is not None and not self.min < self.max:
-            raise DoeError(f"vehicle: the limit on '{self.figure}' has min {self.min:g} >= max {self.max:g}")
+        check_limit_bounds("vehicle", self.figure, self.min, self.max)
 
     @property
     def unit(self) -> str:

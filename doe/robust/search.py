@@ -105,6 +105,7 @@ from functools import cached_property
 import numpy as np
 from scipy.stats import qmc
 
+from ..checks import check_limit_bounds
 from ..errors import DoeError
 from ..seeds import child_seeds, seed_value
 from ..space import Space
@@ -592,13 +593,7 @@ def _as_limit(lim) -> ResponseLimit:
         lim = ResponseLimit(lim["response"], lim.get("max"), lim.get("min"))
     if not isinstance(lim, ResponseLimit):
         raise DoeError(f"robust: a limit must be a ResponseLimit or a dict, got {lim!r}")
-    for bound in (lim.min, lim.max):
-        if bound is not None and not (isinstance(bound, (int, float)) and math.isfinite(bound)):
-            raise DoeError(f"robust: the limit on '{lim.response}' must be finite numbers, got {bound!r}")
-    if lim.min is None and lim.max is None:
-        raise DoeError(f"robust: the limit on '{lim.response}' needs 'min', 'max' or both")
-    if lim.min is not None and lim.max is not None and not lim.min < lim.max:
-        raise DoeError(f"robust: the limit on '{lim.response}' has min {lim.min:g} >= max {lim.max:g}")
+    check_limit_bounds("robust", lim.response, lim.min, lim.max)
     return lim
 
 
