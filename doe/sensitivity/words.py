@@ -25,7 +25,7 @@ Per parameter (all indices are shares of the response's variance, 0..1;
 ``_meta``: ``route`` ("surrogate" or "direct"), ``method``, ``library`` (credit),
 ``confidence_level`` (0.95), ``inputs`` (distribution kind and, per parameter,
 bounds or mean and sd in its unit), ``base_samples``, ``evaluations``,
-``target_conf``, ``target_reached``, ``path_base_samples``, ``n_paths``,
+``target_pm95`` (the half-width the estimator aimed for), ``target_reached``, ``path_base_samples``, ``n_paths``,
 ``second_order``, ``seed``, ``dropped_base_rows`` (base rows left out because
 the model failed at one of their points), and ``responses``: per response its ``unit``,
 ``mean`` and ``std`` under the input distribution (response unit),
@@ -211,7 +211,7 @@ def to_dict(result: SobolResult, labels: dict | None = None, whats: dict | None 
                                   if result.route == "surrogate" else "")),
         "library": LIBRARY,
         "confidence_level": 0.95, "inputs": result.inputs.describe(), "base_samples": result.base_samples,
-        "evaluations": result.evaluations, "target_conf": result.target_conf, "target_reached": result.reached,
+        "evaluations": result.evaluations, "target_pm95": result.target_conf, "target_reached": result.reached,
         "path_base_samples": result.path_base_samples, "n_paths": result.n_paths,
         "second_order": result.second_order, "seed": result.seed, "dropped_base_rows": result.dropped_rows,
         "responses": meta_resp,
