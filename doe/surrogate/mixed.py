@@ -1,0 +1,366 @@
+"""A Gaussian process over mixed inputs: continuous knobs and choices (named levels).
+
+Inputs are rows whose continuous columns lie in the unit cube and whose choice
+columns hold level indices ``0 .. L-1`` (what :meth:`doe.space.Space.to_unit`
+gives). The kernel multiplies the usual stationary kernel of the continuous
+columns by an exchangeable correlation per choice::
+
+    k(x, x') = s^2 K_family(z, z'; l_1..l_p) * prod_j rho_j^[c_j != c'_j] + c
+
+with ``z = u - 1/2`` the centred continuous inputs, ``rho_j = exp(-theta_j)``
+in ``(0, 1)`` the correlation between any two different levels of choice
+``j`` (the same for every pair: exchangeable, or compound symmetry) and ``c``
+a constant trend. It is the one-hot encoding of a choice under a squared-
+exponential kernel with one length scale shared by its indicator columns
+(``rho = exp(-1 / l^2)``), written so that each choice has one parameter.
+A small ``rho`` makes the levels independent surrogates that share only the
+length scales and the variance; ``rho`` near 1 pools the levels into one
+surface: the fit learns how much the levels share.
+
+:class:`SeparateSurrogates` is the baseline it is compared with: one
+:class:`~doe.surrogate.gp.ResponseSurrogate` per level combination, each
+fitted on that combination's runs alone.
+
+References
+----------
+.. [1] Qian, P. Z. G., Wu, H. and Wu, C. F. J. (2008). Gaussian process models
+   for computer experiments with qualitative and quantitative factors.
+   Technometrics 50(3), 383-396 (exchangeable and multiplicative correlations).
+.. [2] Zhou, Q., Qian, P. Z. G. and Zhou, S. (2011). A simple approach to
+   emulation for computer models with qualitative and quantitative factors.
+   Technometrics 53(3), 266-273.
+.. [3] Roustant, O., Padonou, E., Deville, Y., Clement, A., Perrin, G.,
+   Giorla, J. and Wynn, H. (2020). Group kernels for Gaussian process
+   metamodels with categorical inputs. SIAM/ASA J. Uncertainty Quantification
+   8(2), 775-806 (compound symmetry).
+.. [4] Rasmussen, C. E. and Williams, C. K. I. (2006). Gaussian Processes for
+   Machine Learning. MIT Press, eqs. 5.8 and 5.12.
+"""
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+from scipy.linalg import cho_solve
+from sklearn.gaussian_process import GaussianProcessRegressor
+from sklearn.gaussian_process.kernels import RBF, ConstantKernel, Hyperparameter, Kernel, Matern
+from threadpoolctl import threadpool_limits
+
+from .. import defaults
+from ..checks import is_whole
+from ..errors import NotFittedError, SurrogateError
+from .gp import LooResult, ResponseSurrogate
+from .kernels import AMPLITUDE_BOUNDS, FAMILIES, LENGTH_SCALE_BOUNDS, NU, TREND_BOUNDS
+
+__all__ = ["LevelKernel", "MixedSurrogate", "SeparateSurrogates", "LEVEL_SCALE_BOUNDS"]
+
+#: Bounds of ``theta = -ln(rho)``: level correlations from 0.999 (pooled) to 5e-5 (independent levels).
+LEVEL_SCALE_BOUNDS = (1e-3, 10.0)
+
+
+def _level_counts(levels) -> tuple:
+    out = tuple(int(v) for v in levels)
+    if any(v == 1 or v < 0 for v in out) or not any(v == 0 for v in out):
+        raise SurrogateError(f"levels {list(levels)} must give 0 for each continuous column and the level count "
+                             "(at least 2) for each choice column, with at least one continuous column")
+    return out
+
+
+class LevelKernel(Kernel):
+    """Continuous kernel times an exchangeable correlation per choice (see the module docstring).
+
+    Parameters
+    ----------
+    levels : tuple of int
+        Per input column: 0 for a continuous column, the number of levels of a choice column.
+    family : {"sqexp", "matern52", "matern32"}
+    length_scale : float or ndarray
+        One per continuous column, in fractions of its range.
+    length_scale_bounds : pair of float or "fixed"
+    level_scale : float or ndarray
+        ``theta_j = -ln(rho_j)``, one per choice column.
+    level_scale_bounds : pair of float or "fixed"
+    """
+
+    def __init__(self, levels, family="matern52", length_scale=0.3, length_scale_bounds=LENGTH_SCALE_BOUNDS,
+                 level_scale=1.0, level_scale_bounds=LEVEL_SCALE_BOUNDS):
+        self.levels = levels
+        self.family = family
+        self.length_scale = length_scale
+        self.length_scale_bounds = length_scale_bounds
+        self.level_scale = level_scale
+        self.level_scale_bounds = level_scale_bounds
+
+    @property
+    def _cont(self):
+        return [j for j, v in enumerate(self.levels) if v == 0]
+
+    @property
+    def _cat(self):
+        return [j for j, v in enumerate(self.levels) if v > 0]
+
+    @property
+    def hyperparameter_length_scale(self):
+        n = np.size(self.length_scale)
+        return Hyperparameter("length_scale", "numeric", self.length_scale_bounds, n if n > 1 else 1)
+
+    @property
+    def hyperparameter_level_scale(self):
+        n = np.size(self.level_scale)
+        return Hyperparameter("level_scale", "numeric", self.level_scale_bounds, n if n > 1 else 1)
+
+    def _base(self):
+        if self.family == "sqexp":
+            return RBF(self.length_scale, self.length_scale_bounds)
+        return Matern(self.length_scale, self.length_scale_bounds, nu=NU[self.family])
+
+    def __call__(self, X, Y=None, eval_gradient=False):
+        X = np.atleast_2d(X)
+        if eval_gradient and Y is not None:
+            raise ValueError("gradient can only be evaluated when Y is None")
+        Yc = None if Y is None else np.atleast_2d(Y)[:, self._cont]
+        base = self._base()
+        if eval_gradient:
+            Kc, dKc = base(X[:, self._cont], None, eval_gradient=True)
+        else:
+            Kc = base(X[:, self._cont], Yc)
+        B = X if Y is None else np.atleast_2d(Y)
+        theta = np.atleast_1d(np.asarray(self.level_scale, dtype=float))
+        # mismatch of each choice column between the rows of X and of Y: 1 where the levels differ
+        M = np.stack([X[:, j][:, None] != B[:, j][None, :] for j in self._cat], axis=-1).astype(float)
+        Kl = np.exp(-M @ theta)
+        K = Kc * Kl
+        if not eval_gradient:
+            return K
+        grads = [dKc * Kl[..., None]]                         # empty when the length scales are fixed
+        if not self.hyperparameter_level_scale.fixed:
+            grads.append(-M * theta * K[..., None])          # d K / d ln(theta_j)
+        return K, np.concatenate(grads, axis=-1)
+
+    def diag(self, X):
+        return np.ones(np.atleast_2d(X).shape[0])
+
+    def is_stationary(self):
+        return True
+
+    def __repr__(self):
+        return (f"{type(self).__name__}(family={self.family}, length_scale={np.round(self.length_scale, 4)}, "
+                f"rho={np.round(np.exp(-np.atleast_1d(self.level_scale)), 4)})")
+
+
+class _LevelSurrogate:
+    """Options and input checks shared by :class:`MixedSurrogate` and :class:`SeparateSurrogates`."""
+
+    def __init__(self, levels, kernel="matern52", restarts=defaults.RESTARTS, nugget=defaults.NUGGET, seed=0):
+        self.levels = levels
+        self.kernel = kernel
+        self.restarts = restarts
+        self.nugget = nugget
+        self.seed = seed
+
+    @staticmethod
+    def _check_points(X, levels) -> np.ndarray:
+        X = np.asarray(X, dtype=float)
+        if X.ndim == 1:
+            X = X.reshape(1, -1)
+        if X.ndim != 2 or X.shape[1] != len(levels):
+            raise SurrogateError(f"points must have shape (n, {len(levels)}); got {X.shape}")
+        if not np.all(np.isfinite(X)):
+            raise SurrogateError("points hold NaN or infinite values; drop failed runs first")
+        for j, n in enumerate(levels):
+            if n and (np.any(X[:, j] != np.rint(X[:, j])) or X[:, j].min() < 0 or X[:, j].max() > n - 1):
+                raise SurrogateError(f"column {j} is a choice of {n} levels: it must hold indices 0 to {n - 1}")
+        return X
+
+
+class MixedSurrogate(_LevelSurrogate):
+    """A Gaussian-process surrogate of one response over continuous inputs and choices.
+
+    Parameters
+    ----------
+    levels : sequence of int
+        Per input column: 0 for a continuous column (unit cube), the number of
+        levels of a choice column (level indices).
+    kernel : {"sqexp", "matern52", "matern32"}
+        Family of the continuous part.
+    restarts : int
+        Extra optimiser starts, drawn from ``seed``.
+    nugget : float
+        Fixed diagonal term, relative to the response's variance.
+    seed : int
+        Seed of the optimiser starts; same seed, same surrogate.
+
+    Attributes
+    ----------
+    gp_ : GaussianProcessRegressor
+    length_scales_ : ndarray
+        One per continuous column, fractions of its range.
+    level_correlations_ : ndarray
+        ``rho_j`` per choice column: the correlation between two different levels.
+    loo_ : LooResult
+        Closed-form leave-one-out results (Rasmussen & Williams 2006, eq. 5.12).
+    log_marginal_likelihood_ : float
+    statements_ : list of str
+        Plain notes (optimiser trouble, a correlation at a bound).
+
+    References
+    ----------
+    Qian, Wu & Wu (2008); Zhou, Qian & Zhou (2011); Roustant et al. (2020). See the module docstring.
+    """
+
+
+    def _check_options(self):
+        if self.kernel not in FAMILIES:
+            raise SurrogateError(f"surrogate option kernel={self.kernel!r} is not one of {', '.join(FAMILIES)}")
+        if not is_whole(self.restarts) or self.restarts < 0:
+            raise SurrogateError(f"surrogate option restarts={self.restarts!r} must be a whole number >= 0")
+        if not (isinstance(self.nugget, (int, float)) and 0 < self.nugget < 1):
+            raise SurrogateError(f"surrogate option nugget={self.nugget!r} must be a number in (0, 1)")
+        return _level_counts(self.levels)
+
+    def _scaled(self, X) -> np.ndarray:
+        Z = X.copy()
+        cont = [j for j, n in enumerate(self.levels_) if n == 0]
+        Z[:, cont] -= 0.5
+        return Z
+
+    def fit(self, X, y) -> "MixedSurrogate":
+        """Fit by maximum marginal likelihood (Rasmussen & Williams 2006, eq. 5.8).
+
+        Parameters
+        ----------
+        X : array_like, shape (n, d)
+            Continuous columns in the unit cube, choice columns as level indices.
+        y : array_like, shape (n,)
+            Response values, in the response's unit.
+
+        Returns
+        -------
+        self
+        """
+        self.levels_ = self._check_options()
+        X = self._check_points(X, self.levels_)
+        y = np.asarray(y, dtype=float).ravel()
+        if len(y) != len(X) or not np.all(np.isfinite(y)):
+            raise SurrogateError(f"y must hold {len(X)} finite values, one per row of X")
+        if len(X) < 3:
+            raise SurrogateError(f"only {len(X)} run(s): a surrogate needs at least 3")
+        self.X_, self.y_ = X, y
+        self.y_mean_, self.y_std_ = float(np.mean(y)), float(np.std(y)) or 1.0
+        yn = (y - self.y_mean_) / self.y_std_
+        n_cont = sum(n == 0 for n in self.levels_)
+        n_cat = len(self.levels_) - n_cont
+        kern = (ConstantKernel(1.0, AMPLITUDE_BOUNDS)
+                * LevelKernel(self.levels_, self.kernel, np.full(n_cont, 0.3) if n_cont > 1 else 0.3,
+                              level_scale=np.full(n_cat, 1.0) if n_cat > 1 else 1.0)
+                + ConstantKernel(0.1, TREND_BOUNDS))
+        self.statements_ = []
+        alpha = float(self.nugget)
+        for _ in range(4):
+            gp = GaussianProcessRegressor(kern, alpha=alpha, n_restarts_optimizer=int(self.restarts),
+                                          random_state=int(self.seed), normalize_y=False)
+            with warnings.catch_warnings(record=True) as caught, threadpool_limits(limits=1, user_api="blas"):
+                warnings.simplefilter("always")
+                try:
+                    gp.fit(self._scaled(X), yn)
+                    break
+                except (np.linalg.LinAlgError, ValueError):
+                    alpha *= 100
+        else:
+            raise SurrogateError("the kernel matrix stays singular: the runs may be nearly duplicated; remove "
+                                 "near-copies or set a larger nugget")
+        if alpha > self.nugget:
+            self.statements_.append(f"the kernel matrix was singular with the nugget {self.nugget:g}; {alpha:g} "
+                                    "was used (points very close together?)")
+        if any("converge" in str(w.message) for w in caught):
+            self.statements_.append("the likelihood optimiser stopped before converging at some starts")
+        self._adopt(gp, yn)
+        return self
+
+    def _adopt(self, gp, yn):
+        self.gp_ = gp
+        lk = gp.kernel_.k1.k2
+        self.length_scales_ = np.atleast_1d(np.asarray(lk.length_scale, dtype=float))
+        self.level_correlations_ = np.exp(-np.atleast_1d(np.asarray(lk.level_scale, dtype=float)))
+        self.log_marginal_likelihood_ = float(gp.log_marginal_likelihood_value_)
+        for j, rho in zip([j for j, n in enumerate(self.levels_) if n], self.level_correlations_):
+            if rho > np.exp(-LEVEL_SCALE_BOUNDS[0]) - 1e-6:
+                self.statements_.append(f"choice column {j}: its levels behave as one surface (correlation {rho:.3f})")
+        # Rasmussen & Williams 2006, eq. 5.12: residual = [K^-1 y]_i / [K^-1]_ii, var = 1 / [K^-1]_ii
+        dinv = np.diag(cho_solve((gp.L_, True), np.eye(len(yn))))
+        resid = gp.alpha_ / dinv * self.y_std_
+        total = float(np.sum((self.y_ - self.y_.mean()) ** 2))
+        q2 = 1.0 - float(np.sum(resid**2)) / total if total > 0 else float("nan")
+        self.loo_ = LooResult(self.y_.copy(), self.y_ - resid, np.sqrt(1.0 / dinv) * self.y_std_, q2,
+                              float(np.sqrt(np.mean(resid**2))))
+
+    def predict(self, X, return_std=False):
+        """Posterior mean (and standard deviation) of the response, in its unit.
+
+        Parameters
+        ----------
+        X : array_like, shape (n, d)
+            Continuous columns in the unit cube, choice columns as level indices.
+        return_std : bool
+
+        Returns
+        -------
+        mean : ndarray, shape (n,)
+        std : ndarray, shape (n,), when ``return_std``
+        """
+        if not hasattr(self, "gp_"):
+            raise NotFittedError("this surrogate is not fitted yet; call fit(X, y) first")
+        X = self._check_points(X, self.levels_)
+        with threadpool_limits(limits=1, user_api="blas"):
+            out = self.gp_.predict(self._scaled(X), return_std=return_std)
+        if not return_std:
+            return out * self.y_std_ + self.y_mean_
+        mean, std = out
+        return mean * self.y_std_ + self.y_mean_, std * self.y_std_
+
+
+class SeparateSurrogates(_LevelSurrogate):
+    """One :class:`ResponseSurrogate` per level combination (the baseline for :class:`MixedSurrogate`).
+
+    Parameters
+    ----------
+    levels : sequence of int
+        As for :class:`MixedSurrogate`.
+    kernel, restarts, nugget, seed
+        Passed to each :class:`ResponseSurrogate` (constant trend; the seed is
+        the same for every combination).
+    """
+
+
+    def _split(self, X):
+        cont = [j for j, n in enumerate(self.levels_) if n == 0]
+        cat = [j for j, n in enumerate(self.levels_) if n]
+        return X[:, cont], [tuple(int(v) for v in row) for row in X[:, cat]]
+
+    def fit(self, X, y) -> "SeparateSurrogates":
+        """Fit one surrogate per level combination found in ``X`` (each needs at least 3 runs)."""
+        self.levels_ = _level_counts(self.levels)
+        X = self._check_points(X, self.levels_)
+        y = np.asarray(y, dtype=float).ravel()
+        Xc, keys = self._split(X)
+        self.models_ = {}
+        for key in sorted(set(keys)):
+            rows = [i for i, k in enumerate(keys) if k == key]
+            self.models_[key] = ResponseSurrogate(kernel=self.kernel, trend="constant", noise="fixed",
+                                                  restarts=self.restarts, nugget=self.nugget,
+                                                  seed=self.seed).fit(Xc[rows], y[rows])
+        return self
+
+    def predict(self, X, return_std=False):
+        """Each row predicted by its level combination's surrogate (a combination never fitted is an error)."""
+        if not hasattr(self, "models_"):
+            raise NotFittedError("these surrogates are not fitted yet; call fit(X, y) first")
+        X = self._check_points(X, self.levels_)
+        Xc, keys = self._split(X)
+        mean, std = np.empty(len(X)), np.empty(len(X))
+        for key in set(keys):
+            if key not in self.models_:
+                raise SurrogateError(f"level combination {key} has no runs: no surrogate was fitted for it")
+            rows = [i for i, k in enumerate(keys) if k == key]
+            mean[rows], std[rows] = self.models_[key].predict(Xc[rows], return_std=True)
+        return (mean, std) if return_std else mean
