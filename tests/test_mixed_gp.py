@@ -110,3 +110,17 @@ def test_bad_use_is_a_plain_error():
     sep = SeparateSurrogates((0, 0, 3)).fit(X[X[:, 2] < 2], y[X[:, 2] < 2])
     with pytest.raises(SurrogateError, match=r"level combination \(2,\) has no runs"):
         sep.predict(X)
+
+
+def test_sample_paths_have_the_posterior_spread():
+    X, y = _sliced(5, 4)
+    gp = MixedSurrogate((0, 0, 3), seed=0).fit(X, y)
+    rng = np.random.default_rng(5)
+    T = np.column_stack([rng.random((40, 2)), rng.integers(0, 3, 40)])
+    mean, std = gp.predict(T, return_std=True)
+    draws = gp.sample_paths(T, 2000, seed=1)
+    # 2000 draws: the sample mean is within 4 standard errors (std / sqrt(2000)) of the posterior mean,
+    # the sample sd within 10 % of the posterior sd (its relative standard error is 1/sqrt(2 * 2000) = 1.6 %)
+    assert np.all(np.abs(draws.mean(0) - mean) < 4 * std / np.sqrt(2000) + 1e-9)
+    np.testing.assert_allclose(draws.std(0), std, rtol=0.1)
+    np.testing.assert_array_equal(draws, gp.sample_paths(T, 2000, seed=1))

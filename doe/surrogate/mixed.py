@@ -319,6 +319,42 @@ class MixedSurrogate(_LevelSurrogate):
         return mean * self.y_std_ + self.y_mean_, std * self.y_std_
 
 
+    def sample_paths(self, X, n_paths: int, seed=0) -> np.ndarray:
+        """Joint posterior draws of the response at the points ``X`` (Cholesky of the posterior covariance).
+
+        Parameters
+        ----------
+        X : array_like, shape (m, d)
+            As for :meth:`predict`; ``m`` up to a few thousand (cost ``O(m^3)``).
+        n_paths : int
+        seed : int or numpy.random.Generator
+
+        Returns
+        -------
+        ndarray, shape (n_paths, m)
+            Response unit.
+        """
+        if not hasattr(self, "gp_"):
+            raise NotFittedError("this surrogate is not fitted yet; call fit(X, y) first")
+        if not is_whole(n_paths) or n_paths < 1:
+            raise SurrogateError(f"n_paths must be a whole number >= 1, got {n_paths!r}")
+        X = self._check_points(X, self.levels_)
+        with threadpool_limits(limits=1, user_api="blas"):
+            mean, cov = self.gp_.predict(self._scaled(X), return_cov=True)
+            jitter = 1e-10 * max(float(np.max(np.diag(cov))), 1e-12)
+            for _ in range(6):                  # a posterior covariance is only positive semi-definite
+                try:
+                    L = np.linalg.cholesky(cov + jitter * np.eye(len(cov)))
+                    break
+                except np.linalg.LinAlgError:
+                    jitter *= 100
+            else:
+                raise SurrogateError("the posterior covariance at these points cannot be factorised")
+            z = np.random.default_rng(seed).standard_normal((len(cov), int(n_paths)))
+            draws = mean[None, :] + (L @ z).T
+        return self.y_mean_ + self.y_std_ * draws
+
+
 class SeparateSurrogates(_LevelSurrogate):
     """One :class:`ResponseSurrogate` per level combination (the baseline for :class:`MixedSurrogate`).
 
