@@ -6,7 +6,7 @@ import pytest
 
 from doe.design.plans import sliced_lhs
 from doe.errors import NotFittedError, SurrogateError
-from doe.surrogate.mixed import LevelKernel, MixedSurrogate, SeparateSurrogates
+from doe.surrogate.mixed import LevelKernel, MixedSurrogate, SeparateSurrogates, best_level_surrogate
 from doe.testing.functions import hartmann3, hartmann3_levels
 
 
@@ -124,3 +124,17 @@ def test_sample_paths_have_the_posterior_spread():
     assert np.all(np.abs(draws.mean(0) - mean) < 4 * std / np.sqrt(2000) + 1e-9)
     np.testing.assert_allclose(draws.std(0), std, rtol=0.1)
     np.testing.assert_array_equal(draws, gp.sample_paths(T, 2000, seed=1))
+
+
+def test_separate_loo_is_each_levels_own_and_choice_by_loo():
+    X, y = _sliced(8, 1, column=2)
+    sep = SeparateSurrogates((0, 0, 3), seed=0).fit(X, y)
+    for level, model in sep.models_.items():
+        rows = X[:, 2] == level[0]
+        np.testing.assert_array_equal(sep.loo_.predicted[rows], model.loo_.predicted)
+    model, table = best_level_surrogate((0, 0, 3), X, y, seed=0)
+    kept = min(table, key=lambda t: t["rmse_loo"])
+    assert kept["chosen"] and isinstance(model, MixedSurrogate if kept["model"] == "mixed" else SeparateSurrogates)
+    few = (X[:, 2] < 2) | (np.cumsum(X[:, 2] == 2) <= 2)       # level 2 keeps 2 runs: too few on its own
+    model, table = best_level_surrogate((0, 0, 3), X[few], y[few], seed=0)
+    assert isinstance(model, MixedSurrogate) and "needs at least 3" in table[1]["why"]

@@ -52,7 +52,7 @@ from ..errors import NotFittedError, SurrogateError
 from .gp import LooResult, ResponseSurrogate
 from .kernels import AMPLITUDE_BOUNDS, FAMILIES, LENGTH_SCALE_BOUNDS, NU, TREND_BOUNDS
 
-__all__ = ["LevelKernel", "MixedSurrogate", "SeparateSurrogates", "LEVEL_SCALE_BOUNDS"]
+__all__ = ["LevelKernel", "MixedSurrogate", "SeparateSurrogates", "best_level_surrogate", "LEVEL_SCALE_BOUNDS"]
 
 #: Bounds of ``theta = -ln(rho)``: level correlations from 0.999 (pooled) to 5e-5 (independent levels).
 LEVEL_SCALE_BOUNDS = (1e-3, 10.0)
@@ -380,11 +380,19 @@ class SeparateSurrogates(_LevelSurrogate):
         y = np.asarray(y, dtype=float).ravel()
         Xc, keys = self._split(X)
         self.models_ = {}
+        predicted, std = np.empty(len(y)), np.empty(len(y))
         for key in sorted(set(keys)):
             rows = [i for i, k in enumerate(keys) if k == key]
-            self.models_[key] = ResponseSurrogate(kernel=self.kernel, trend="constant", noise="fixed",
-                                                  restarts=self.restarts, nugget=self.nugget,
-                                                  seed=self.seed).fit(Xc[rows], y[rows])
+            model = ResponseSurrogate(kernel=self.kernel, trend="constant", noise="fixed", restarts=self.restarts,
+                                      nugget=self.nugget, seed=self.seed).fit(Xc[rows], y[rows])
+            if len(model.y_) != len(rows):
+                raise SurrogateError(f"level combination {key} has repeated runs: merge or drop them first")
+            self.models_[key] = model
+            predicted[rows], std[rows] = model.loo_.predicted, model.loo_.std
+        total = float(np.sum((y - y.mean()) ** 2))
+        resid = y - predicted
+        self.loo_ = LooResult(y.copy(), predicted, std, 1.0 - float(np.sum(resid**2)) / total if total > 0
+                              else float("nan"), float(np.sqrt(np.mean(resid**2))))
         return self
 
     def predict(self, X, return_std=False):
@@ -400,3 +408,42 @@ class SeparateSurrogates(_LevelSurrogate):
             rows = [i for i, k in enumerate(keys) if k == key]
             mean[rows], std[rows] = self.models_[key].predict(Xc[rows], return_std=True)
         return (mean, std) if return_std else mean
+
+
+def best_level_surrogate(levels, X, y, **options):
+    """Fit both :class:`MixedSurrogate` and :class:`SeparateSurrogates`; keep the smaller leave-one-out error.
+
+    The mixed kernel wins when the levels share structure; when they share
+    little, its one set of length scales and one variance for every level can
+    lose to separate surrogates (``reports/benchmarks.md``, section "mixed").
+    Leave-one-out picks between them from the runs alone.
+
+    Parameters
+    ----------
+    levels : sequence of int
+        As for :class:`MixedSurrogate`.
+    X, y : array_like
+        Runs, as for :meth:`MixedSurrogate.fit`.
+    **options
+        ``kernel``, ``restarts``, ``nugget``, ``seed`` for both.
+
+    Returns
+    -------
+    model : MixedSurrogate or SeparateSurrogates
+        The one kept (fitted).
+    table : list of dict
+        ``{"model", "rmse_loo", "q2_loo", "chosen"}`` for both (the separate
+        one is left out, with its reason, when a level combination has under 3 runs).
+    """
+    mixed = MixedSurrogate(levels, **options).fit(X, y)
+    table = [{"model": "mixed", "rmse_loo": mixed.loo_.rmse, "q2_loo": mixed.loo_.q2, "chosen": True}]
+    try:
+        separate = SeparateSurrogates(levels, **options).fit(X, y)
+    except SurrogateError as exc:
+        table.append({"model": "separate", "rmse_loo": None, "q2_loo": None, "chosen": False, "why": str(exc)})
+        return mixed, table
+    table.append({"model": "separate", "rmse_loo": separate.loo_.rmse, "q2_loo": separate.loo_.q2, "chosen": False})
+    if separate.loo_.rmse < mixed.loo_.rmse:
+        table[0]["chosen"], table[1]["chosen"] = False, True
+        return separate, table
+    return mixed, table
