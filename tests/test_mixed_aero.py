@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import pickle
+from pathlib import Path
 import re
 
 import numpy as np
@@ -167,3 +168,16 @@ def test_study_errors_name_file_line_and_key(tmp_path, capsys, change, extra, wh
     assert len(err) == 1 and re.search(where, err[0]), err
     with pytest.raises(StudyError):
         read_study_text((tmp_path / "study.toml").read_text(), tmp_path / "study.toml")
+
+
+def test_demo_choices_study_plans_balanced_and_evaluates():
+    from doe.design.plans import make_plan
+    from doe.study.reader import load_study
+
+    study = load_study(Path(__file__).resolve().parents[1] / "studies" / "demo_choices.toml")
+    frame = make_plan(study.space, study.plan.runs, seed=study.plan.seed).frame
+    counts = frame.groupby(["wing_section", "flap"]).size()
+    assert len(frame) == 40 and len(counts) == 4 and counts.min() == counts.max() == 10
+    ev = make_evaluator(study)
+    outs = ev.evaluate_many(list(frame["run_id"][:4]), frame.drop(columns="run_id").iloc[:4].to_dict("records"))
+    assert all(o.status == "ok" for o in outs), [o.message for o in outs]
