@@ -130,6 +130,14 @@ def test_bad_levels_are_one_line(knob, level, msg):
     assert "\n" not in str(err.value)
 
 
+def test_naca_names_written_loosely_and_a_choice_given_a_range():
+    for name in ("naca-2412", "NACA_2412", "2412"):
+        assert level_setting("wing_section", name).settings["wing_section"].name == "NACA 2412"
+    text = STUDY.format(extra="").replace('levels = ["naca2412", "high_lift.dat"]', 'unit = "-"\nlow = 0\nhigh = 1')
+    with pytest.raises(StudyError, match="'wing_section' is a choice of the builtin model: give it levels"):
+        read_study_text(text, "study.toml")
+
+
 def test_fixed_section_and_section_choice_clash(tmp_path):
     hl = _write_section(tmp_path / "s.dat")
     with pytest.raises(AeroError, match="do not also fix it"):

@@ -40,7 +40,7 @@ __all__ = ["CHOICE_INPUTS", "LevelSetting", "level_setting", "ChoiceModel"]
 
 #: Choice knobs the model understands: name -> what the levels are.
 CHOICE_INPUTS = {
-    "wing_section": "a NACA 4-digit name (naca4412, 4412) or a coordinate file relative to the study",
+    "wing_section": "a NACA 4-digit name (naca4412, 4412, naca_4412) or a coordinate file relative to the study",
     "flap_position": "hatch_edge, roof_edge, or a number 0 to 100 (% of the rear window up from the hatch edge)",
     "flap": "on or off (off: no flap)",
     "wing": "on or off (off: the car and its flap alone)",
@@ -106,7 +106,7 @@ def level_setting(knob: str, level: str, wing_panels: int = 60, folder: Path | s
 def _section(level: str, wing_panels: int, folder: Path):
     """A section from a NACA 4-digit name, else from a coordinate file (Abbott & von Doenhoff 1959, §6.4)."""
     try:
-        m, p, t = parse_naca(level)
+        m, p, t = parse_naca("".join(ch for ch in str(level) if ch not in "-_ "))   # naca-2412, NACA_2412
     except AeroError:
         pass
     else:

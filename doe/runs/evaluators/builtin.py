@@ -221,6 +221,9 @@ def _conversions(study, t) -> dict:
         if p.levels:
             continue
         d = DESIGN_INPUTS.get(p.name)
+        if d is None and p.name in CHOICE_INPUTS:
+            raise t.error(None, f"parameter '{p.name}' is a choice of the builtin model: give it levels "
+                                f"({CHOICE_INPUTS[p.name]})")
         if d is None:
             raise t.error(None, f"parameter '{p.name}' is not an input of the builtin model "
                                 f"(known inputs: {', '.join(DESIGN_INPUTS)})")
