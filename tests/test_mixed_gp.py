@@ -6,7 +6,8 @@ import pytest
 
 from doe.design.plans import sliced_lhs
 from doe.errors import NotFittedError, SurrogateError
-from doe.surrogate.mixed import LevelKernel, MixedSurrogate, SeparateSurrogates, best_level_surrogate
+from doe.surrogate.mixed import (LevelKernel, MixedSurrogate, SeparateSurrogates, UnrestrictedLevelKernel,
+                                 best_level_surrogate, hypersphere_correlation)
 from doe.testing.functions import hartmann3, hartmann3_levels
 
 
@@ -15,12 +16,17 @@ def _points(n=7, seed=0):
     return np.column_stack([rng.random((n, 2)) - 0.5, rng.integers(0, 3, n), rng.integers(0, 2, n)])
 
 
-@pytest.mark.parametrize("family", ["sqexp", "matern52", "matern32"])
-def test_kernel_gradient_matches_finite_differences(family):
-    kern = LevelKernel((0, 0, 3, 2), family, np.array([0.4, 0.7]), level_scale=np.array([0.5, 2.0]))
+@pytest.mark.parametrize("family,unrestricted", [("sqexp", False), ("matern52", False), ("matern32", False),
+                                                  ("matern52", True), ("sqexp", True)])
+def test_kernel_gradient_matches_finite_differences(family, unrestricted):
+    if unrestricted:     # 3 angles for the 3-level choice, 1 for the 2-level one
+        kern = UnrestrictedLevelKernel((0, 0, 3, 2), family, np.array([0.4, 0.7]),
+                                       level_angle=np.array([0.5, 2.0, 1.0, 2.2]))
+    else:
+        kern = LevelKernel((0, 0, 3, 2), family, np.array([0.4, 0.7]), level_scale=np.array([0.5, 2.0]))
     X = _points()
     K, dK = kern(X, eval_gradient=True)
-    assert dK.shape == (7, 7, 4)
+    assert dK.shape == (7, 7, 6 if unrestricted else 4)
     theta, h = kern.theta.copy(), 1e-6
     for i in range(len(theta)):
         up, down = kern.clone_with_theta(theta + h * np.eye(len(theta))[i]), kern.clone_with_theta(
@@ -138,3 +144,35 @@ def test_separate_loo_is_each_levels_own_and_choice_by_loo():
     few = (X[:, 2] < 2) | (np.cumsum(X[:, 2] == 2) <= 2)       # level 2 keeps 2 runs: too few on its own
     model, table = best_level_surrogate((0, 0, 3), X[few], y[few], seed=0)
     assert isinstance(model, MixedSurrogate) and "needs at least 3" in table[1]["why"]
+
+
+def test_hypersphere_gives_a_correlation_matrix():
+    # Zhou, Qian & Zhou 2011 (Technometrics 53:266), eqs. 7-8: T = L L^T with unit rows of L, so unit diagonal
+    # and positive semi-definite for any angles; with two levels the correlation is cos(a)
+    rng = np.random.default_rng(0)
+    for n in (2, 3, 5):
+        a = rng.uniform(0.05, np.pi - 0.05, n * (n - 1) // 2)
+        T, dT = hypersphere_correlation(a, n)
+        np.testing.assert_allclose(np.diag(T), 1.0, rtol=1e-14)
+        assert np.linalg.eigvalsh(T).min() > -1e-12 and np.allclose(T, T.T)
+        h = 1e-6      # central differences: error ~1e-12 truncation, ~1e-10 round-off
+        num = np.stack([(hypersphere_correlation(a + h * e, n)[0] - hypersphere_correlation(a - h * e, n)[0]) / (2 * h)
+                        for e in np.eye(len(a))], axis=-1)
+        np.testing.assert_allclose(dT, num, atol=1e-8)
+    assert hypersphere_correlation([1.0], 2)[0][0, 1] == pytest.approx(np.cos(1.0), rel=1e-14)
+
+
+def test_unrestricted_correlation_fits_and_predicts():
+    X, y = _sliced(12, 2)
+    rng = np.random.default_rng(99)
+    T = np.column_stack([rng.random((900, 2)), np.repeat([0, 1, 2], 300)])
+    truth = hartmann3_levels(T)
+    full = MixedSurrogate((0, 0, 3), seed=0, correlation="unrestricted").fit(X, y)
+    (C,) = full.level_matrices_
+    assert C.shape == (3, 3) and np.all(C[np.triu_indices(3, 1)] > 0.5)   # related levels: strong correlations
+    separate = SeparateSurrogates((0, 0, 3), seed=0).fit(X, y)
+    # same problem as test_mixed_gp_beats_one_gp_per_level_when_levels_share_structure
+    assert np.sqrt(np.mean((full.predict(T) - truth) ** 2)) < 0.75 * np.sqrt(np.mean((separate.predict(T) - truth) ** 2))
+    assert np.isnan(full.level_correlations_).all()
+    with pytest.raises(SurrogateError, match="correlation='full'"):
+        MixedSurrogate((0, 0, 3), correlation="full").fit(X, y)

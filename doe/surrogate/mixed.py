@@ -52,7 +52,8 @@ from ..errors import NotFittedError, SurrogateError
 from .gp import LooResult, ResponseSurrogate
 from .kernels import AMPLITUDE_BOUNDS, FAMILIES, LENGTH_SCALE_BOUNDS, NU, TREND_BOUNDS
 
-__all__ = ["LevelKernel", "MixedSurrogate", "SeparateSurrogates", "best_level_surrogate", "LEVEL_SCALE_BOUNDS"]
+__all__ = ["LevelKernel", "UnrestrictedLevelKernel", "hypersphere_correlation", "MixedSurrogate", "SeparateSurrogates", "best_level_surrogate", "LEVEL_SCALE_BOUNDS",
+           "LEVEL_ANGLE_BOUNDS"]
 
 #: Bounds of ``theta = -ln(rho)``: level correlations from 0.999 (pooled) to 5e-5 (independent levels).
 LEVEL_SCALE_BOUNDS = (1e-3, 10.0)
@@ -66,7 +67,51 @@ def _level_counts(levels) -> tuple:
     return out
 
 
-class LevelKernel(Kernel):
+def _hyperparameter(name, value, bounds) -> Hyperparameter:
+    """A numeric hyperparameter with one element per entry of ``value`` (a scalar counts as one)."""
+    n = np.size(value)
+    return Hyperparameter(name, "numeric", bounds, n if n > 1 else 1)
+
+
+class _LevelBase(Kernel):
+    """The continuous part shared by the level kernels: a stationary kernel on the continuous columns."""
+
+    @property
+    def _cont(self):
+        return [j for j, v in enumerate(self.levels) if v == 0]
+
+    @property
+    def _cat(self):
+        return [j for j, v in enumerate(self.levels) if v > 0]
+
+    @property
+    def hyperparameter_length_scale(self):
+        return _hyperparameter("length_scale", self.length_scale, self.length_scale_bounds)
+
+    def _base(self):
+        if self.family == "sqexp":
+            return RBF(self.length_scale, self.length_scale_bounds)
+        return Matern(self.length_scale, self.length_scale_bounds, nu=NU[self.family])
+
+    def _continuous(self, X, Y, eval_gradient):
+        """Rows of X and of Y (X when None), the continuous kernel between them and its gradient (or None)."""
+        X = np.atleast_2d(X)
+        if eval_gradient and Y is not None:
+            raise ValueError("gradient can only be evaluated when Y is None")
+        B = X if Y is None else np.atleast_2d(Y)
+        if eval_gradient:
+            Kc, dKc = self._base()(X[:, self._cont], None, eval_gradient=True)
+            return X, B, Kc, dKc
+        return X, B, self._base()(X[:, self._cont], B[:, self._cont]), None
+
+    def diag(self, X):
+        return np.ones(np.atleast_2d(X).shape[0])
+
+    def is_stationary(self):
+        return True
+
+
+class LevelKernel(_LevelBase):
     """Continuous kernel times an exchangeable correlation per choice (see the module docstring).
 
     Parameters
@@ -92,39 +137,11 @@ class LevelKernel(Kernel):
         self.level_scale_bounds = level_scale_bounds
 
     @property
-    def _cont(self):
-        return [j for j, v in enumerate(self.levels) if v == 0]
-
-    @property
-    def _cat(self):
-        return [j for j, v in enumerate(self.levels) if v > 0]
-
-    @property
-    def hyperparameter_length_scale(self):
-        n = np.size(self.length_scale)
-        return Hyperparameter("length_scale", "numeric", self.length_scale_bounds, n if n > 1 else 1)
-
-    @property
     def hyperparameter_level_scale(self):
-        n = np.size(self.level_scale)
-        return Hyperparameter("level_scale", "numeric", self.level_scale_bounds, n if n > 1 else 1)
-
-    def _base(self):
-        if self.family == "sqexp":
-            return RBF(self.length_scale, self.length_scale_bounds)
-        return Matern(self.length_scale, self.length_scale_bounds, nu=NU[self.family])
+        return _hyperparameter("level_scale", self.level_scale, self.level_scale_bounds)
 
     def __call__(self, X, Y=None, eval_gradient=False):
-        X = np.atleast_2d(X)
-        if eval_gradient and Y is not None:
-            raise ValueError("gradient can only be evaluated when Y is None")
-        Yc = None if Y is None else np.atleast_2d(Y)[:, self._cont]
-        base = self._base()
-        if eval_gradient:
-            Kc, dKc = base(X[:, self._cont], None, eval_gradient=True)
-        else:
-            Kc = base(X[:, self._cont], Yc)
-        B = X if Y is None else np.atleast_2d(Y)
+        X, B, Kc, dKc = self._continuous(X, Y, eval_gradient)
         theta = np.atleast_1d(np.asarray(self.level_scale, dtype=float))
         # mismatch of each choice column between the rows of X and of Y: 1 where the levels differ
         M = np.stack([X[:, j][:, None] != B[:, j][None, :] for j in self._cat], axis=-1).astype(float)
@@ -137,15 +154,122 @@ class LevelKernel(Kernel):
             grads.append(-M * theta * K[..., None])          # d K / d ln(theta_j)
         return K, np.concatenate(grads, axis=-1)
 
-    def diag(self, X):
-        return np.ones(np.atleast_2d(X).shape[0])
-
-    def is_stationary(self):
-        return True
-
     def __repr__(self):
         return (f"{type(self).__name__}(family={self.family}, length_scale={np.round(self.length_scale, 4)}, "
                 f"rho={np.round(np.exp(-np.atleast_1d(self.level_scale)), 4)})")
+
+
+#: Bounds of the hypersphere angles, radians: correlations from +1 to -1 (just inside).
+LEVEL_ANGLE_BOUNDS = (1e-3, np.pi - 1e-3)
+
+
+def hypersphere_correlation(angles, n_levels: int):
+    """Level correlation matrix ``T = L L^T`` from hypersphere angles, and its derivatives.
+
+    Row ``r`` of the lower-triangular ``L`` is a unit vector given by ``r``
+    angles ``a_1..a_r`` in ``(0, pi)``: ``L[r, k] = sin a_1 ... sin a_k cos a_(k+1)``
+    for ``k < r`` and ``L[r, r] = sin a_1 ... sin a_r`` (Zhou, Qian & Zhou 2011,
+    eqs. 7-8), so ``T`` is a valid correlation matrix for any angles and any
+    correlation matrix is reached.
+
+    Parameters
+    ----------
+    angles : array_like, shape (n_levels (n_levels - 1) / 2,)
+        Row 1's angle, then row 2's two, ...
+    n_levels : int
+
+    Returns
+    -------
+    T : ndarray, shape (n_levels, n_levels)
+    dT : ndarray, shape (n_levels, n_levels, n_angles)
+        ``dT / d angle``.
+    """
+    a = np.atleast_1d(np.asarray(angles, dtype=float))
+    L = np.zeros((n_levels, n_levels))
+    dL = np.zeros((n_levels, n_levels, len(a)))
+    L[0, 0] = 1.0
+    q = 0
+    for r in range(1, n_levels):
+        ang = a[q:q + r]
+        sines = np.concatenate([[1.0], np.cumprod(np.sin(ang))])        # prod_{m<k} sin a_m, k = 0..r
+        L[r, :r] = sines[:r] * np.cos(ang)
+        L[r, r] = sines[r]
+        for i in range(r):                                              # d L[r, k] / d a_i
+            dL[r, i + 1:r + 1, q + i] = L[r, i + 1:r + 1] / np.tan(ang[i])
+            dL[r, i, q + i] = -sines[i] * np.sin(ang[i])
+        q += r
+    T = L @ L.T
+    dT = np.einsum("rka,sk->rsa", dL, L)
+    return T, dT + dT.transpose(1, 0, 2)
+
+
+class UnrestrictedLevelKernel(_LevelBase):
+    """Continuous kernel times a full level correlation matrix per choice (hypersphere form).
+
+    Each pair of levels of a choice gets its own correlation, positive or
+    negative (Zhou, Qian & Zhou 2011; the unrestricted correlation of Qian,
+    Wu & Wu 2008): two similar wing sections can be close while a third
+    stands apart. It costs ``L (L - 1) / 2`` parameters per choice of ``L``
+    levels against one for :class:`LevelKernel`; for two levels the two are
+    the same model (apart from the sign the angle allows).
+
+    Parameters
+    ----------
+    levels, family, length_scale, length_scale_bounds
+        As for :class:`LevelKernel`.
+    level_angle : float or ndarray
+        The hypersphere angles of every choice column in turn (see :func:`hypersphere_correlation`).
+    level_angle_bounds : pair of float or "fixed"
+    """
+
+    def __init__(self, levels, family="matern52", length_scale=0.3, length_scale_bounds=LENGTH_SCALE_BOUNDS,
+                 level_angle=1.2, level_angle_bounds=LEVEL_ANGLE_BOUNDS):
+        self.levels = levels
+        self.family = family
+        self.length_scale = length_scale
+        self.length_scale_bounds = length_scale_bounds
+        self.level_angle = level_angle
+        self.level_angle_bounds = level_angle_bounds
+
+    @property
+    def hyperparameter_level_angle(self):
+        return _hyperparameter("level_angle", self.level_angle, self.level_angle_bounds)
+
+    def correlations(self) -> list:
+        """The level correlation matrix of each choice column, in column order."""
+        return [T for T, _ in self._matrices()]
+
+    def _matrices(self):
+        angles = np.atleast_1d(np.asarray(self.level_angle, dtype=float))
+        out, q = [], 0
+        for j in self._cat:
+            n = self.levels[j] * (self.levels[j] - 1) // 2
+            out.append(hypersphere_correlation(angles[q:q + n], self.levels[j]))
+            q += n
+        return out
+
+    def __call__(self, X, Y=None, eval_gradient=False):
+        X, B, Kc, dKc = self._continuous(X, Y, eval_gradient)
+        mats = self._matrices()
+        parts = [T[np.ix_(X[:, j].astype(int), B[:, j].astype(int))] for j, (T, _) in zip(self._cat, mats)]
+        Kl = np.prod(parts, axis=0)
+        K = Kc * Kl
+        if not eval_gradient:
+            return K
+        grads = [dKc * Kl[..., None]]
+        if not self.hyperparameter_level_angle.fixed:
+            angles, q = np.atleast_1d(np.asarray(self.level_angle, dtype=float)), 0
+            for c, (j, (_, dT)) in enumerate(zip(self._cat, mats)):
+                others = Kc * np.prod([p for i, p in enumerate(parts) if i != c], axis=0)
+                ix = np.ix_(X[:, j].astype(int), X[:, j].astype(int))
+                n = dT.shape[2]
+                # d K / d ln(a) = a * dK / da
+                grads.append(others[..., None] * dT[ix[0], ix[1], :] * angles[q:q + n])
+                q += n
+        return K, np.concatenate(grads, axis=-1)
+
+    def __repr__(self):
+        return f"{type(self).__name__}(family={self.family}, length_scale={np.round(self.length_scale, 4)})"
 
 
 class _LevelSurrogate:
@@ -189,6 +313,9 @@ class MixedSurrogate(_LevelSurrogate):
         Fixed diagonal term, relative to the response's variance.
     seed : int
         Seed of the optimiser starts; same seed, same surrogate.
+    correlation : {"exchangeable", "unrestricted"}
+        One correlation for every pair of levels of a choice (:class:`LevelKernel`), or one per pair
+        (:class:`UnrestrictedLevelKernel`; more parameters, for choices of three or more levels).
 
     Attributes
     ----------
@@ -196,7 +323,10 @@ class MixedSurrogate(_LevelSurrogate):
     length_scales_ : ndarray
         One per continuous column, fractions of its range.
     level_correlations_ : ndarray
-        ``rho_j`` per choice column: the correlation between two different levels.
+        ``rho_j`` per choice column: the correlation between two different levels (exchangeable; NaN
+        for the unrestricted form).
+    level_matrices_ : list of ndarray
+        The correlation matrix between the levels of each choice column.
     loo_ : LooResult
         Closed-form leave-one-out results (Rasmussen & Williams 2006, eq. 5.12).
     log_marginal_likelihood_ : float
@@ -210,6 +340,9 @@ class MixedSurrogate(_LevelSurrogate):
 
 
     def _check_options(self):
+        if self.correlation not in ("exchangeable", "unrestricted"):
+            raise SurrogateError(f"surrogate option correlation={self.correlation!r} is not one of exchangeable, "
+                                 "unrestricted")
         if self.kernel not in FAMILIES:
             raise SurrogateError(f"surrogate option kernel={self.kernel!r} is not one of {', '.join(FAMILIES)}")
         if not is_whole(self.restarts) or self.restarts < 0:
@@ -223,6 +356,21 @@ class MixedSurrogate(_LevelSurrogate):
         cont = [j for j, n in enumerate(self.levels_) if n == 0]
         Z[:, cont] -= 0.5
         return Z
+
+    def __init__(self, levels, kernel="matern52", restarts=defaults.RESTARTS, nugget=defaults.NUGGET, seed=0,
+                 correlation="exchangeable"):
+        super().__init__(levels, kernel, restarts, nugget, seed)
+        self.correlation = correlation
+
+    def _level_kernel(self):
+        n_cont = sum(n == 0 for n in self.levels_)
+        ls = np.full(n_cont, 0.3) if n_cont > 1 else 0.3
+        if self.correlation == "exchangeable":
+            n_cat = len(self.levels_) - n_cont
+            return LevelKernel(self.levels_, self.kernel, ls, level_scale=np.full(n_cat, 1.0) if n_cat > 1 else 1.0)
+        n_angles = sum(n * (n - 1) // 2 for n in self.levels_)
+        return UnrestrictedLevelKernel(self.levels_, self.kernel, ls,
+                                       level_angle=np.full(n_angles, 1.2) if n_angles > 1 else 1.2)
 
     def fit(self, X, y) -> "MixedSurrogate":
         """Fit by maximum marginal likelihood (Rasmussen & Williams 2006, eq. 5.8).
@@ -248,12 +396,7 @@ class MixedSurrogate(_LevelSurrogate):
         self.X_, self.y_ = X, y
         self.y_mean_, self.y_std_ = float(np.mean(y)), float(np.std(y)) or 1.0
         yn = (y - self.y_mean_) / self.y_std_
-        n_cont = sum(n == 0 for n in self.levels_)
-        n_cat = len(self.levels_) - n_cont
-        kern = (ConstantKernel(1.0, AMPLITUDE_BOUNDS)
-                * LevelKernel(self.levels_, self.kernel, np.full(n_cont, 0.3) if n_cont > 1 else 0.3,
-                              level_scale=np.full(n_cat, 1.0) if n_cat > 1 else 1.0)
-                + ConstantKernel(0.1, TREND_BOUNDS))
+        kern = ConstantKernel(1.0, AMPLITUDE_BOUNDS) * self._level_kernel() + ConstantKernel(0.1, TREND_BOUNDS)
         self.statements_ = []
         alpha = float(self.nugget)
         for _ in range(4):
@@ -281,7 +424,13 @@ class MixedSurrogate(_LevelSurrogate):
         self.gp_ = gp
         lk = gp.kernel_.k1.k2
         self.length_scales_ = np.atleast_1d(np.asarray(lk.length_scale, dtype=float))
-        self.level_correlations_ = np.exp(-np.atleast_1d(np.asarray(lk.level_scale, dtype=float)))
+        counts = [n for n in self.levels_ if n]
+        if self.correlation == "exchangeable":
+            self.level_correlations_ = np.exp(-np.atleast_1d(np.asarray(lk.level_scale, dtype=float)))
+            self.level_matrices_ = [(1 - r) * np.eye(n) + r for r, n in zip(self.level_correlations_, counts)]
+        else:
+            self.level_correlations_ = np.full(len(counts), np.nan)
+            self.level_matrices_ = lk.correlations()
         self.log_marginal_likelihood_ = float(gp.log_marginal_likelihood_value_)
         for j, rho in zip([j for j, n in enumerate(self.levels_) if n], self.level_correlations_):
             if rho > np.exp(-LEVEL_SCALE_BOUNDS[0]) - 1e-6:
