@@ -6,7 +6,7 @@ import pytest
 
 from doe.design.plans import sliced_lhs
 from doe.errors import SensitivityError
-from doe.sensitivity.levels import discrete_values, level_sobol_indices
+from doe.sensitivity.levels import discrete_values, level_effects, level_sobol_indices
 from doe.space import Parameter, Space
 from doe.surrogate.mixed import MixedSurrogate
 from doe.testing.functions import additive_levels, additive_levels_indices
@@ -77,3 +77,28 @@ def test_choice_share_from_a_surrogate_of_ten_runs_per_level():
 def test_needs_a_space():
     with pytest.raises(SensitivityError, match="needs the Space"):
         level_sobol_indices(additive_levels, None)
+
+
+def test_level_effects_of_the_additive_function():
+    # E[Y | c] = E[2 sin(pi x1)] + E[(2 x2 - 1)^2] + h(c) = 4/pi + 1/3 + h(c), h = (0, 0.8, -0.5): exact
+    # differences h(a) - h(b) because every level sees the same settings of x1, x2
+    eff = level_effects(additive_levels, SPACE, "section", points=1024, seed=4)
+    np.testing.assert_allclose(eff.difference[1, 0], 0.8, atol=1e-12)
+    np.testing.assert_allclose(eff.difference[2, 1], -1.3, atol=1e-12)
+    np.testing.assert_allclose(eff.difference_pm95, 0.0, atol=1e-9)   # nothing left to be unsure of
+    # the means carry the sampling error of E[g]: scrambled Sobol' with 1024 points, well under 0.005
+    np.testing.assert_allclose(eff.mean, 4 / np.pi + 1 / 3 + np.array([0.0, 0.8, -0.5]), atol=0.005)
+    assert np.all(eff.mean_pm95 > 0.005) and np.all(eff.mean_pm95 < 0.1)   # a Monte-Carlo bound: conservative
+
+
+def test_level_effects_from_a_surrogate_cover_the_truth():
+    U, slice_of = sliced_lhs([8, 8, 8], 2, seed=5)
+    X = np.column_stack([U, slice_of])
+    gp = MixedSurrogate((0, 0, 3), seed=0).fit(X, additive_levels(X))
+    eff = level_effects(lambda Z: gp.predict(SPACE.to_unit(Z)), SPACE, "section", seed=1,
+                        paths=lambda Z, n, s: gp.sample_paths(SPACE.to_unit(Z), n, s))
+    truth = np.subtract.outer([0.0, 0.8, -0.5], [0.0, 0.8, -0.5])
+    assert np.all(np.abs(eff.difference - truth) <= eff.difference_pm95 + 1e-9)    # 95 % intervals hold here
+    assert np.all(eff.difference_pm95[~np.eye(3, dtype=bool)] < 0.1)              # and say something
+    with pytest.raises(SensitivityError, match="'x1' is not a choice knob"):
+        level_effects(additive_levels, SPACE, "x1")
