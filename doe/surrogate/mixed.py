@@ -468,6 +468,41 @@ class MixedSurrogate(_LevelSurrogate):
         return mean * self.y_std_ + self.y_mean_, std * self.y_std_
 
 
+    def to_dict(self) -> dict:
+        """Options, hyperparameters and scaling as plain JSON values (the runs go to the NPZ file)."""
+        if not hasattr(self, "gp_"):
+            raise NotFittedError("this surrogate is not fitted yet; call fit(X, y) first")
+        return {"kind": "mixed", "levels": list(self.levels_), "kernel": self.kernel, "correlation": self.correlation,
+                "restarts": int(self.restarts), "nugget": float(self.nugget), "seed": int(self.seed),
+                "alpha": float(self.gp_.alpha), "theta": [float(t) for t in self.gp_.kernel_.theta],
+                "statements": list(self.statements_)}
+
+    @classmethod
+    def from_dict(cls, record: dict, X, y) -> "MixedSurrogate":
+        """Rebuild a fitted surrogate from :meth:`to_dict` and its runs, without optimising."""
+        try:
+            model = cls(record["levels"], record["kernel"], record["restarts"], record["nugget"], record["seed"],
+                        record["correlation"])
+            model.levels_ = model._check_options()
+            theta, alpha = np.array(record["theta"], dtype=float), float(record["alpha"])
+            statements = [str(v) for v in record["statements"]]
+        except (KeyError, TypeError, ValueError) as exc:
+            raise SurrogateError(f"the saved mixed surrogate record is incomplete or malformed ({exc!r})") from exc
+        X = model._check_points(X, model.levels_)
+        y = np.asarray(y, dtype=float).ravel()
+        model.X_, model.y_ = X, y
+        model.y_mean_, model.y_std_ = float(np.mean(y)), float(np.std(y)) or 1.0
+        kern = ConstantKernel(1.0, AMPLITUDE_BOUNDS) * model._level_kernel() + ConstantKernel(0.1, TREND_BOUNDS)
+        if len(theta) != len(kern.theta):
+            raise SurrogateError(f"the saved hyperparameters ({len(theta)}) do not fit this kernel ({len(kern.theta)})")
+        gp = GaussianProcessRegressor(kern.clone_with_theta(theta), alpha=alpha, optimizer=None, normalize_y=False)
+        with threadpool_limits(limits=1, user_api="blas"):
+            gp.fit(model._scaled(X), (y - model.y_mean_) / model.y_std_)
+        model.statements_ = []
+        model._adopt(gp, (y - model.y_mean_) / model.y_std_)
+        model.statements_ = statements
+        return model
+
     def sample_paths(self, X, n_paths: int, seed=0) -> np.ndarray:
         """Joint posterior draws of the response at the points ``X`` (Cholesky of the posterior covariance).
 
@@ -529,7 +564,6 @@ class SeparateSurrogates(_LevelSurrogate):
         y = np.asarray(y, dtype=float).ravel()
         Xc, keys = self._split(X)
         self.models_ = {}
-        predicted, std = np.empty(len(y)), np.empty(len(y))
         for key in sorted(set(keys)):
             rows = [i for i, k in enumerate(keys) if k == key]
             model = ResponseSurrogate(kernel=self.kernel, trend="constant", noise="fixed", restarts=self.restarts,
@@ -537,12 +571,48 @@ class SeparateSurrogates(_LevelSurrogate):
             if len(model.y_) != len(rows):
                 raise SurrogateError(f"level combination {key} has repeated runs: merge or drop them first")
             self.models_[key] = model
+        self._set_loo(keys, y)
+        return self
+
+    def _set_loo(self, keys, y) -> None:
+        """Every run's leave-one-out result from its own combination's surrogate, in the runs' order."""
+        predicted, std = np.empty(len(y)), np.empty(len(y))
+        for key, model in self.models_.items():
+            rows = [i for i, k in enumerate(keys) if k == key]
             predicted[rows], std[rows] = model.loo_.predicted, model.loo_.std
         total = float(np.sum((y - y.mean()) ** 2))
         resid = y - predicted
         self.loo_ = LooResult(y.copy(), predicted, std, 1.0 - float(np.sum(resid**2)) / total if total > 0
                               else float("nan"), float(np.sqrt(np.mean(resid**2))))
-        return self
+
+    def to_dict(self) -> dict:
+        """Options and each level combination's surrogate record (see :meth:`ResponseSurrogate.to_dict`)."""
+        if not hasattr(self, "models_"):
+            raise NotFittedError("these surrogates are not fitted yet; call fit(X, y) first")
+        return {"kind": "separate", "levels": list(self.levels_), "kernel": self.kernel,
+                "restarts": int(self.restarts), "nugget": float(self.nugget), "seed": int(self.seed),
+                "models": [{"levels": list(k), "record": m.to_dict()} for k, m in self.models_.items()]}
+
+    @classmethod
+    def from_dict(cls, record: dict, X, y) -> "SeparateSurrogates":
+        """Rebuild from :meth:`to_dict` and the runs, without optimising."""
+        try:
+            model = cls(record["levels"], record["kernel"], record["restarts"], record["nugget"], record["seed"])
+            model.levels_ = _level_counts(model.levels)
+            saved = {tuple(int(v) for v in m["levels"]): m["record"] for m in record["models"]}
+        except (KeyError, TypeError, ValueError) as exc:
+            raise SurrogateError(f"the saved per-level surrogates are incomplete or malformed ({exc!r})") from exc
+        X = model._check_points(X, model.levels_)
+        y = np.asarray(y, dtype=float).ravel()
+        Xc, keys = model._split(X)
+        if set(keys) != set(saved):
+            raise SurrogateError("the runs' level combinations differ from the saved surrogates'")
+        model.models_ = {}
+        for key in sorted(saved):
+            rows = [i for i, k in enumerate(keys) if k == key]
+            model.models_[key] = ResponseSurrogate.from_dict(saved[key], Xc[rows], y[rows])
+        model._set_loo(keys, y)
+        return model
 
     def predict(self, X, return_std=False):
         """Each row predicted by its level combination's surrogate (a combination never fitted is an error)."""
