@@ -210,3 +210,10 @@ def test_saved_separate_surrogates_rebuild():
     np.testing.assert_allclose(back.loo_.predicted, sep.loo_.predicted, rtol=1e-9)
     with pytest.raises(SurrogateError, match="level combinations differ"):
         SeparateSurrogates.from_dict(sep.to_dict(), X[X[:, 2] < 2], y[X[:, 2] < 2])
+
+
+def test_plain_statements_at_the_bounds():
+    X, y = _sliced(8, 1, column=2)
+    assert any("share almost nothing" in t for t in MixedSurrogate((0, 0, 3)).fit(X, y).statements_)
+    flat = MixedSurrogate((0, 0, 3)).fit(X, np.sin(6 * X[:, 1]) + X[:, 2])      # nothing along column 0
+    assert any(t.startswith("column 0: its length scale is at the upper bound") for t in flat.statements_)

@@ -432,9 +432,7 @@ class MixedSurrogate(_LevelSurrogate):
             self.level_correlations_ = np.full(len(counts), np.nan)
             self.level_matrices_ = lk.correlations()
         self.log_marginal_likelihood_ = float(gp.log_marginal_likelihood_value_)
-        for j, rho in zip([j for j, n in enumerate(self.levels_) if n], self.level_correlations_):
-            if rho > np.exp(-LEVEL_SCALE_BOUNDS[0]) - 1e-6:
-                self.statements_.append(f"choice column {j}: its levels behave as one surface (correlation {rho:.3f})")
+        self.statements_ += self._bound_statements()
         # Rasmussen & Williams 2006, eq. 5.12: residual = [K^-1 y]_i / [K^-1]_ii, var = 1 / [K^-1]_ii
         dinv = np.diag(cho_solve((gp.L_, True), np.eye(len(yn))))
         resid = gp.alpha_ / dinv * self.y_std_
@@ -442,6 +440,22 @@ class MixedSurrogate(_LevelSurrogate):
         q2 = 1.0 - float(np.sum(resid**2)) / total if total > 0 else float("nan")
         self.loo_ = LooResult(self.y_.copy(), self.y_ - resid, np.sqrt(1.0 / dinv) * self.y_std_, q2,
                               float(np.sqrt(np.mean(resid**2))))
+
+    def _bound_statements(self) -> list:
+        """Plain notes on hyperparameters at their bounds (the optimiser's warnings say the same less plainly)."""
+        notes = []
+        cont = [j for j, n in enumerate(self.levels_) if n == 0]
+        for j, ls in zip(cont, np.broadcast_to(self.length_scales_, (len(cont),))):
+            if ls >= 0.99 * LENGTH_SCALE_BOUNDS[1]:
+                notes.append(f"column {j}: its length scale is at the upper bound: the response hardly changes "
+                             "along it over the runs")
+        for j, rho in zip([j for j, n in enumerate(self.levels_) if n], self.level_correlations_):
+            if rho > np.exp(-LEVEL_SCALE_BOUNDS[0]) - 1e-6:
+                notes.append(f"choice column {j}: its levels behave as one surface (correlation {rho:.3f})")
+            elif rho < 0.01:
+                notes.append(f"choice column {j}: its levels share almost nothing (correlation {rho:.1e}); "
+                             "separate surrogates per level may do better")
+        return notes
 
     def predict(self, X, return_std=False):
         """Posterior mean (and standard deviation) of the response, in its unit.
