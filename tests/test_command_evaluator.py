@@ -138,3 +138,18 @@ def test_torn_extras_line_is_skipped(setup):
     side.write_text(side.read_text() + '{"run_id": "r001", "iterati')
     frame = read_results(out, load_study(study_file)).frame
     assert len(frame) == 8 and frame["iterations"].notna().all()
+
+
+def test_extras_of_a_recorded_rans_result():
+    """The case driver's own result.json (a real run, tests/data/cfd): its record is kept, its nested parts not."""
+    import json
+    from pathlib import Path
+
+    from doe.runs.evaluators.command import plain_extras
+
+    data = json.loads((Path(__file__).parent / "data" / "cfd" / "result_medium_r001.json").read_text())
+    responses = ["cla_total", "cda_total", "cla_front", "cla_rear", "cla_wing", "cla_body"]
+    extra = plain_extras(data, responses)
+    assert extra["converged"] == 1 and extra["iterations"] == data["iterations"] and extra["cells"] == data["cells"]
+    assert extra["cla_total_std"] == data["cla_total_std"] and extra["solver_version"] == data["solver_version"]
+    assert not set(extra) & {*responses, "drift", "mesh_settings", "mesh_warnings", "settings", "point_model_units"}
