@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import math
 import shutil
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -450,10 +450,11 @@ def _effect_figures(study, inputs, blocks, pick, folder) -> list:
     for r in study.responses:
         if r.name not in sset.responses:
             continue
-        figs = [F.main_effects(r.name, r.unit, sset.predict, study.space, folder)]
+        predict = replace(sset, models={r.name: sset.models[r.name]}).predict   # only the response drawn
+        figs = [F.main_effects(r.name, r.unit, predict, study.space, folder)]
         px, py = _strongest_two(study, blocks, r.name)
         if px and py:
-            figs.append(F.response_map(r.name, r.unit, sset.predict, study.space, px, py, fixed,
+            figs.append(F.response_map(r.name, r.unit, predict, study.space, px, py, fixed,
                                        inputs.results.frame, folder, pick=pick))
         groups.append({"response": r.name, "unit": r.unit, "open": r.name == _objective(study, inputs),
                        "figures": figs})

@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 from scipy.stats import qmc
+from threadpoolctl import threadpool_limits
 
 from ..errors import DoeError
 from ..space import Space
@@ -189,9 +190,10 @@ def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, sa
     X = X[space.feasible(X)]
     if len(X) == 0:
         raise DoeError("trade-off: no candidate setting meets the constraints")
-    if refine:
-        X = np.unique(np.vstack([X, refine_points(predict, space, responses, goals, X, targets)]), axis=0)
-    pred = predict_checked(predict, X, responses)
+    with threadpool_limits(limits=1, user_api="blas"):  # many small predictions: BLAS threads only contend
+        if refine:
+            X = np.unique(np.vstack([X, refine_points(predict, space, responses, goals, X, targets)]), axis=0)
+        pred = predict_checked(predict, X, responses)
     keep = nondominated(_minimised(pred, responses, goals, targets))
     frame = pd.DataFrame(X[keep], columns=space.names)
     for name in responses:
