@@ -55,10 +55,16 @@ key                         meaning (unit)
 ``mean``, ``std``           mean and standard deviation of the objective under setup scatter
 ``robust_value``            ``mean - k std`` (maximise) or ``mean + k std`` (minimise)
 ``model_std``               surrogate standard deviation of the objective at the setting
-``limits``                  list of ``{"response", "mean", "std", "probability", "met"}``:
-                            mean/std under scatter (response unit), probability that the
-                            limit holds (-), and whether the point meets what it was asked
-``feasible``                linear constraints and limits as asked are met (bool)
+``limits``                  list of ``{"response", "value_at_setting", "mean", "std",
+                            "probability", "met_at_setting", "met_with_probability"}``: the
+                            surrogate mean at the exact setting, mean/std under scatter
+                            (response unit), the probability that the limit holds under
+                            scatter and surrogate error (-), whether it holds at the exact
+                            setting (bool), and whether that probability reaches
+                            ``method.probability_target`` (bool)
+``feasible``                the linear constraints hold and every limit is met as this pick
+                            is judged (bool): ``met_at_setting`` for the nominal pick,
+                            ``met_with_probability`` for the robust pick and the baseline
 ``nearest_run``             distance to the nearest run in the unit cube (-), null without runs
 ``flag``                    true when the point needs confirming runs; ``flag_reason`` says why
 ``confirm_runs``            list of ``{parameter: value}``: the point and its +-1 tolerance
@@ -356,11 +362,12 @@ def _describe_point(problem: _Problem, x: np.ndarray, robust: bool, runs_X, vehi
         s = spreads[lim.response]
         prob = float(s.probability(lim.min, lim.max)[0])
         at = float(exact[lim.response][0][0])
-        met = prob >= problem.probability if robust else (
-            (lim.max is None or at <= lim.max) and (lim.min is None or at >= lim.min))
-        ok &= bool(met)
-        limits.append({"response": lim.response, "mean": float(s.mean[0]), "std": float(s.std[0]),
-                       "probability": prob, "met": bool(met)})
+        at_setting = (lim.max is None or at <= lim.max) and (lim.min is None or at >= lim.min)
+        likely = prob >= problem.probability
+        ok &= bool(likely if robust else at_setting)
+        limits.append({"response": lim.response, "value_at_setting": at, "mean": float(s.mean[0]),
+                       "std": float(s.std[0]), "probability": prob, "met_at_setting": bool(at_setting),
+                       "met_with_probability": bool(likely)})
     model_std = float(exact[problem.objective][1][0])
     near, typical = _nearest_run(problem.space, x[None, :], runs_X)
     reasons = []
