@@ -364,6 +364,13 @@ def _glance(study, inputs, blocks, robust, vehicle) -> list:
     return lines
 
 
+def _chance(p) -> str:
+    """A probability in words a driver reads at once: "of 0.48", "under 0.01", "over 0.99"."""
+    if p is None:
+        return "not known"
+    return "under 0.01" if p < 0.005 else "over 0.99" if p > 0.995 else f"of {p:.2f}"
+
+
 def _gap(diff: float, std_a, std_b) -> str:
     """``|diff| ± hypot(std_a, std_b) s`` (the stds of two lap times taken as independent), or ``|diff| s``."""
     half = math.hypot(std_a, std_b) if std_a is not None and std_b is not None else None
@@ -392,11 +399,13 @@ def _worth_lines(rob: dict) -> list:
                      "taken as independent: an overstatement when the settings are close)")
         lines.append(text + ".")
         base = rob.get("baseline")
+        bounds = {lim["response"]: _bound_words(lim["response"], lim.get("min"), lim.get("max")) + (
+            f" {lim['unit']}" if lim.get("unit") not in (None, "", "-") else "") for lim in rob.get("limits", [])}
         broken = [lim for lim in (base or {}).get("limits", []) if not lim.get("met_with_probability", True)]
         if broken:
             lines.append("The car as it runs now does not keep every limit: " + "; ".join(
-                f"{figure_words(lim['response'])} holds with a chance of {fmt(lim.get('probability'), 2)}"
-                for lim in broken) + " (limits in the recommended setting's table).")
+                f"{bounds.get(lim['response'], lim['response'])} holds with a chance {_chance(lim.get('probability'))}"
+                for lim in broken) + ".")
     if rob.get("balance_change"):
         lines.append("How the balance moves: " + rob["balance_change"]["sentence"])
     return lines
