@@ -28,6 +28,9 @@ STUDY = study_text("rep-test", [("x1", "deg", 0.0, 10.0, {"tolerance": 0.2}), ("
     [plan]
     seed = 2
 
+    [sensitivity]
+    base_samples = 2048      # the report's tests read the indices, not their last digit: test speed
+
     [robust]
     samples = 32
     limits = [ { response = "z", max = 0.9 } ]
