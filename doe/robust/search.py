@@ -132,8 +132,8 @@ DEFAULT_MAXITER = 100
 #: Independent differential-evolution runs of the nominal search (the best is kept).
 DEFAULT_RESTARTS = 3
 #: Independent runs of the robust search. It starts from the nominal optimum and the best points of both
-#: pilots, so further runs from random pilot points rarely find more: on the demo study the two extra
-#: runs ended worse than the first and doubled the search's cost (reports/benchmarks.md, timing section).
+#: pilots, so further runs from random pilot points rarely find more: on the demo study two more runs
+#: doubled the search's cost for no better point (reports/benchmarks.md, robust section).
 DEFAULT_ROBUST_RESTARTS = 1
 #: Sobol' pilot points before the nominal and the robust search.
 NOMINAL_PILOT, ROBUST_PILOT = 4096, 256
