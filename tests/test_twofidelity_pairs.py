@@ -210,8 +210,9 @@ def test_forrester_random_designs_find_the_likelihood_peak():
     # Currin 0.20, 0.07, 0.14, 0.09 (RMSE 0.15-0.21 against 1.0-2.1; std of f 2.57);
     # Park 0.36, 0.30, 0.37, 0.35 (RMSE 0.15-0.17 against 0.43-0.49; std of f 4.61).
     # Bounds: about 2x the worst measured ratio for each seed and 1.5-2x the median.
-    ("currin", 40, 8, 0.4, 0.2),
-    pytest.param("park", 60, 10, 0.6, 0.45, marks=pytest.mark.slow),   # Currin checks the same in the fast set
+    # both in make bench: the published Forrester design (above) checks that cheap runs cut the error in the fast set
+    pytest.param("currin", 40, 8, 0.4, 0.2, marks=pytest.mark.slow),
+    pytest.param("park", 60, 10, 0.6, 0.45, marks=pytest.mark.slow),
 ])
 def test_cheap_runs_cut_the_error_at_equal_expensive_runs(name, n_low, n_high, worst_ratio, median_ratio):
     # Pairs of Xiong, Qian & Wu 2013 (Technometrics 55:37), as given by Surjanovic & Bingham's VLSE.
