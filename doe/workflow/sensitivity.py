@@ -86,13 +86,16 @@ def surrogate_callables(surrogates):
     """``(model, paths)`` for :func:`~doe.sensitivity.sobol.sobol_indices` from a fitted ``SurrogateSet``.
 
     ``model`` is the posterior mean of every response (no standard deviation
-    is computed); ``paths`` the set's joint posterior draws.
+    is computed); ``paths`` the set's joint posterior draws. Both come from
+    what predicts each response: the mixture over kernel settings when it is
+    used, so the intervals carry the uncertainty of those settings too.
     """
     space = surrogates.space
 
     def model(X):
         U = space.to_unit(X)
-        return {r: np.asarray(m.predict(U, return_std=False), dtype=float) for r, m in surrogates.models.items()}
+        return {r: np.asarray(surrogates.predictor(r).predict(U, return_std=False), dtype=float)
+                for r in surrogates.models}
 
     def paths(X, n_paths, seed):
         return surrogates.sample_paths(X, n_paths, seed)
