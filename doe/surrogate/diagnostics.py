@@ -207,7 +207,7 @@ def response_report(model, sset, name: str) -> dict:
     q2_low = sset.q2_low(name)
     unc = sset.uncertainty.get(name, {"method": sset.method(name), "reason": ""})
     names = _names(model)
-    spans = sset.space.upper - sset.space.lower
+    spans = getattr(model, "spans_", sset.space.upper - sset.space.lower)   # a level surrogate: its continuous knobs
     ids = list(sset.run_ids)
     var_y = float(np.var(model.y_)) if len(model.y_) else 0.0
     noise_share = float(model._parts()["noise"] * model.y_std_**2 / var_y) if model.learn_noise_ and var_y > 0 else 0.0

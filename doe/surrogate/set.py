@@ -27,6 +27,7 @@ from ..seeds import child_seeds
 from .diagnostics import response_report
 from .gp import LooResult, ResponseSurrogate
 from .hyperposterior import HyperPosterior, q2_draws
+from .levelset import KIND as LEVELS_KIND, LevelResponseSurrogate
 from .twofidelity import TwoFidelitySurrogate
 
 __all__ = ["SurrogateSet", "load_surrogates", "prediction_frame", "uncertainty_record", "FORMAT", "Q2_QUANTILE"]
@@ -273,6 +274,8 @@ def load_surrogates(folder, study) -> SurrogateSet:
         if rec.get("fidelity") == "two":
             mine = {k[:-len(str(i))]: v for k, v in arrays.items() if k.endswith(str(i)) and k[:-len(str(i))].isalpha()}
             models[name] = TwoFidelitySurrogate.from_dict(rec, mine, study.space.names)
+        elif rec.get("surrogate") == LEVELS_KIND:
+            models[name] = LevelResponseSurrogate.from_dict(rec, arrays[f"X{i}"], arrays[f"y{i}"])
         else:
             models[name] = ResponseSurrogate.from_dict(rec, arrays[f"X{i}"], arrays[f"y{i}"], study.space.names)
         units[name], goals[name], reasons[name] = rec["unit"], rec["goal"], rec.get("noise_reason", "")

@@ -70,8 +70,10 @@ def fit_surrogates(study, results, seed=0, low_results=None, **options) -> Surro
     paths and verdicts then use the mixture over its draws unless (``auto``)
     the runs pin the kernel's settings down. The reason is stated per response.
     """
-    study.space.refuse_choices("fitting surrogates (doe fit)")
     settings = _settings(study, options)
+    if study.space.choices:
+        from .choices import fit_level_surrogates       # the branch for choice knobs (no import cycle)
+        return fit_level_surrogates(study, results, settings, seed)
     ok = results.ok
     if len(ok) == 0:
         raise SurrogateError(f"{results.path or 'results'}: no ok runs to fit")

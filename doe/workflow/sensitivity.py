@@ -204,9 +204,12 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
     -------
     SobolResult
     """
-    study.space.refuse_choices("sensitivity analysis (doe sensitivity)")
+    from .choices import check_level_route, study_level_sensitivity, wants_level_sensitivity   # choice knobs
+
     cfg = study.sensitivity
     seed = study.plan.seed if seed is None else seed
+    check_level_route(study, direct, around)
+    levels = wants_level_sensitivity(study, direct, around)
     inputs = study_inputs(study, around)
     _warn_about(study, inputs, direct)
     options = dict(base_samples=base_samples if base_samples is not None else cfg.base_samples,
@@ -228,13 +231,18 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
             raise SensitivityError(f"{study.name}: the surrogate route needs results (or use the direct route)")
         surrogates = study_surrogates(study, results, seed=seed, progress=False,
                                       say=lambda line: warnings.warn(line, stacklevel=3))   # runs are said, not hidden
+    if levels:
+        return study_level_sensitivity(study, surrogates, options, cfg.paths)
     model, paths = surrogate_callables(surrogates)
     return sobol_indices(model, inputs, paths=paths, n_paths=cfg.paths, **options)
 
 
 def study_sensitivity_json(study, result: SobolResult) -> dict:
     """The sensitivity JSON of a study, with response units in the statements."""
-    return to_dict(result, units={r.name: r.unit for r in study.responses})
+    data = to_dict(result, units={r.name: r.unit for r in study.responses})
+    if getattr(result, "effects", None):          # choice knobs: what each level is worth (doe.workflow.choices)
+        data["_meta"]["levels"] = result.levels_json()
+    return data
 
 
 def study_screening(study, *, trajectories: int = 20, levels: int = 4, seed: int | None = None,
