@@ -19,8 +19,8 @@ from doe.surrogate.set import load_surrogates
 
 ROOT = Path(__file__).resolve().parents[1]
 
-# A cut-down copy of studies/demo_choices.toml (invented car and class): two sections, the flap on or off, two
-# continuous knobs, 16 runs (4 per level combination) and cheap analysis settings, so the chain runs in seconds.
+# A cut-down copy of studies/demo_choices.toml (invented car and class): two sections, the flap on or off, a
+# continuous knob and a stepped one (a flap bracket with holes every 10 deg), 16 runs (4 per level combination) and cheap analysis settings, so the chain runs in seconds.
 HEAD = """
 [study]
 name = "choice-chain"
@@ -43,8 +43,7 @@ tolerance = 0.25
 [[parameters]]
 name = "flap_angle"
 unit = "deg"
-low = 10.0
-high = 40.0
+values = [10, 20, 30, 40]
 tolerance = 0.5
 
 [[responses]]
@@ -118,7 +117,7 @@ def test_builtin_run_fits_level_surrogates_and_reloads_them(builtin_run):
     from doe.runs.results import read_results
     table = read_results(out / "results.csv", study)
     fresh = fit_surrogates(study, table, seed=study.plan.seed)
-    X = np.array([[0, 0, 3.3, 22.0], [1, 1, 9.1, 37.0], [1, 0, 0.5, 10.0]])
+    X = np.array([[0, 0, 3.3, 20.0], [1, 1, 9.1, 40.0], [1, 0, 0.5, 10.0]])
     for name in study.response_names:
         np.testing.assert_allclose(sset.predict(X)[name][0], fresh.predict(X)[name][0], rtol=1e-9, atol=1e-12)
 
@@ -146,11 +145,13 @@ def test_builtin_run_robust_searches_each_level_and_compares_them(builtin_run):
     for row in rob["level_comparison"]:
         assert row["robust_value"] >= best["robust_value"]
         assert row["point"]["wing_aoa"] <= 12.0 and "wing_section" not in row["point"]
+        assert row["point"]["flap_angle"] in (10.0, 20.0, 30.0, 40.0)      # a stepped knob is set on its steps
     # the best setting holds the choices as level indices in the study's units
     assert rob["robust"]["point"]["wing_section"] in (0.0, 1.0)
     tradeoff = (builtin_run / "out" / "tradeoff.csv").read_text().splitlines()
     assert tradeoff[0].startswith("wing_section,flap,wing_aoa,flap_angle,cla_total")
     assert any("high_lift" in line for line in tradeoff[1:])
+    assert {float(line.split(",")[3]) for line in tradeoff[1:]} <= {10.0, 20.0, 30.0, 40.0}
 
 
 def test_builtin_run_report_answers_which_level_and_where_with_the_files_numbers(builtin_run):
