@@ -20,7 +20,7 @@ conservative).
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -29,10 +29,10 @@ from threadpoolctl import threadpool_limits
 from ..errors import DoeError
 from ..seeds import child_seeds
 from ..space import Space
-from .search import find_settings
+from .search import PointResult, find_settings
 from .tradeoff import _minimised, nondominated, tradeoff_set
 
-__all__ = ["LevelSpace", "LevelRobustResult", "find_settings_per_level", "tradeoff_per_level", "Z95"]
+__all__ = ["LevelSpace", "LevelPointResult", "LevelRobustResult", "find_settings_per_level", "tradeoff_per_level", "Z95"]
 
 #: Two-sided 95 % normal quantile.
 Z95 = 1.959963984540054
@@ -85,6 +85,25 @@ class LevelSpace:
 
 
 @dataclass(frozen=True)
+class LevelPointResult(PointResult):
+    """A :class:`~doe.robust.search.PointResult` over the whole space: choices as level indices in ``point``.
+
+    Attributes
+    ----------
+    levels : dict of str to str
+        ``{choice: level name}`` (also in :meth:`to_dict`).
+    """
+
+    levels: dict = field(default_factory=dict)
+
+    def summary(self, label: str, objective: str, unit: str) -> str:
+        """As :meth:`PointResult.summary`, the choices named instead of numbered."""
+        settable = {k: v for k, v in self.point.items() if k not in self.levels}
+        line = PointResult.summary(replace(self, point=settable), label, objective, unit)
+        return line.replace(f"{label}: ", f"{label}: {', '.join(f'{k} {v}' for k, v in self.levels.items())}, ", 1)
+
+
+@dataclass(frozen=True)
 class LevelRobustResult:
     """The robust search of every level combination, and the best of them.
 
@@ -116,10 +135,11 @@ class LevelRobustResult:
         return self.results[self.best].unit
 
     def _whole(self, rec, combo):
-        """A PointResult of a combination with the choices in its point (level indices, the study's units)."""
+        """A :class:`LevelPointResult` of a combination: the choices in its point (level indices) and named."""
         point = dict(zip(self.levels.space.names, self.levels.full([[rec.point[n] for n in
                                                                        self.levels.settable.names]], combo)[0]))
-        return replace(rec, point={k: float(v) for k, v in point.items()})
+        return LevelPointResult(**{**vars(rec), "point": {k: float(v) for k, v in point.items()}},
+                                levels=self.levels.names(combo))
 
     @property
     def nominal(self):
@@ -161,7 +181,7 @@ class LevelRobustResult:
         out = best.to_dict()
         names = self.levels.names(self.combos[self.best])
         for key, rec in (("nominal", self.nominal), ("robust", self.robust)):
-            out[key] = {**rec.to_dict(best.unit), "levels": names}
+            out[key] = rec.to_dict(best.unit)
         out["per_level"] = [{"levels": self.levels.names(c), "nominal": r.nominal.to_dict(r.unit),
                              "robust": r.robust.to_dict(r.unit)} for c, r in zip(self.combos, self.results)]
         out["level_comparison"] = self.comparison()
