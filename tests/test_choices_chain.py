@@ -20,7 +20,8 @@ from doe.surrogate.set import load_surrogates
 ROOT = Path(__file__).resolve().parents[1]
 
 # A cut-down copy of studies/demo_choices.toml (invented car and class): two sections, the flap on or off, a
-# continuous knob and a stepped one (a flap bracket with holes every 10 deg), 16 runs (4 per level combination) and cheap analysis settings, so the chain runs in seconds.
+# continuous knob and a stepped one (a flap bracket with holes every 10 deg), 16 runs (4 per level combination)
+# and cheap analysis settings, so the chain runs in seconds.
 HEAD = """
 [study]
 name = "choice-chain"
@@ -188,3 +189,18 @@ def test_recorded_unknown_level_is_one_line_with_file_line_and_column(builtin_ru
     assert main(["run", str(study), "--out", str(tmp_path / "out"), "--no-progress"]) == 2
     err = [line for line in capsys.readouterr().err.splitlines() if "error" in line]
     assert len(err) == 1 and "recorded.csv:4: column 'wing_section'" in err[0] and "naca9999" in err[0], err
+
+
+def test_fit_predicts_at_points_given_with_level_names(builtin_run, tmp_path):
+    study = builtin_run / "study.toml"
+    (tmp_path / "pts.csv").write_text("run_id,wing_section,flap,wing_aoa,flap_angle\n"
+                                      "p1,naca2412,on,5,20\np2,sections/high_lift_invented.dat,off,11,40\n")
+    assert main(["fit", str(study), "--results", str(builtin_run / "out" / "results.csv"), "--out",
+                 str(tmp_path / "s"), "--predict", str(tmp_path / "pts.csv"), "--predict-out",
+                 str(tmp_path / "pred.csv")]) == 0
+    import pandas as pd
+    pred = pd.read_csv(tmp_path / "pred.csv")
+    assert list(pred["wing_section"]) == ["naca2412", "sections/high_lift_invented.dat"]
+    sset = load_surrogates(tmp_path / "s", load_study(study))
+    mean = sset.predict(np.array([[0, 0, 5, 20], [1, 1, 11, 40]]))["cla_total"][0]
+    np.testing.assert_allclose(pred["cla_total_mean"], mean, rtol=1e-9)

@@ -392,7 +392,7 @@ def build_report(inputs: ReportInputs, folder) -> Path:
     levels = None
     if study.space.choices:                 # choice knobs: per-level curves, tables and answer (doe.report.levels)
         from . import levels as LV
-        levels = LV.level_block(study, inputs.robust, inputs.sensitivity)
+        levels = LV.level_block(study, inputs.robust, inputs.sensitivity, fmt)
     if inputs.surrogates is not None:
         figs["effects"] = (LV.level_effect_figures(study, inputs.surrogates, blocks, pick, frame, folder)
                            if study.space.choices else _effect_figures(study, inputs, blocks, pick, folder))
@@ -414,8 +414,8 @@ def build_report(inputs: ReportInputs, folder) -> Path:
     html = env.get_template("report.html.j2").render(
         study=study, made=f"{datetime.now(timezone.utc):%Y-%m-%d %H:%M} UTC", version=__version__,
         results={"summary": inputs.results.summary()}, sections=sections,
-        glance=_glance(study, inputs, blocks, robust, vehicle) + (LV.level_glance(study, inputs.robust) if levels
-                                                                   else []), cautions=CAUTIONS, levels=levels,
+        glance=_glance(study, inputs, blocks, robust, vehicle)
+        + (LV.level_glance(study, inputs.robust, fmt) if levels else []), cautions=CAUTIONS, levels=levels,
         limits=MODEL_LIMITS if study.evaluator.kind == "builtin" else (),
         question=_question(study), goal_words=GOAL_WORDS, runs_text=_runs_text(inputs),
         plan_quality=pq.get("quality"), plan_quality_method=_plan_method(pq), figs=figs, failed_runs=failed,

@@ -3,14 +3,14 @@
 Built from the files of the study (``robust.json``'s ``per_level`` and
 ``level_comparison``, ``sensitivity.json``'s ``_meta.levels``) and the
 fitted surrogates (the per-level effect curves), so every number on the page
-is one of those files' numbers, formatted.
+is one of those files' numbers, formatted by the report's own ``fmt`` (passed in by
+:mod:`doe.report.build`, which imports this module).
 """
 from __future__ import annotations
 
 import numpy as np
 
 from . import figures as F
-from .build import fmt
 from .style import new_figure
 
 __all__ = ["level_block", "level_glance", "level_effect_figures"]
@@ -20,7 +20,7 @@ def _combo(levels: dict) -> str:
     return ", ".join(f"{k} {v}" for k, v in levels.items())
 
 
-def level_glance(study, rob: dict | None) -> list:
+def level_glance(study, rob: dict | None, fmt) -> list:
     """One "at a glance" line answering which level combination, at what setting, and by how much."""
     if not rob or "level_comparison" not in rob:
         return []
@@ -44,13 +44,13 @@ def level_glance(study, rob: dict | None) -> list:
     return [line]
 
 
-def level_block(study, rob: dict | None, sensitivity: dict | None) -> dict | None:
+def level_block(study, rob: dict | None, sensitivity: dict | None, fmt) -> dict | None:
     """Tables of the best setting per level combination and of what one level is worth over another."""
     if not study.space.choices:
         return None
     out = {"best": None, "average": None}
     if rob and "level_comparison" in rob:
-        out["best"] = _best_table(study, rob)
+        out["best"] = _best_table(study, rob, fmt)
     levels = (sensitivity or {}).get("_meta", {}).get("levels")
     if levels:
         rows = []
@@ -67,7 +67,7 @@ def level_block(study, rob: dict | None, sensitivity: dict | None) -> dict | Non
     return out
 
 
-def _best_table(study, rob: dict) -> dict:
+def _best_table(study, rob: dict, fmt) -> dict:
     obj = rob["objective"]
     unit = obj.get("unit", "")
     rows = rob["level_comparison"]

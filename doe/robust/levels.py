@@ -32,7 +32,8 @@ from ..space import Space
 from .search import PointResult, find_settings
 from .tradeoff import _minimised, nondominated, tradeoff_set
 
-__all__ = ["LevelSpace", "LevelPointResult", "LevelRobustResult", "find_settings_per_level", "tradeoff_per_level", "Z95"]
+__all__ = ["LevelSpace", "LevelPointResult", "LevelRobustResult", "find_settings_per_level", "tradeoff_per_level",
+           "Z95"]
 
 #: Two-sided 95 % normal quantile.
 Z95 = 1.959963984540054

@@ -315,7 +315,12 @@ def prediction_frame(sset: SurrogateSet, points):
 
     names = sset.space.names
     out = pd.DataFrame(points[[c for c in ["run_id", *names] if c in points.columns]]).reset_index(drop=True)
-    for name, (mean, std) in sset.predict(points[names].to_numpy(dtype=float)).items():
+    # choice columns hold level names (as in plan and results files): the surrogates take level indices
+    X = np.column_stack([points[p.name].map(p.level_index).to_numpy(dtype=float)
+                         if p.levels and not pd.api.types.is_numeric_dtype(points[p.name])
+                         else points[p.name].to_numpy(dtype=float)
+                         for p in sset.space.parameters])
+    for name, (mean, std) in sset.predict(X).items():
         out[f"{name}_mean"] = mean
         out[f"{name}_std"] = std
     return out

@@ -140,7 +140,7 @@ def check_level_route(study, direct: bool, around) -> None:
                                "around")
 
 
-def study_level_sensitivity(study, surrogates, options: dict, n_paths: int) -> LevelSobolResult:
+def study_level_sensitivity(study, surrogates, model, paths, options: dict, n_paths: int) -> LevelSobolResult:
     """Sobol indices over continuous, stepped and choice knobs, and each choice's level effects.
 
     Parameters
@@ -148,6 +148,8 @@ def study_level_sensitivity(study, surrogates, options: dict, n_paths: int) -> L
     study : Study
     surrogates : SurrogateSet
         Fitted on the study's runs.
+    model, paths : callable
+        Its mean and joint posterior draws in study units (:func:`doe.workflow.sensitivity.surrogate_callables`).
     options : dict
         ``base_samples``, ``second_order``, ``responses``, ``seed`` for
         :func:`~doe.sensitivity.levels.level_sobol_indices`.
@@ -158,10 +160,7 @@ def study_level_sensitivity(study, surrogates, options: dict, n_paths: int) -> L
     -------
     LevelSobolResult
     """
-    from .sensitivity import surrogate_callables      # the sensitivity step calls here: imported when used
-
     space = study.space
-    model, paths = surrogate_callables(surrogates)
     result = level_sobol_indices(model, space, paths=paths, n_paths=n_paths, **options)
     effects = {}
     seeds = child_seeds(options.get("seed", 0), len(surrogates.models) * max(len(space.choices), 1))

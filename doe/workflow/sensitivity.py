@@ -231,9 +231,9 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
             raise SensitivityError(f"{study.name}: the surrogate route needs results (or use the direct route)")
         surrogates = study_surrogates(study, results, seed=seed, progress=False,
                                       say=lambda line: warnings.warn(line, stacklevel=3))   # runs are said, not hidden
-    if levels:
-        return study_level_sensitivity(study, surrogates, options, cfg.paths)
     model, paths = surrogate_callables(surrogates)
+    if levels:
+        return study_level_sensitivity(study, surrogates, model, paths, options, cfg.paths)
     return sobol_indices(model, inputs, paths=paths, n_paths=cfg.paths, **options)
 
 
