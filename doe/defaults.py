@@ -8,7 +8,7 @@ all take their defaults from here, so a default is changed once.
 from __future__ import annotations
 
 __all__ = ["FIT", "KERNEL", "TREND", "NOISE", "RESTARTS", "NUGGET", "SELECTION", "TARGET_Q2", "EXACT_SOURCES",
-           "LENGTH_SCALE_PRIOR", "FIDELITY", "NEXT_RUNS"]
+           "LENGTH_SCALE_PRIOR", "FIDELITY", "UNCERTAINTY", "NEXT_RUNS"]
 
 #: Kernel family (``auto``: one per response, chosen by leave-one-out error).
 KERNEL = "auto"
@@ -30,11 +30,15 @@ EXACT_SOURCES = ("builtin", "command")
 LENGTH_SCALE_PRIOR = 1.5
 #: ``auto``: two fidelities when the study has a ``[low_fidelity]`` table.
 FIDELITY = "auto"
+#: Hyperparameter uncertainty: ``mixture`` (predictions average over sampled kernel settings), ``plugin``
+#: (the fitted settings alone) or ``auto`` (the mixture unless the runs pin the settings down).
+UNCERTAINTY = "auto"
 
 #: The ``[fit]`` defaults by key.
 FIT = {"kernel": KERNEL, "trend": TREND, "noise": NOISE, "restarts": RESTARTS, "nugget": NUGGET,
        "selection": SELECTION, "target_q2": TARGET_Q2, "exact_sources": EXACT_SOURCES,
-       "length_scale_prior": LENGTH_SCALE_PRIOR, "fidelity": FIDELITY}
+       "length_scale_prior": LENGTH_SCALE_PRIOR, "fidelity": FIDELITY,
+       "uncertainty": UNCERTAINTY}
 
 #: Runs proposed by ``doe run`` and ``doe report`` when not told otherwise.
 NEXT_RUNS = 4

@@ -61,11 +61,17 @@ def test_bad_requests_are_refused(fitted):
 
 def test_stopping_rule(fitted):
     study, res, sset = fitted
-    sset.target_q2 = min(m.loo_.q2 for m in sset.models.values()) - 0.01
+    # the rule: leave-one-out q2 of what predicts each response, and the 5 % quantile of its posterior q2 draws
+    sset.target_q2 = min(min(sset.loo(n).q2, sset.q2_low(n)) for n in sset.models) - 0.01
     assert propose_runs(sset, 1, seed=0).accuracy_met
     assert "already met" in propose_runs(sset, 1, seed=0).notes[0]
     sset.target_q2 = 0.999999
     assert not propose_runs(sset, 1, seed=0).accuracy_met
+    # a response whose lower q2 quantile misses the target stops nothing, whatever its q2_loo
+    name = next(iter(sset.models))
+    sset.target_q2 = min(min(sset.loo(n).q2, sset.q2_low(n)) for n in sset.models) - 0.01
+    sset.uncertainty[name] = {**sset.uncertainty[name], "q2_low": sset.target_q2 - 0.05}
+    assert not sset.meets_target(name) and not propose_runs(sset, 1, seed=0).accuracy_met
     sset.target_q2 = 0.9
 
 

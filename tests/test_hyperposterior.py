@@ -9,8 +9,8 @@ from sklearn.gaussian_process import GaussianProcessRegressor
 
 from doe.testing import functions as tf
 from doe.errors import NotFittedError, SurrogateError
-from doe.surrogate.hyperposterior import (NUGGET, PLUGIN_RUNS_PER_PARAMETER, HyperPosterior, _Draw, _sklearn_kernel, _Target,
-                                slice_sample)
+from doe.surrogate.hyperposterior import (BAND_RATIO_MAX, COMPRESS_TOL, MEAN_SHIFT_MAX, NUGGET, PLUGIN_RUNS_PER_PARAMETER,
+                                         HyperPosterior, _Draw, _sklearn_kernel, _Target, slice_sample)
 from doe.design.plans import maximin_lhs
 
 
@@ -161,8 +161,37 @@ def test_plugin_rule_by_runs_per_parameter():
     X, y = _data(2 * PLUGIN_RUNS_PER_PARAMETER, 2)
     big = HyperPosterior(seed=0).fit(X, y)
     assert big.method_ == "plugin" and len(big.thetas_) == 1 and "per parameter" in big.reason_
-    small = HyperPosterior(n_draws=4, thin=1, burn=2, seed=0).fit(X[:12], y[:12])
+    small = HyperPosterior(n_draws=4, thin=1, burn=2, seed=0).fit(X[:6], y[:6])
     assert small.method_ == "mixture" and len(small.thetas_) == 4 and "uncertain" in small.reason_
+
+
+def test_auto_keeps_the_mode_only_when_plausible_settings_barely_move_the_band():
+    # the rule (band ratio <= 1.2 and mean shift <= 0.2 band widths, Laplace draws) decides, and says so
+    X, y = _data(40, 2)
+    for n in (6, 12):
+        hp = HyperPosterior(n_draws=4, thin=1, burn=2, seed=0).fit(X[:n], y[:n])
+        band, shift = hp.spread_
+        pinned = band <= BAND_RATIO_MAX and shift <= MEAN_SHIFT_MAX
+        assert hp.method_ == ("plugin" if pinned else "mixture")
+        assert f"{max(band - 1, 0):.0%}" in hp.reason_
+    # 6 runs of sin(5 x1) + x2^2 leave the settings open, 12 pin them down (measured ratios 1.13 and 1.03)
+    assert HyperPosterior(n_draws=4, thin=1, burn=2, seed=0).fit(X[:6], y[:6]).method_ == "mixture"
+    assert HyperPosterior(n_draws=4, thin=1, burn=2, seed=0).fit(X[:12], y[:12]).method_ == "plugin"
+
+
+def test_compressed_mixture_matches_all_draws():
+    # fewer draws are kept only when their mixture's mean and band agree with all draws' to COMPRESS_TOL
+    # (RMS over check points); here on held-out points, with twice that tolerance for the change of points
+    X, y = _data(8, 2)
+    full = HyperPosterior(mode="mixture", n_draws=16, thin=2, burn=10, seed=5, compress=False).fit(X, y)
+    small = HyperPosterior(mode="mixture", n_draws=16, thin=2, burn=10, seed=5).fit(X, y)
+    assert small.sampled_draws_ == 16 and len(small.thetas_) <= 16
+    U = np.random.default_rng(3).random((300, 2))
+    m0, s0 = full.predict(U, return_std=True)
+    m1, s1 = small.predict(U, return_std=True)
+    scale = np.sqrt(np.mean(s0**2))
+    assert np.sqrt(np.mean((m1 - m0) ** 2)) <= 2 * COMPRESS_TOL * scale
+    assert np.sqrt(np.mean((s1 - s0) ** 2)) <= 2 * COMPRESS_TOL * scale
 
 
 # -- leave-one-out ---------------------------------------------------------

@@ -213,17 +213,11 @@ def test_cli_plan_writes_level_names(tmp_path, capsys):
 
 def test_steps_not_ready_for_choices_refuse_in_one_line(tmp_path):
     from doe.workflow.calibration import calibrate_study
-    from doe.workflow.fit import fit_surrogates
-    from doe.workflow.robust import study_robust, study_tradeoff
-    from doe.workflow.sensitivity import study_screening, study_sensitivity
+    from doe.workflow.sensitivity import study_screening
     from doe.workflow.steps import next_step
 
     study, frame = _write_mixed(tmp_path)
-    calls = {"fitting surrogates": lambda: fit_surrogates(study, None),
-             "sensitivity analysis": lambda: study_sensitivity(study),
-             "screening": lambda: study_screening(study),
-             "the robust search": lambda: study_robust(study, None),
-             "the trade-off set": lambda: study_tradeoff(study, None),
+    calls = {"screening": lambda: study_screening(study),
              "next runs": lambda: next_step(study, None, None, 2, tmp_path / "n.csv"),
              "calibration": lambda: calibrate_study(study, None)}
     for step, call in calls.items():
@@ -232,15 +226,3 @@ def test_steps_not_ready_for_choices_refuse_in_one_line(tmp_path):
     with pytest.raises(PlanError, match="choice knobs are not yet supported by plan augmentation"):
         from doe.design.plans import augment_plan
         augment_plan(study.space, frame, 2)
-
-
-def test_run_evaluates_with_levels_then_fit_refuses(tmp_path, capsys):
-    write_study(tmp_path, MIXED)
-    code = main(["run", str(tmp_path / "study.toml"), "--out", str(tmp_path / "out"), "--no-progress"])
-    err = [line for line in capsys.readouterr().err.strip().splitlines() if "error" in line]
-    assert code == 2 and len(err) == 1, err  # the steps before the fit print progress lines
-    assert "choice knobs are not yet supported by fitting surrogates" in err[0]
-    results = list((tmp_path / "out").rglob("results*.csv"))
-    assert results, list((tmp_path / "out").rglob("*"))
-    table = read_results(results[0], read_study_text(MIXED, tmp_path / "study.toml"))
-    assert len(table.ok) == 8 and set(table.frame["flap"]) <= {"on", "off", "half"}

@@ -131,13 +131,22 @@ class Proposal:
 
 
 def accuracy_status(sset) -> tuple:
-    """The stopping rule: (met, sentence). Met when ``q2_loo >= target_q2`` for every response."""
-    q2 = {name: m.loo_.q2 for name, m in sset.models.items() if not m.constant_}
-    short = [f"{n} ({v:.3f})" for n, v in q2.items() if not v >= sset.target_q2]
+    """The stopping rule: (met, sentence). Met when every response is ``ready`` by the numbers.
+
+    Ready: ``q2_loo >= target_q2`` and, when known, the 5 % quantile of the
+    posterior draws of its q2 too (:meth:`doe.surrogate.set.SurrogateSet.meets_target`).
+    """
+    names = [n for n, m in sset.models.items() if not m.constant_]
+    q2 = {n: sset.loo(n).q2 for n in names}
+    low = {n: sset.q2_low(n) for n in names}
+
+    def shown(n):
+        return f"{q2[n]:.3f}" + ("" if np.isnan(low[n]) else f", at 95 % probability {low[n]:.3f}")
+
+    short = [f"{n} (q2_loo {shown(n)})" for n in names if not sset.meets_target(n)]
     if not short:
-        shown = ", ".join(f"{n} {v:.3f}" for n, v in q2.items())
         return True, (f"the accuracy wanted is already met: q2_loo >= {sset.target_q2:g} for every response "
-                      f"({shown}); more runs are optional")
+                      f"({', '.join(f'{n} {shown(n)}' for n in names)}); more runs are optional")
     return False, f"accuracy wanted (q2_loo >= {sset.target_q2:g}) not met yet for: {', '.join(short)}"
 
 

@@ -187,7 +187,8 @@ def _robust_block(study, rob: dict) -> dict:
     words = figure_words(name)
     cols = _settings_compared(rob)
     recs = [rec for _, rec in cols]
-    rows = [[p.label(), *(fmt(rec.get("point", {}).get(p.name)) for rec in recs)] for p in study.space.parameters]
+    rows = [[p.label(), *(_setting(p, rec.get("point", {}).get(p.name)) for rec in recs)]
+            for p in study.space.parameters]
     rows.append([f"{words} at the setting [{unit}]", *(fmt(rec.get("value_at_point")) for rec in recs)])
     rows.append([f"{words} under scatter, mean ± std [{unit}]",
                  *(F.format_with_interval(rec.get("mean"), rec.get("std")) for rec in recs)])
@@ -230,6 +231,13 @@ def _limits_judged(rob: dict) -> str:
             "exact setting (on the surrogate mean), so on the edge of a limit its chance under setup scatter "
             "reads about 0.5; the robust one must keep each with a chance of at least "
             f"{fmt(target, 3)} under setup scatter and the surrogates' uncertainty.")
+
+
+def _setting(p, value, digits: int = 4) -> str:
+    """A knob's setting: a choice's level name, else the number."""
+    if p.levels and value is not None:
+        return p.levels[int(round(float(value)))]
+    return fmt(value, digits)
 
 
 def _coincide(rob: dict) -> str:
@@ -349,7 +357,8 @@ def _glance(study, inputs, blocks, robust, vehicle) -> list:
             lines.append(f"What drives {b['response']}: {b['words']}")
     if robust:
         rb = inputs.robust["robust"]
-        where = ", ".join(f"{p.name} {settable(rb['point'].get(p.name), p.tolerance)} {p.unit}"
+        where = ", ".join(f"{p.name} {_setting(p, rb['point'].get(p.name), 3)}" if p.levels
+                          else f"{p.name} {settable(rb['point'].get(p.name), p.tolerance)} {p.unit}"
                           for p in study.space.parameters)
         lines.append(f"What to set: {where} (each to the step its setup scatter allows). There the "
                      f"{figure_words(robust['name'])} is "
@@ -438,8 +447,13 @@ def build_report(inputs: ReportInputs, folder) -> Path:
     robust = _robust_block(study, inputs.robust) if inputs.robust else None
     vehicle, figs["vehicle"] = _vehicle_block(inputs.robust, folder) if inputs.robust else (None, [])
     pick = inputs.robust["robust"]["point"] if inputs.robust else None
+    levels = None
+    if study.space.choices:                 # choice knobs: per-level curves, tables and answer (doe.report.levels)
+        from . import levels as LV
+        levels = LV.level_block(study, inputs.robust, inputs.sensitivity, fmt)
     if inputs.surrogates is not None:
-        figs["effects"] = _effect_figures(study, inputs, blocks, pick, folder)
+        figs["effects"] = (LV.level_effect_figures(study, inputs.surrogates, blocks, pick, frame, folder)
+                           if study.space.choices else _effect_figures(study, inputs, blocks, pick, folder))
     if inputs.tradeoff is not None and robust is not None:
         figs["tradeoff"] = _tradeoff_figures(study, inputs, folder)
     failed = [(row["run_id"], row.get("message", "") or "no value") for _, row in inputs.results.failed.iterrows()]
@@ -458,7 +472,8 @@ def build_report(inputs: ReportInputs, folder) -> Path:
     html = env.get_template("report.html.j2").render(
         study=study, made=f"{datetime.now(timezone.utc):%Y-%m-%d %H:%M} UTC", version=__version__,
         results={"summary": inputs.results.summary()}, sections=sections,
-        glance=_glance(study, inputs, blocks, robust, vehicle), cautions=CAUTIONS,
+        glance=_glance(study, inputs, blocks, robust, vehicle)
+        + (LV.level_glance(study, inputs.robust, fmt) if levels else []), cautions=CAUTIONS, levels=levels,
         limits=MODEL_LIMITS if study.evaluator.kind == "builtin" else (),
         question=_question(study), goal_words=GOAL_WORDS, runs_text=_runs_text(inputs),
         plan_quality=pq.get("quality"), plan_quality_method=_plan_method(pq), figs=figs, failed_runs=failed,

@@ -71,12 +71,20 @@ def _check_same_points(plan, store: ResultsStore, parameters) -> None:
         return
     merged = plan.merge(stored[["run_id", *parameters]], on="run_id", suffixes=("", "_stored"))
     for p in parameters:
-        a, b = merged[p].to_numpy(float), merged[f"{p}_stored"].to_numpy(float)
-        bad = ~np.isclose(a, b, rtol=1e-9, atol=1e-12)
+        try:
+            a, b = merged[p].to_numpy(float), merged[f"{p}_stored"].to_numpy(float)
+            bad = ~np.isclose(a, b, rtol=1e-9, atol=1e-12)
+        except ValueError:                  # a choice knob: level names, compared as they are written
+            a, b = merged[p].astype(str).to_numpy(), merged[f"{p}_stored"].astype(str).to_numpy()
+            bad = a != b
         if bad.any():
             rid = merged["run_id"].iloc[int(np.flatnonzero(bad)[0])]
-            raise ResultsError(f"{store.path}: run '{rid}' is stored with {p} = {b[bad][0]:g} but the plan has "
-                               f"{a[bad][0]:g}; this results file belongs to another plan (use another --out)")
+            raise ResultsError(f"{store.path}: run '{rid}' is stored with {p} = {_shown(b[bad][0])} but the plan "
+                               f"has {_shown(a[bad][0])}; this results file belongs to another plan (use another --out)")
+
+
+def _shown(value) -> str:
+    return f"{value:g}" if isinstance(value, (float, np.floating)) else str(value)
 
 
 def evaluate_plan(plan, evaluator, store_path, parameters, jobs: int = 1, retry_failed: bool = False,

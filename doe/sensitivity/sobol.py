@@ -60,8 +60,12 @@ Uncertainty, from both sources
    error of a scrambled Sobol' sample several times, so subtracting it would
    make intervals too narrow; the surrogate part errs on the wide side.
 
-The reported half-width is ``1.96 sqrt(var_mc + var_gp)`` around the index of
-the posterior mean (the direct route has ``var_gp = 0``). The ranking of two
+The reported index is the mean of the index over the paths (Marrel et al.
+2009), estimated as the index of the posterior mean on the large sample plus
+the mean of ``delta_p`` (the same control variate): the index of the mean
+function alone is biased, because the mean is smoother than any plausible
+response. The reported half-width is ``1.96 sqrt(var_mc + var_gp)`` around
+it (the direct route has ``var_gp = 0`` and no shift). The ranking of two
 inputs is *not resolved* when the interval of the difference of their total
 indices, computed the same way on paired replicates, contains 0.
 
@@ -126,8 +130,9 @@ class ResponseIndices:
     response : str
     parameters : tuple of str
     S1, ST : ndarray
-        First-order and total indices (shares of the variance, 0..1), computed
-        on the surrogate's mean (or the model itself in the direct route).
+        First-order and total indices (shares of the variance, 0..1): in the
+        surrogate route the mean of the index over the posterior's sample
+        paths (Marrel et al. 2009), in the direct route that of the model.
     S1_pm95_mc, ST_pm95_mc : ndarray
         Half-widths from the Monte-Carlo estimator (bootstrap).
     S1_pm95_surrogate, ST_pm95_surrogate : ndarray
@@ -141,6 +146,9 @@ class ResponseIndices:
         Second-order indices and combined half-widths (upper triangle; NaN elsewhere).
     unresolved : list of (str, str)
         Pairs whose order by total index the data do not settle.
+    too_few_runs : bool
+        Surrogate route: the 95 % intervals of the two largest total indices
+        overlap, so the runs are too few to rank the knobs.
     notes : list of str
         Plain warnings (S1 > ST, negative index, constant response).
     """
@@ -160,6 +168,7 @@ class ResponseIndices:
     S2_pm95: np.ndarray | None = None
     unresolved: list = field(default_factory=list)
     notes: list = field(default_factory=list)
+    too_few_runs: bool = False
 
     @property
     def S1_pm95(self) -> np.ndarray:
@@ -409,12 +418,15 @@ def _mean_route(model, inputs, responses, cfg: _Settings, n_start: int, fixed_n:
 
 @dataclass
 class _Spread:
-    """Surrogate part of the variance of the indices (varying parameters only)."""
+    """Surrogate part of the variance of the indices, and the paths' mean shift (varying parameters only)."""
 
     S1_var: np.ndarray
     ST_var: np.ndarray
     ST_diff_var: np.ndarray  # (k, k): variance of ST_i - ST_j
     S2_var: np.ndarray | None
+    S1_shift: np.ndarray | float = 0.0   # mean over paths of delta_p: index of the paths minus that of the mean
+    ST_shift: np.ndarray | float = 0.0
+    S2_shift: np.ndarray | float = 0.0
 
 
 def _path_variance(delta: np.ndarray) -> np.ndarray:
@@ -435,12 +447,14 @@ def _path_route(model, paths, inputs, responses, cfg: _Settings, n_base: int, n_
     for r in responses:
         ref = cfg.estimate(inputs, mean[r])
         per = [cfg.estimate(inputs, z) for z in draws[r]]
+        dS1 = np.array([e.S1 - ref.S1 for e in per])
         dST = np.array([e.ST - ref.ST for e in per])
-        s2_var = None
+        s2_var, s2_shift = None, 0.0
         if cfg.second_order:
-            s2_var = _path_variance(np.array([np.nan_to_num(e.S2 - ref.S2) for e in per]))
-        out[r] = _Spread(_path_variance(np.array([e.S1 - ref.S1 for e in per])), _path_variance(dST),
-                         _path_variance(_pair_diffs(dST)), s2_var)
+            dS2 = np.array([np.nan_to_num(e.S2 - ref.S2) for e in per])
+            s2_var, s2_shift = _path_variance(dS2), dS2.mean(axis=0)
+        out[r] = _Spread(_path_variance(dS1), _path_variance(dST), _path_variance(_pair_diffs(dST)), s2_var,
+                         dS1.mean(axis=0), dST.mean(axis=0), s2_shift)
     return out
 
 
@@ -458,21 +472,32 @@ def _combine(response: str, inputs: InputDistribution, est: _Estimate, spread: _
         return out
 
     conf = lambda var: Z95 * np.sqrt(var)  # noqa: E731 - a one-line helper
+    s1, st = est.S1 + spread.S1_shift, est.ST + spread.ST_shift       # centred on the mean index over paths
     res = ResponseIndices(
-        response, tuple(inputs.space.names), full(est.S1), full(est.ST),
+        response, tuple(inputs.space.names), full(s1), full(st),
         full(conf(np.var(est.S1_boot, axis=0, ddof=1))), full(conf(np.var(est.ST_boot, axis=0, ddof=1))),
         full(conf(spread.S1_var)), full(conf(spread.ST_var)),
         np.array([i not in idx for i in range(d)]), est.mean, est.std)
     if second_order:
         res.S2, res.S2_pm95 = np.full((d, d), np.nan), np.full((d, d), np.nan)
         sub = np.ix_(idx, idx)
-        res.S2[sub] = est.S2
+        res.S2[sub] = est.S2 + spread.S2_shift
         res.S2_pm95[sub] = conf(np.nan_to_num(est.S2_var) + spread.S2_var)
         res.S2_pm95[np.isnan(res.S2)] = np.nan
     diff_var = np.var(_pair_diffs(est.ST_boot), axis=0, ddof=1) + spread.ST_diff_var
-    res.unresolved = _unresolved(res, idx, est.ST, conf(diff_var))
+    res.unresolved = _unresolved(res, idx, st, conf(diff_var))
     res.notes = _notes(res, est, spread_given)
+    res.too_few_runs = spread_given and _top_overlap(res, idx)
     return res
+
+
+def _top_overlap(res: ResponseIndices, idx: list) -> bool:
+    """Whether the 95 % intervals of the two largest total indices overlap (one of them not negligible)."""
+    if len(idx) < 2 or res.std == 0.0:
+        return False
+    order = sorted(idx, key=lambda i: -res.ST[i])
+    a, b = order[0], order[1]
+    return bool(res.ST[a] - res.ST_pm95[a] <= res.ST[b] + res.ST_pm95[b] and res.ST[a] + res.ST_pm95[a] >= NEGLIGIBLE)
 
 
 def _unresolved(res: ResponseIndices, idx: list, st: np.ndarray, diff_conf: np.ndarray) -> list:

@@ -30,7 +30,8 @@ bounds or mean and sd in its unit), ``base_samples``, ``evaluations``,
 the model failed at one of their points), and ``responses``: per response its ``unit``,
 ``mean`` and ``std`` under the input distribution (response unit),
 ``ranking`` (parameters by total index), ``unresolved`` (pairs whose order the
-data do not settle), ``notes``, ``statement`` (plain words) and, with second
+data do not settle), ``too_few_runs`` (surrogate route: the intervals of the
+two largest total indices overlap, so the runs cannot rank the knobs), ``notes``, ``statement`` (plain words) and, with second
 order, ``second_order``: a list of ``{"parameters": [a, b], "S2": x,
 "S2_pm95": x}``.
 """
@@ -135,6 +136,12 @@ def describe(res: ResponseIndices, what: str | None = None, labels: dict | None 
     fixed = [shown(i) for i in range(len(res.parameters)) if res.fixed[i]]
     if fixed:
         text += f" Held fixed: {_join(fixed)}."
+    if res.too_few_runs:
+        top = sorted((i for i in range(len(res.parameters)) if not res.fixed[i]), key=lambda i: -res.ST[i])[:2]
+        shown_top = [f"{shown(i)} ({_pct(res.ST[i] - res.ST_pm95[i])}-{_pct(res.ST[i] + res.ST_pm95[i])} %)"
+                     for i in top]
+        text += (f" Too few runs to rank the knobs of {what}: the total effects of {_join(shown_top)} overlap; "
+                 "add runs before choosing between them.")
     if res.unresolved:
         pairs = [f"{labels.get(a, a)} and {labels.get(b, b)}" for a, b in res.unresolved[:4]]
         more = f" (and {len(res.unresolved) - 4} more pairs)" if len(res.unresolved) > 4 else ""
@@ -200,6 +207,7 @@ def to_dict(result: SobolResult, labels: dict | None = None, whats: dict | None 
         out[r] = {p: _entry(res, i, rank) for i, p in enumerate(res.parameters)}
         meta_resp[r] = {"unit": (units or {}).get(r, ""), "mean": res.mean, "std": res.std, "ranking": ranking,
                         "unresolved": [list(p) for p in res.unresolved], "notes": list(res.notes),
+                        "too_few_runs": bool(res.too_few_runs),
                         "statement": words[r]}
         if res.S2 is not None:
             meta_resp[r]["second_order"] = _second_order(res)
@@ -207,8 +215,8 @@ def to_dict(result: SobolResult, labels: dict | None = None, whats: dict | None 
         "route": result.route,
         "method": ("Saltelli sampling on scrambled Sobol' points; S1 Saltelli et al. 2010, ST Jansen 1999"
                    + (", S2 Saltelli 2002" if result.second_order else "") + " (SALib); 95 % intervals from the "
-                   "bootstrap" + (" and GP posterior sample paths (Le Gratiet et al. 2014)"
-                                  if result.route == "surrogate" else "")),
+                   "bootstrap" + (" and GP posterior sample paths (Le Gratiet et al. 2014), centred on the mean "
+                                  "index over the paths (Marrel et al. 2009)" if result.route == "surrogate" else "")),
         "library": LIBRARY,
         "confidence_level": 0.95, "inputs": result.inputs.describe(), "base_samples": result.base_samples,
         "evaluations": result.evaluations, "target_pm95": result.target_conf, "target_reached": result.reached,

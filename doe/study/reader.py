@@ -559,8 +559,10 @@ def _read_fit(t: Table) -> FitSettings:
                    check=lambda v: all(isinstance(x, str) for x in v), why="must be a list of strings")
     prior = t.take("length_scale_prior", float, default=defaults.LENGTH_SCALE_PRIOR, check=lambda v: 0 <= v <= 10, why="must be in [0, 10]")
     fidelity = t.take("fidelity", str, default=defaults.FIDELITY, choices=("auto", "single", "two"))
+    uncertainty = t.take("uncertainty", str, default=defaults.UNCERTAINTY, choices=("auto", "mixture", "plugin"))
     t.finish()
-    return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact), prior, fidelity)
+    return FitSettings(kernel, trend, noise, restarts, nugget, selection, target, tuple(exact), prior, fidelity,
+                       uncertainty)
 
 
 def _read_sensitivity(t: Table, parameters) -> SensitivitySettings:

@@ -107,6 +107,12 @@ class FitSettings:
         expensive level, the ``[low_fidelity]`` model the cheap one, see
         :mod:`doe.surrogate.twofidelity`); ``single``: the results alone; ``auto``:
         ``two`` when the study has a ``[low_fidelity]`` table.
+    uncertainty : {"auto", "mixture", "plugin"}
+        How the kernel's unknown settings enter predictions, bands and
+        intervals (:mod:`doe.surrogate.hyperposterior`): ``mixture`` averages
+        over settings sampled from their posterior; ``plugin`` uses the fitted
+        settings alone; ``auto`` uses the mixture unless the runs pin the
+        settings down (the fit summary says which and why).
     """
 
     kernel: str = defaults.KERNEL
@@ -119,6 +125,7 @@ class FitSettings:
     exact_sources: tuple = defaults.EXACT_SOURCES
     length_scale_prior: float = defaults.LENGTH_SCALE_PRIOR
     fidelity: str = defaults.FIDELITY
+    uncertainty: str = defaults.UNCERTAINTY
 
 
 @dataclass(frozen=True)

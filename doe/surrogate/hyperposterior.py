@@ -104,7 +104,7 @@ from threadpoolctl import threadpool_limits
 from . import paths
 from ..errors import NotFittedError, SurrogateError
 
-__all__ = ["HyperPosterior", "slice_sample", "FAMILIES", "TRENDS", "MODES", "BOUNDS", "PLUGIN_RUNS_PER_PARAMETER",
+__all__ = ["HyperPosterior", "slice_sample", "q2_draws", "FAMILIES", "TRENDS", "MODES", "BOUNDS", "PLUGIN_RUNS_PER_PARAMETER",
            "FORMAT"]
 
 FAMILIES = ("matern52", "sqexp", "matern32")
@@ -127,6 +127,18 @@ NUGGET = 1e-6
 SLICE_WIDTH = 2.0
 #: Query points up to which sample paths are drawn exactly (Cholesky per draw); above, by random features.
 EXACT_PATH_POINTS = 500
+#: Laplace draws and check points of the "auto" test of whether the settings are pinned down.
+CHECK_DRAWS = 16
+CHECK_POINTS = 256
+#: "auto" keeps the mode when plausible settings widen the RMS band by at most this factor (a band 1.2 times too
+#: narrow still holds 2 Phi(2 / 1.2) - 1 = 90 % of errors, the lower end of the coverage aimed at) ...
+BAND_RATIO_MAX = 1.2
+#: ... and move the mean by at most this many RMS band widths (both common practice, no source; the
+#: coverage that results is measured in benchmarks/bench_intervals.py).
+MEAN_SHIFT_MAX = 0.2
+#: A mixture is kept with fewer draws when their mean and band move by at most this share of the band
+#: (RMS over check points; common practice, no source).
+COMPRESS_TOL = 0.05
 #: Name and version of a saved record.
 FORMAT = ("doe-hyperposterior", 1)
 _NU = {"matern52": 2.5, "matern32": 1.5}
@@ -380,6 +392,34 @@ def _sklearn_kernel(parts: dict):
 # ---------------------------------------------------------------------------
 
 
+def q2_draws(model, dim: int, n_points: int = 256, n_paths: int = 128, seed=0) -> np.ndarray:
+    """Posterior draws of a map's q2: how well its mean would predict each sampled response.
+
+    For each joint sample path ``f_p`` on scrambled Sobol' points of the unit
+    cube, ``q2_p = 1 - mean((f_p - mean)^2) / var(f_p)``. Their lower quantiles
+    say how sure the runs make us that the map meets a target.
+
+    Parameters
+    ----------
+    model : HyperPosterior or ResponseSurrogate
+        Fitted; anything with ``predict(U)`` and ``sample_paths(U, n_paths, seed)``
+        on the unit cube.
+    dim : int
+        Parameters.
+    n_points, n_paths : int
+    seed : int
+
+    Returns
+    -------
+    ndarray, shape (n_paths,)
+    """
+    U = qmc.Sobol(dim, scramble=True, seed=seed).random(n_points)
+    draws = model.sample_paths(U, n_paths, seed=seed)
+    mean = model.predict(U)
+    var = np.var(draws, axis=1)
+    return 1.0 - np.mean((draws - mean) ** 2, axis=1) / np.where(var > 0, var, np.inf)
+
+
 class HyperPosterior:
     """A Gaussian process whose hyperparameters are sampled, on inputs in the unit cube.
 
@@ -405,11 +445,20 @@ class HyperPosterior:
         Extra optimiser starts for the mode, drawn from the prior.
     seed : int
         Same seed, same draws.
+    compress : bool
+        Keep fewer draws (4, 8 or 16 of ``n_draws``) when their mixture matches
+        that of all draws (see :meth:`_compress`): predictions cost one kernel
+        evaluation per draw kept.
 
     Attributes
     ----------
     thetas_ : ndarray, shape (J, p)
         Log hyperparameters of the draws kept (``J = 1`` for the plug-in).
+    sampled_draws_ : int
+        Draws before compression.
+    spread_ : tuple of float or None
+        ``(band ratio, mean shift)`` of the Laplace check of ``mode = "auto"``
+        (see :meth:`_laplace_spread`); None when it was not made.
     theta_map_ : ndarray, shape (p,)
     laplace_sd_ : ndarray, shape (p,)
         Posterior standard deviations of the log hyperparameters, Laplace approximation.
@@ -435,7 +484,7 @@ class HyperPosterior:
     """
 
     def __init__(self, family="matern52", trend="linear", noise="fixed", mode="auto", n_draws=32, thin=3, burn=30,
-                 restarts=3, seed=0):
+                 restarts=3, seed=0, compress=True):
         self.family = family
         self.trend = trend
         self.noise = noise
@@ -445,6 +494,7 @@ class HyperPosterior:
         self.burn = burn
         self.restarts = restarts
         self.seed = seed
+        self.compress = compress
 
     # -- checks ------------------------------------------------------------
     def _check_options(self):
@@ -510,12 +560,20 @@ class HyperPosterior:
         with threadpool_limits(limits=1, user_api="blas"):  # small matrices: threads only contend
             self.theta_map_ = self._mode(target, rng)
             W, self.laplace_sd_ = self._laplace(target, self.theta_map_)
+            self.spread_ = None
             self.method_, self.reason_ = self._choose(n, d)
+            if self.method_ == "mixture" and self.mode == "auto":
+                self.spread_ = self._laplace_spread(target, W)
+                self.method_, self.reason_ = self._choose_by_spread(n, d, *self.spread_)
             if self.method_ == "plugin":
                 self.thetas_, self.evaluations_ = self.theta_map_[None, :], 0
             else:
                 self.thetas_, self.evaluations_ = self._sample(target, W, rng)
             self.draws_ = [_Draw(target, t) for t in self.thetas_]
+            self.sampled_draws_ = len(self.draws_)
+            if self.method_ == "mixture" and self.compress:
+                keep = self._compress(target)
+                self.thetas_, self.draws_ = self.thetas_[keep], [self.draws_[i] for i in keep]
         self.fit_seconds_ = time.perf_counter() - start
         return self
 
@@ -528,10 +586,82 @@ class HyperPosterior:
         if per >= PLUGIN_RUNS_PER_PARAMETER:
             return "plugin", (f"{n} runs for {d} parameters ({per:.0f} per parameter, at least "
                               f"{PLUGIN_RUNS_PER_PARAMETER}): the kernel's settings are well determined, so the "
-                              "posterior mode alone is used")
+                              "fitted settings alone (plug-in) are used")
         return "mixture", (f"{n} runs for {d} parameters ({per:.1f} per parameter, fewer than "
                            f"{PLUGIN_RUNS_PER_PARAMETER}): the kernel's settings are uncertain, so predictions "
                            "average over draws of them")
+
+    def _laplace_spread(self, target: _Target, W) -> tuple:
+        """How much plausible settings move the band: (band ratio, mean shift) of a Laplace mixture against the mode.
+
+        :data:`CHECK_DRAWS` settings ``theta_map + W u`` (``u`` standard
+        normal, the Laplace approximation) and the mode predict at
+        :data:`CHECK_POINTS` scrambled Sobol' points. ``band ratio``: RMS
+        standard deviation of their mixture (law of total variance) over
+        that of the mode; ``mean shift``: RMS difference of the means over
+        the mode's RMS standard deviation. Own stream (``[seed, 1]``), so the
+        sampler's draws do not depend on it.
+        """
+        rng = np.random.default_rng([int(self.seed), 1])
+        C = qmc.Sobol(target.d, scramble=True, seed=rng).random(CHECK_POINTS) - 0.5
+        m0, v0 = _Draw(target, self.theta_map_)._posterior_normalised(C)
+        thetas = np.clip(self.theta_map_ + rng.standard_normal((CHECK_DRAWS, target.p)) @ W.T,
+                         target.lower, target.upper)
+        parts = []
+        for theta in thetas:
+            try:
+                parts.append(_Draw(target, theta)._posterior_normalised(C))
+            except np.linalg.LinAlgError:          # a setting with a singular covariance is not plausible
+                continue
+        if not parts:
+            return float("inf"), float("inf")
+        ms, vs = np.array([m for m, _ in parts]), np.array([v for _, v in parts])
+        mean = ms.mean(axis=0)
+        var = np.mean(vs + ms**2, axis=0) - mean**2
+        scale = max(float(np.mean(v0)), 1e-300)
+        return float(np.sqrt(np.mean(var) / scale)), float(np.sqrt(np.mean((mean - m0) ** 2) / scale))
+
+    def _compress(self, target: _Target) -> np.ndarray:
+        """Indices of the fewest evenly spaced draws whose mixture matches that of all draws.
+
+        Every prediction costs one kernel evaluation per draw, so a mixture
+        whose draws agree is kept with fewer of them: 4, 8 or 16 evenly spaced
+        along the chain, the first count whose mixture mean and standard
+        deviation at :data:`CHECK_POINTS` scrambled Sobol' points are within
+        :data:`COMPRESS_TOL` of all draws' (RMS over the points, in units of
+        the RMS standard deviation).
+        """
+        J = len(self.draws_)
+        rng = np.random.default_rng([int(self.seed), 2])
+        C = qmc.Sobol(target.d, scramble=True, seed=rng).random(CHECK_POINTS) - 0.5
+        parts = [d._posterior_normalised(C) for d in self.draws_]
+        ms, vs = np.array([m for m, _ in parts]), np.array([v for _, v in parts])
+
+        def moments(rows):
+            m = ms[rows].mean(axis=0)
+            return m, np.sqrt(np.clip(np.mean(vs[rows] + ms[rows] ** 2, axis=0) - m**2, 0.0, None))
+
+        full_m, full_s = moments(np.arange(J))
+        scale = max(float(np.sqrt(np.mean(full_s**2))), 1e-300)
+        for k in (4, 8, 16):
+            if k >= J:
+                break
+            rows = np.unique(np.linspace(0, J - 1, k).round().astype(int))
+            m, sd = moments(rows)
+            if (np.sqrt(np.mean((m - full_m) ** 2)) <= COMPRESS_TOL * scale
+                    and np.sqrt(np.mean((sd - full_s) ** 2)) <= COMPRESS_TOL * scale):
+                return rows
+        return np.arange(J)
+
+    @staticmethod
+    def _choose_by_spread(n: int, d: int, band: float, shift: float) -> tuple:
+        if band <= BAND_RATIO_MAX and shift <= MEAN_SHIFT_MAX:
+            return "plugin", (f"{n} runs for {d} parameters pin the kernel's settings down: plausible settings "
+                              f"widen the band by {max(band - 1, 0):.0%} and move the mean by {shift:.2f} band "
+                              "widths, so the fitted settings alone (plug-in) are used")
+        return "mixture", (f"{n} runs for {d} parameters leave the kernel's settings uncertain (plausible settings "
+                           f"widen the band by {max(band - 1, 0):.0%} and move the mean by {shift:.2f} band widths): "
+                           "predictions average over draws of them")
 
     def _mode(self, target: _Target, rng) -> np.ndarray:
         """Posterior mode: L-BFGS-B from the prior median and ``restarts`` prior draws."""
@@ -695,22 +825,9 @@ class HyperPosterior:
         return 1.0 - miss / total if total > 0 else float("nan")
 
     def q2_draws(self, n_points: int = 256, n_paths: int = 128, seed=0) -> np.ndarray:
-        """Posterior draws of the map's q2: how well the mixture mean would predict each sampled response.
-
-        For each joint sample path ``f_p`` on scrambled Sobol' points,
-        ``q2_p = 1 - mean((f_p - mean)^2) / var(f_p)``. Their lower quantiles
-        say how sure the runs make us that the map meets a target.
-
-        Returns
-        -------
-        ndarray, shape (n_paths,)
-        """
+        """Posterior draws of the map's q2 (see :func:`q2_draws`)."""
         self._check_fitted()
-        U = qmc.Sobol(self.X_unit_.shape[1], scramble=True, seed=seed).random(n_points)
-        paths = self.sample_paths(U, n_paths, seed=seed)
-        mean = self.predict(U)
-        var = np.var(paths, axis=1)
-        return 1.0 - np.mean((paths - mean) ** 2, axis=1) / np.where(var > 0, var, np.inf)
+        return q2_draws(self, self.X_unit_.shape[1], n_points, n_paths, seed)
 
     # -- records -----------------------------------------------------------
     def to_record(self) -> dict:
@@ -719,9 +836,10 @@ class HyperPosterior:
         return {"format": FORMAT[0], "version": FORMAT[1],
                 "options": {"family": self.family, "trend": self.trend, "noise": self.noise, "mode": self.mode,
                             "n_draws": int(self.n_draws), "thin": int(self.thin), "burn": int(self.burn),
-                            "restarts": int(self.restarts), "seed": int(self.seed)},
+                            "restarts": int(self.restarts), "seed": int(self.seed),
+                            "compress": bool(self.compress)},
                 "y_mean": self.y_mean_, "y_std": self.y_std_, "constant": bool(self.constant_),
-                "method": self.method_, "reason": self.reason_,
+                "method": self.method_, "reason": self.reason_, "sampled_draws": int(self.sampled_draws_),
                 "theta_map": [float(t) for t in self.theta_map_],
                 "laplace_sd": [float(t) for t in self.laplace_sd_],
                 "thetas": [[float(t) for t in row] for row in self.thetas_],
@@ -744,6 +862,8 @@ class HyperPosterior:
             model.laplace_sd_ = np.array(record["laplace_sd"], dtype=float)
             model.thetas_ = np.array(record["thetas"], dtype=float).reshape(-1, len(model.theta_map_))
             model.evaluations_, model.fit_seconds_ = int(record["evaluations"]), float(record["fit_seconds"])
+            model.sampled_draws_ = int(record.get("sampled_draws", len(model.thetas_)))
+            model.spread_ = None
         except (KeyError, TypeError, ValueError) as exc:
             raise SurrogateError(f"the saved hyperposterior record is incomplete or malformed ({exc!r})") from exc
         target = _Target(X - 0.5, (model.y_ - model.y_mean_) / model.y_std_, model.family, model.trend,

@@ -8,6 +8,7 @@ import pandas as pd
 from ..errors import DoeError
 from ..robust.scatter import predict_checked
 from ..robust.search import DEFAULT_MAXITER, DEFAULT_ROBUST_RESTARTS, RobustResult, find_settings
+from ..robust.levels import find_settings_per_level, tradeoff_per_level
 from ..robust.tradeoff import tradeoff_set
 from ..vehicle import Aero, VehicleFigures, VehicleObjective, vehicle_figures
 
@@ -103,7 +104,6 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER,
     maxiter, robust_restarts : int
         Generations of each search run, and runs of the robust search (:func:`find_settings`).
     """
-    study.space.refuse_choices("the robust search (doe robust)")
     r = study.robust
     if r is None:
         raise DoeError("robust: the study has no [robust] settings")
@@ -111,7 +111,8 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER,
     block = (lambda x: study_vehicle_figures(study, predict, x[None, :])) if study.vehicle is not None else None
     baseline = [r.baseline[n] for n in study.space.names] if r.baseline is not None else None
     vobj = study_vehicle_objective(study)
-    return find_settings(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
+    search = find_settings_per_level if study.space.choices else find_settings    # choices: per level combination
+    return search(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
                          probability=r.probability, samples=r.samples, seed=r.seed, runs_X=runs_X, units=units,
                          vehicle_block=block, baseline=baseline, maxiter=maxiter, robust_restarts=robust_restarts,
                          vehicle_objective=vobj,
@@ -124,11 +125,11 @@ def study_tradeoff(study, predict, samples: int = 4096, include=None) -> pd.Data
     Refined: each response's optimum and points along the line are added to the sample, and
     ``include`` (settings in study units, e.g. the nominal and robust picks) joins the candidates.
     """
-    study.space.refuse_choices("the trade-off set (doe robust)")
     r = study.robust
     if r is None or len(r.tradeoff) < 2:
         raise DoeError("trade-off: give at least two responses in [robust] tradeoff "
                        "(by default the responses with a goal)")
     goals = {resp.name: resp.goal for resp in study.responses}
-    return tradeoff_set(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed,
+    build = tradeoff_per_level if study.space.choices else tradeoff_set      # choices: per level combination
+    return build(predict, study.space, r.tradeoff, goals, r.targets, samples=samples, seed=r.seed,
                         include=include, refine=True)

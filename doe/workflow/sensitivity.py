@@ -86,13 +86,16 @@ def surrogate_callables(surrogates):
     """``(model, paths)`` for :func:`~doe.sensitivity.sobol.sobol_indices` from a fitted ``SurrogateSet``.
 
     ``model`` is the posterior mean of every response (no standard deviation
-    is computed); ``paths`` the set's joint posterior draws.
+    is computed); ``paths`` the set's joint posterior draws. Both come from
+    what predicts each response: the mixture over kernel settings when it is
+    used, so the intervals carry the uncertainty of those settings too.
     """
     space = surrogates.space
 
     def model(X):
         U = space.to_unit(X)
-        return {r: np.asarray(m.predict(U, return_std=False), dtype=float) for r, m in surrogates.models.items()}
+        return {r: np.asarray(surrogates.predictor(r).predict(U, return_std=False), dtype=float)
+                for r in surrogates.models}
 
     def paths(X, n_paths, seed):
         return surrogates.sample_paths(X, n_paths, seed)
@@ -201,9 +204,12 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
     -------
     SobolResult
     """
-    study.space.refuse_choices("sensitivity analysis (doe sensitivity)")
+    from .choices import check_level_route, study_level_sensitivity, wants_level_sensitivity   # choice knobs
+
     cfg = study.sensitivity
     seed = study.plan.seed if seed is None else seed
+    check_level_route(study, direct, around)
+    levels = wants_level_sensitivity(study, direct, around)
     inputs = study_inputs(study, around)
     _warn_about(study, inputs, direct)
     options = dict(base_samples=base_samples if base_samples is not None else cfg.base_samples,
@@ -226,12 +232,17 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
         surrogates = study_surrogates(study, results, seed=seed, progress=False,
                                       say=lambda line: warnings.warn(line, stacklevel=3))   # runs are said, not hidden
     model, paths = surrogate_callables(surrogates)
+    if levels:
+        return study_level_sensitivity(study, surrogates, model, paths, options, cfg.paths)
     return sobol_indices(model, inputs, paths=paths, n_paths=cfg.paths, **options)
 
 
 def study_sensitivity_json(study, result: SobolResult) -> dict:
     """The sensitivity JSON of a study, with response units in the statements."""
-    return to_dict(result, units={r.name: r.unit for r in study.responses})
+    data = to_dict(result, units={r.name: r.unit for r in study.responses})
+    if getattr(result, "effects", None):          # choice knobs: what each level is worth (doe.workflow.choices)
+        data["_meta"]["levels"] = result.levels_json()
+    return data
 
 
 def study_screening(study, *, trajectories: int = 20, levels: int = 4, seed: int | None = None,
