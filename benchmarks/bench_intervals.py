@@ -246,7 +246,7 @@ def _fit_time_lines(seeds) -> list:
     a = (0.0, 1.0, 4.5, 9.0, 99.0)
     lines = ["### Fit time: 60 runs in 5 parameters (G-function, a = 0, 1, 4.5, 9, 99), one response", "",
              "The default fit is what `doe fit` does per response (`doe.workflow.fit`: the surrogate, then "
-             "`fit_uncertainty` with `uncertainty = \"auto\"`: hyperparameter posterior, Laplace check, q2 draws). "
+             "`fit_uncertainty` with `uncertainty = \"auto\"`: hyperparameter posterior, short-chain check, q2 draws). "
              "The issue's limit: under 10 s per response.", "",
              "| seed | plug-in fit: CPU s / wall s | default fit: CPU s / wall s | method | "
              "`uncertainty = \"mixture\"`: CPU s / wall s (sampler evaluations, draws kept) |",
