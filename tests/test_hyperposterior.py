@@ -196,6 +196,9 @@ def test_widened_mode_scales_band_paths_and_loo_alike():
     p0, p1 = plain.sample_paths(U, 6, seed=3), wide.sample_paths(U, 6, seed=3)
     np.testing.assert_allclose(p1 - m1, c * (p0 - m0), rtol=1e-9, atol=1e-12)
     np.testing.assert_allclose(wide.loo()["std"], c * plain.loo()["std"], rtol=1e-12)
+    back = HyperPosterior.from_record(json.loads(json.dumps(wide.to_record())), X[:16], y[:16])
+    assert back.method_ == "widened" and back.band_scale_ == c
+    np.testing.assert_array_equal(back.predict(U, return_std=True), wide.predict(U, return_std=True))
 
 
 def test_compressed_mixture_matches_all_draws():
