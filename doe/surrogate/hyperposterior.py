@@ -612,7 +612,7 @@ class HyperPosterior:
         if per >= PLUGIN_RUNS_PER_PARAMETER:
             return "plugin", (f"{n} runs for {d} parameters ({per:.0f} per parameter, at least "
                               f"{PLUGIN_RUNS_PER_PARAMETER}): the kernel's settings are well determined, so the "
-                              "fitted settings alone (plug-in) are used")
+                              "most probable settings alone (plug-in) are used")
         return "mixture", (f"{n} runs for {d} parameters ({per:.1f} per parameter, fewer than "
                            f"{PLUGIN_RUNS_PER_PARAMETER}): the kernel's settings are uncertain, so predictions "
                            "average over draws of them")
@@ -681,10 +681,10 @@ class HyperPosterior:
                 "widths")
         if band <= BAND_RATIO_MAX and shift <= MEAN_SHIFT_MAX:
             return "plugin", (f"{n} runs for {d} parameters pin the kernel's settings down ({what}), so the "
-                              "fitted settings alone (plug-in) are used")
+                              "most probable settings alone (plug-in) are used")
         if band <= WIDEN_RATIO_MAX and shift <= MEAN_SHIFT_MAX:
             return "widened", (f"{n} runs for {d} parameters leave some doubt about the kernel's settings ({what}): "
-                               f"the fitted settings predict, with their band widened by {band - 1:.0%}")
+                               f"the most probable settings predict, with their band widened by {band - 1:.0%}")
         return "mixture", (f"{n} runs for {d} parameters leave the kernel's settings uncertain ({what}): "
                            "predictions average over draws of them")
 

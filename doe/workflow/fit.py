@@ -12,6 +12,7 @@ from .. import defaults
 from ..errors import SurrogateError
 from ..surrogate.gp import ResponseSurrogate
 from ..surrogate.hyperposterior import HyperPosterior
+from ..surrogate.kernels import kernel_label
 from ..surrogate.set import SurrogateSet, uncertainty_record
 from ..surrogate.twofidelity import TwoFidelitySurrogate
 
@@ -150,7 +151,7 @@ def fit_uncertainty(model, uncertainty: str = "auto", seed: int = 0) -> tuple:
                             trend=MIXTURE_KERNEL[1] if model.trend == "auto" else model.trend,
                             noise="learn" if model.learn_noise_ else "fixed", mode=uncertainty,
                             seed=seed).fit(model.X_unit_, model.y_)
-        posterior, reason = hp, hp.reason_
+        posterior, reason = hp, f"{hp.reason_} (posterior of a {kernel_label(hp.family, hp.trend)} kernel)"
     return posterior, uncertainty_record(model, posterior, reason, seed)
 
 
