@@ -11,9 +11,10 @@ are fitted by
 * **default**: what ``doe fit`` does with ``[fit] uncertainty = "auto"``
   (``doe.workflow.fit.fit_uncertainty``): the same fit plus a hyperparameter
   posterior (``doe.surrogate.hyperposterior.HyperPosterior``, Matern 5/2 with a
-  sampled linear trend) whose mixture over draws predicts, unless a Laplace
-  check finds the settings pinned down (then its posterior mode alone), or
-  there are at least 20 runs per parameter (then the plug-in fit).
+  sampled linear trend) whose mixture over draws predicts ("mixture"), unless a
+  short chain of draws finds the settings pinned down (then its posterior mode
+  alone, "plugin") or nearly so (the mode with its band widened by the measured
+  factor, "widened"); from 20 runs per parameter on, the mode alone.
 
 Measured per fit: the share of 1000 uniform held-out points whose error lies
 inside the 2-sigma band; the held-out q2; the 95 % intervals of the surrogate
