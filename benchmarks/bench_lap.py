@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 
-from doe.study import load_study
+from doe.study.reader import load_study
 from doe.vehicle import Aero, VehicleObjective, lap_time, lap_times
 
 DEMO = Path(__file__).resolve().parents[1] / "studies" / "demo_hatch.toml"

@@ -1,4 +1,4 @@
-"""Evaluations at scale and the whole demo: throughput per worker count, peak memory, demo wall time.
+"""Evaluations at scale: throughput per worker count and peak memory (the demo's time is in bench_timing.py).
 
 Each measurement runs ``doe`` as a separate process, so its peak memory (maximum
 resident set size of that process and its workers) is measured on its own.
@@ -52,22 +52,10 @@ def _streaming(quick: bool) -> list[str]:
     return lines
 
 
-def _demo() -> list[str]:
-    with tempfile.TemporaryDirectory() as tmp:
-        wall, peak = _doe(["run", str(DEMO), "--out", str(Path(tmp) / "demo"), "--no-progress"], tmp)
-        index = (Path(tmp) / "demo" / "report" / "index.html").exists()
-    return ["### The demo study end to end (`make demo` minus the install)", "",
-            "`doe run studies/demo_hatch.toml` from nothing: plan, 50 built-in evaluations, six surrogates, Sobol "
-            "indices with surrogate uncertainty, nominal and robust search, next runs, report.", "",
-            "| wall time (s) | peak memory (MiB) | report written |", "|---|---|---|",
-            f"| {wall:.0f} | {peak:.0f} | {'yes' if index else 'NO'} |", "",
-            "Target of the report issue: under 5 minutes (300 s) on this 2-core machine."]
-
-
 def run(quick: bool) -> list[str]:
     lines = ["## Evaluations at scale and the demo pipeline", ""]
-    lines += _streaming(quick) + [""]
-    lines += _demo()
+    lines += _streaming(quick)
+    lines += ["", "The demo end to end (`make demo` minus the install) is timed in the timing section."]
     return lines
 
 

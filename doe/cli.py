@@ -101,7 +101,8 @@ def _add_fidelity_options(p):
                    help="two: lean on the study's [low_fidelity] cheap model (two-fidelity surrogates); single: "
                         "the results alone (default: [fit] fidelity, auto = two when [low_fidelity] exists)")
     p.add_argument("--cheap-results", type=Path, metavar="CSV",
-                   help="results file of the cheap model's runs (made or resumed; default: <results>.low.csv)")
+                   help="results file of the cheap model's runs (made or resumed; default: "
+                        "reports/<study name>/<results>.low.csv)")
 
 
 def _add_results_options(p, results_required: bool = True):

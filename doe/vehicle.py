@@ -64,7 +64,7 @@ __all__ = ["G", "RHO_SEA_LEVEL", "DRIVES", "Vehicle", "Aero", "Segment", "Track"
            "axle_loads", "corner_speed", "top_speed", "lap_time", "LapResult", "VehicleFigures",
            "vehicle_figures", "compare_figures", "top_speeds", "corner_speeds", "lap_times",
            "front_load_share", "balance_shift", "BalanceChange", "balance_change", "FIGURE_UNITS", "figure_unit",
-           "VehicleLimit", "normal_moments", "VehicleObjective", "fastest_corner_kph"]
+           "figure_words", "VehicleLimit", "normal_moments", "VehicleObjective", "fastest_corner_kph"]
 
 #: Standard gravity, m/s^2 (ISO 80000-3).
 G = 9.80665
@@ -1058,6 +1058,19 @@ _CORNER_FIGURE = re.compile(r"corner_speed_(\d+(?:\.\d+)?)m_kph")
 #: Vehicle figures a :class:`VehicleObjective` computes, with their units (corner speeds are named
 #: ``corner_speed_<radius>m_kph``, e.g. ``corner_speed_50m_kph``, in km/h).
 FIGURE_UNITS = {"lap_time_s": "s", "top_speed_kph": "km/h", "front_load_share": "-", "balance_shift": "-"}
+
+
+#: Plain words for the vehicle figures, for reports (the names above are file keys).
+FIGURE_WORDS = {"lap_time_s": "lap time", "top_speed_kph": "top speed",
+                "front_load_share": "front axle share of the car's load", "balance_shift": "balance shift"}
+
+
+def figure_words(name: str) -> str:
+    """Plain words for a vehicle figure (``"lap time"`` for ``lap_time_s``); the name itself for anything else."""
+    if name in FIGURE_WORDS:
+        return FIGURE_WORDS[name]
+    corner = _CORNER_FIGURE.fullmatch(name)
+    return f"corner speed at {corner.group(1)} m radius" if corner else name
 
 
 def figure_unit(name: str) -> str:

@@ -97,6 +97,7 @@ def test_recovers_changed_coefficients_from_noisy_data(noisy_fit):
     assert noisy_fit.noise == "estimated"
 
 
+@pytest.mark.slow   # ten repeated calibrations; the fast set checks one noisy fit's intervals against the truth
 def test_laplace_intervals_cover_the_truth_at_their_level(model_study):
     # 10 noise replicates x 2 coefficients = 20 intervals of nominal 95 %: the count covering the truth is
     # binomial(20, 0.95) when the intervals are right; P(count <= 15) = 0.003 (binomial, computed)

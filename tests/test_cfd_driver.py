@@ -20,6 +20,7 @@ import pytest
 
 from doe.aero import ModelSettings
 from doe.aero.car import body_contour
+from doe.aero.model import RearPackageModel
 from doe.aero.outline import rear_package_outlines
 from doe.errors import AeroError
 
@@ -133,6 +134,18 @@ def test_wing_too_close_to_body_is_refused():
         rear_package_outlines(ModelSettings(), {"wing_height": 20.0, "wing_overhang": -300.0})
     with pytest.raises(AeroError, match="outside"):
         rear_package_outlines(ModelSettings(), {"wing_aoa": 40.0})
+
+
+def test_model_geometry_is_public_and_refuses_a_touching_wing():
+    """RearPackageModel.geometry gives the contour the model solves; a wing inside the body is an AeroError."""
+    model = RearPackageModel(ModelSettings())
+    st = model.settings
+    p = {k: float(v[0]) for k, v in model.inputs(POINT).items()}
+    c = body_contour(st.car, 30.0, p["flap_chord"] / 1000.0, st.body_panels, st.flap_panels,
+                     st.coefficients.critical_slant, flap_position=p["flap_position"] / 100.0)
+    assert np.array_equal(model.geometry(p)["body"].nodes, c.nodes)
+    with pytest.raises(AeroError, match="within"):
+        model.geometry({**p, "wing_height": 20.0, "wing_overhang": -300.0})
 
 
 # ---------------------------------------------------------------------- mesh and dictionaries

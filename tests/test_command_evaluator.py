@@ -101,3 +101,55 @@ def test_sigkill_then_resume_loses_and_repeats_nothing(setup):
     runs = counter.read_text().split()
     for rid in first:  # a run stored before the kill was never computed again
         assert runs.count(rid) == 1
+
+
+EXTRAS_CASE = """
+import json, sys
+from pathlib import Path
+case = Path(sys.argv[1])
+p = json.loads((case / "params.json").read_text())
+(case / "result.json").write_text(json.dumps({
+    "y": p["x1"], "iterations": 1290, "converged": False, "mesh": "medium\\nsecond line", "y_std": 0.0107,
+    "forces": {"cl": -1.0}, "history": [1, 2], "status": "not a status", "run_id": "other"}))
+"""
+
+
+def test_result_json_extras_are_stored_and_read_back(setup):
+    """Plain extra keys of result.json reach the results table; nested ones and clashing names do not."""
+    study_file, plan, out = setup
+    (study_file.parent / "case.py").write_text(EXTRAS_CASE)
+    assert main(["evaluate", str(study_file), "--plan", str(plan), "--out", str(out), "--no-progress"]) == 0
+    frame = read_results(out, load_study(study_file)).frame.set_index("run_id")
+    assert (frame["status"] == "ok").all()           # "status" in result.json does not overwrite the run's
+    assert frame.loc["r003", "iterations"] == 1290 and frame.loc["r003", "y_std"] == 0.0107
+    assert not frame.loc["r003", "converged"]
+    assert frame.loc["r003", "mesh"] == "medium | second line"   # folded to one line
+    assert "forces" not in frame.columns and "history" not in frame.columns
+    assert (out.parent / (out.name + ".extra.jsonl")).exists()
+    assert pd.read_csv(out).columns.tolist()[-4:] == ["status", "source", "message", "elapsed_s"]  # CSV layout kept
+
+
+def test_torn_extras_line_is_skipped(setup):
+    """A kill can cut the last line of the extras file: the reader skips it, the runs stay readable."""
+    study_file, plan, out = setup
+    (study_file.parent / "case.py").write_text(EXTRAS_CASE)
+    assert main(["evaluate", str(study_file), "--plan", str(plan), "--out", str(out), "--no-progress"]) == 0
+    side = out.parent / (out.name + ".extra.jsonl")
+    side.write_text(side.read_text() + '{"run_id": "r001", "iterati')
+    frame = read_results(out, load_study(study_file)).frame
+    assert len(frame) == 8 and frame["iterations"].notna().all()
+
+
+def test_extras_of_a_recorded_rans_result():
+    """The case driver's own result.json (a real run, tests/data/cfd): its record is kept, its nested parts not."""
+    import json
+    from pathlib import Path
+
+    from doe.runs.evaluators.command import plain_extras
+
+    data = json.loads((Path(__file__).parent / "data" / "cfd" / "result_medium_r001.json").read_text())
+    responses = ["cla_total", "cda_total", "cla_front", "cla_rear", "cla_wing", "cla_body"]
+    extra = plain_extras(data, responses)
+    assert extra["converged"] == 1 and extra["iterations"] == data["iterations"] and extra["cells"] == data["cells"]
+    assert extra["cla_total_std"] == data["cla_total_std"] and extra["solver_version"] == data["solver_version"]
+    assert not set(extra) & {*responses, "drift", "mesh_settings", "mesh_warnings", "settings", "point_model_units"}

@@ -63,6 +63,8 @@ def test_local_processes_equal_serial_row_for_row(tmp_path):
     pd.testing.assert_frame_equal(a, b)
 
 
+@pytest.mark.slow   # starting a dask cluster dominates; test_local_processes_equal_serial_row_for_row checks the
+#                    same row-for-row contract with local worker processes in the fast set
 def test_dask_local_cluster_equals_serial_row_for_row(tmp_path):
     pytest.importorskip("distributed")
     from doe.runs.executors import DaskCluster

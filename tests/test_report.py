@@ -17,7 +17,7 @@ import pytest
 from doe.cli import main
 from doe.errors import DoeError
 from doe.report import figures as F
-from doe.report.build import CAUTIONS, fmt
+from doe.report.build import CAUTIONS, fmt, settable
 from doe.report.style import new_figure, save
 
 from conftest import study_text
@@ -27,6 +27,9 @@ STUDY = study_text("rep-test", [("x1", "deg", 0.0, 10.0, {"tolerance": 0.2}), ("
                    description="A small analytic study for the report tests", extra="""
     [plan]
     seed = 2
+
+    [sensitivity]
+    base_samples = 2048      # the report's tests read the indices, not their last digit: test speed
 
     [robust]
     samples = 32
@@ -257,3 +260,28 @@ def test_lap_report_shows_lap_time_with_its_uncertainty_and_the_balance(lap_repo
 def test_lap_report_figures_keep_markers_inside(lap_report, watch_markers):
     assert {"lap_time.png", "balance.png"} <= set(watch_markers)
     assert {name: bad for name, bad in watch_markers.items() if bad} == {}
+
+
+def test_lap_report_speaks_plain_words_and_says_how_limits_are_judged(lap_report):
+    rob, index = lap_report
+    html = index.read_text()
+    table = _text(re.search(r"The recommended setting.*?Which setting to measure", html, re.S).group(0))
+    assert "lap time at the setting [s]" in table and "lap_time_s" not in table
+    assert "only has to keep them at its exact setting" in table     # the nominal pick's limits, in one sentence
+    glance = _text(re.search(r'<section class="glance".*?</section>', html, re.S).group(0))
+    assert "lap time" in glance and "lap_time_s" not in glance
+    # the knobs are given to the step their setup scatter allows (half the tolerance's decimal place)
+    from test_robust_study import HEAD, SNIPPET
+    from doe.study.reader import read_study_text
+
+    tolerances = {p.name: p.tolerance for p in read_study_text(HEAD + SNIPPET).space.parameters}
+    where = glance.split("What to set:")[1].split("(each to the step")[0]
+    for name, value in rob["robust"]["point"].items():
+        assert f"{name} {settable(value, tolerances[name])} " in where
+
+
+@pytest.mark.parametrize("value,tolerance,shown", [(0.000514, 2.0, "0"), (27.598, 0.5, "27.6"), (6.657, 0.25, "6.7"),
+                                                   (3.512, 0.0, "3.51"), (-0.04, 0.5, "0"), (118.6, 2.0, "119")])
+def test_settable_rounds_to_half_the_tolerance(value, tolerance, shown):
+    # our own display rule (common practice, no source): digits finer than half the setup scatter are noise
+    assert settable(value, tolerance) == shown

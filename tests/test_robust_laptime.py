@@ -71,8 +71,13 @@ def test_balance_window_moves_the_optimum_to_its_edge():
     # the robust point keeps the window with 90 % chance under scatter: it sits inside, slower
     assert res.robust.point["x"] < res.nominal.point["x"]
     lim = [x for x in res.robust.limits if x["response"] == "balance_shift"][0]
-    assert lim["probability"] >= 0.9 - 1e-9 and lim["met"]
+    assert lim["probability"] >= 0.9 - 1e-9 and lim["met_with_probability"]
     assert res.robust.feasible
+    # the nominal point sits on the window's edge: the limit holds at the setting, but under scatter only
+    # about half the time (normal scatter about the edge), and the JSON keeps the two apart
+    nom = [x for x in res.nominal.limits if x["response"] == "balance_shift"][0]
+    assert nom["met_at_setting"] and not nom["met_with_probability"] and 0.3 < nom["probability"] < 0.7
+    assert nom["value_at_setting"] >= floor - 1e-9 and res.nominal.feasible
 
 
 def test_pick_never_slower_than_the_car_now_or_the_nominal_pick():

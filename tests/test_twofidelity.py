@@ -144,7 +144,8 @@ STUDY = study_text("two-levels", [("x", "-", 0.0, 1.0)], [("y", "-", "minimize")
 
 
 @pytest.fixture
-def two_level_study(tmp_path):
+def two_level_study(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)                  # cheap runs go to the study's output folder, reports/<name>/
     (tmp_path / "cheap.py").write_text(textwrap.dedent(CHEAP_CASE))
     study = tmp_path / "study.toml"
     study.write_text(STUDY.replace("{python}", sys.executable.replace("\\", "/")))
@@ -160,7 +161,8 @@ def test_cli_fit_two_fidelity_then_single(two_level_study, tmp_path, capsys):
     rep = json.loads((tmp_path / "two" / "fit.json").read_text())["y"]
     assert rep["fidelity"] == "two" and rep["two_fidelity"]["rho"] == pytest.approx(2.0, rel=0.01)
     assert rep["two_fidelity"]["nested_points"] == 6 and rep["two_fidelity"]["cheap_runs"] == 17
-    cheap = pd.read_csv(tmp_path / "high.low.csv")
+    assert not (tmp_path / "high.low.csv").exists()      # nothing is written beside the recorded results
+    cheap = pd.read_csv(next((tmp_path / "reports").glob("*/high.low.csv")))
     assert len(cheap) == 17 and cheap["run_id"].str.startswith("at_").sum() == 6
     assert "17 evaluated now" in capsys.readouterr().err
     # a second fit reuses the cheap runs

@@ -20,18 +20,20 @@ module                 job
 ``atmosphere``         ISO 2533 sea-level air; Sutherland viscosity
 ``car``                the parametric hatchback centreline, flap and wing contours
 ``model``              the whole rear package: inputs, coefficients, outputs
+``choices``            choice knobs (wing section, flap placement, flap and wing on/off) as geometry
 =====================  ==========================================================
 
 Sign convention: lift coefficients and CLA are positive upward, so negative
 CLA is downforce; CDA is positive rearward.
 """
 from .car import CarGeometry
+from .choices import CHOICE_INPUTS, ChoiceModel
 from .lifting_line import endplate_aspect_ratio, glauert
 from .model import (COEFFICIENT_RANGES, DESIGN_INPUTS, OUTPUTS, Coefficients, ModelSettings, RearPackageModel)
 from .panels import Layout, solve_field
 from .section_analysis import SectionResult, analyse_section, section_lift_curve
 from .sections import Section, naca4, read_coords, repanel
 
-__all__ = ["CarGeometry", "Coefficients", "COEFFICIENT_RANGES", "DESIGN_INPUTS", "OUTPUTS", "ModelSettings",
+__all__ = ["CarGeometry", "CHOICE_INPUTS", "ChoiceModel", "Coefficients", "COEFFICIENT_RANGES", "DESIGN_INPUTS", "OUTPUTS", "ModelSettings",
            "RearPackageModel", "Layout", "solve_field", "Section", "naca4", "read_coords", "repanel",
            "SectionResult", "analyse_section", "section_lift_curve", "glauert", "endplate_aspect_ratio"]

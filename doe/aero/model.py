@@ -474,6 +474,32 @@ class RearPackageModel:
         return {"body": body, "wing": wing, "thickness": section.thickness, "p": p,
                 "stall_w": stall_weights(section.points)[:, ::-1]}        # the wing's nodes run backwards
 
+    def geometry(self, p: dict) -> dict:
+        """The geometry this model solves for one configuration (what a CFD case or a drawing must match).
+
+        Parameters
+        ----------
+        p : dict of str to float
+            Every design input of one configuration, model units (one value each, e.g.
+            ``{k: float(v[0]) for k, v in model.inputs(point).items()}``).
+
+        Returns
+        -------
+        dict
+            ``body``: the body's panel contour (:class:`doe.aero.car.BodyContour`, m); ``wing``: the
+            wing's nodes, m (None without a wing); ``thickness``: the section's thickness, chord
+            fraction; ``p``: the inputs; with a wing also ``stall_w``, the stall weights of its nodes.
+
+        Raises
+        ------
+        AeroError
+            An input outside the model's range, or a wing too close to the body.
+        """
+        geom = self._geometry(p)
+        if isinstance(geom, str):
+            raise AeroError(geom)
+        return geom
+
     def _solve(self, geoms, keep_cp):
         st, co = self.settings, self.settings.coefficients
         nb = len(geoms[0]["body"].nodes)

@@ -3,7 +3,7 @@
 The built-in model (:mod:`doe.aero.model`) needs the body only up to where the
 flow leaves it: its panel contour is open at the base. A flow solver needs
 closed walls. This module closes the *same* geometry, built by the model's own
-geometry step (:meth:`doe.aero.model.RearPackageModel._geometry`, which uses
+geometry step (:meth:`doe.aero.model.RearPackageModel.geometry`, which uses
 :func:`doe.aero.car.body_contour`, :func:`doe.aero.car.wing_contour` and
 :func:`doe.aero.sections.naca4`), so that a CFD case and the model always see
 one car:
@@ -132,9 +132,7 @@ def rear_package_outlines(settings: ModelSettings | None = None, point: dict | N
     model = RearPackageModel(fine)
     inputs = model.inputs({k: v for k, v in (point or {}).items()})
     p = {k: float(v[0]) for k, v in inputs.items()}
-    geom = model._geometry(p)                 # the model's own geometry step: one description of the car
-    if isinstance(geom, str):
-        raise AeroError(geom)
+    geom = model.geometry(p)                  # the model's own geometry step: one description of the car
     contour = geom["body"]
     nodes = np.asarray(contour.nodes, dtype=float)
     car = settings.car

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import math
 import shutil
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -23,6 +23,7 @@ import numpy as np
 from jinja2 import Environment, FileSystemLoader, select_autoescape
 from markupsafe import Markup, escape
 
+from ..vehicle import figure_words
 from ..version import __version__
 from . import figures as F
 from .style import PALETTE
@@ -178,11 +179,12 @@ def _settings_compared(rob: dict) -> list:
 def _robust_block(study, rob: dict) -> dict:
     obj = rob.get("objective", {})
     name, unit = obj.get("response", "?"), obj.get("unit", "")
+    words = figure_words(name)
     cols = _settings_compared(rob)
     recs = [rec for _, rec in cols]
     rows = [[p.label(), *(fmt(rec.get("point", {}).get(p.name)) for rec in recs)] for p in study.space.parameters]
-    rows.append([f"{name} at the setting [{unit}]", *(fmt(rec.get("value_at_point")) for rec in recs)])
-    rows.append([f"{name} under scatter, mean ± std [{unit}]",
+    rows.append([f"{words} at the setting [{unit}]", *(fmt(rec.get("value_at_point")) for rec in recs)])
+    rows.append([f"{words} under scatter, mean ± std [{unit}]",
                  *(F.format_with_interval(rec.get("mean"), rec.get("std")) for rec in recs)])
     rows.append([f"surrogate uncertainty at the setting [{unit}]", *(fmt(rec.get("model_std"), 2) for rec in recs)])
     for lim in rob.get("limits", []):
@@ -191,12 +193,13 @@ def _robust_block(study, rob: dict) -> dict:
         for rec in recs:
             hit = [x for x in rec.get("limits", []) if x.get("response") == label]
             probs.append(fmt(hit[0].get("probability"), 3) if hit else "–")
-        bound = " ≤ ".join(x for x in (fmt(lim.get("min")) if lim.get("min") is not None else "", label,
-                                        fmt(lim.get("max")) if lim.get("max") is not None else "") if x)
+        bound = _bound_words(label, lim.get("min"), lim.get("max"))
         unit_word = lim.get("unit", "") if lim.get("unit", "") not in ("", "-") else ""
         rows.append([f"chance that {bound} {unit_word} holds [-]".replace("  ", " "), *probs])
-    flags = [f"Check the {label} setting before trusting it: {rec.get('flag_reason', '')} "
-             f"({len(rec.get('confirm_runs', []))} confirming runs are listed in robust.json)."
+    flags = [(f"The car as it runs now: {rec.get('flag_reason', '')} (judged like the robust setting)."
+              if label == "as the car runs now" else
+              f"Check the {label} setting before trusting it: {rec.get('flag_reason', '')} "
+              f"({len(rec.get('confirm_runs', []))} confirming runs are listed in robust.json).")
              for label, rec in cols if rec.get("flag")]
     frag = []
     robust = rob.get("robust", {})
@@ -204,13 +207,24 @@ def _robust_block(study, rob: dict) -> dict:
         frag.append([pname, f"{fmt(fr.get('drop_per_unit'), 3)} {fr.get('per_unit', '')}",
                      f"{fmt(fr.get('drop'), 3)} {unit} over ±{fmt(fr.get('step'), 3)} {fr.get('unit', '')}"])
     sign = "+" if obj.get("goal") == "minimize" else "−"
-    text = (f"The robust setting is the one whose {name} stays best when every knob is off by its setup scatter "
+    text = (f"The robust setting is the one whose {words} stays best when every knob is off by its setup scatter "
             f"(the study's tolerances, one standard deviation): it optimises the mean {sign} {fmt(obj.get('k', 1), 3)} "
             "standard deviations under that scatter. The nominal setting is the best on paper, with every knob "
             "exactly where it should be.")
     text += " " + _coincide(rob)
+    if rob.get("limits"):
+        text += " " + _limits_judged(rob)
     return {"columns": [label for label, _ in cols], "rows": rows, "flags": flags, "fragility": frag, "text": text,
             "name": name, "unit": unit}
+
+
+def _limits_judged(rob: dict) -> str:
+    """One sentence on how the limits are judged for each pick (the chance rows of the table)."""
+    target = (rob.get("method") or {}).get("probability_target")
+    return ("The limits are judged differently for the two picks: the nominal one only has to keep them at its "
+            "exact setting (on the surrogate mean), so on the edge of a limit its chance under setup scatter "
+            "reads about 0.5; the robust one must keep each with a chance of at least "
+            f"{fmt(target, 3)} under setup scatter and the surrogates' uncertainty.")
 
 
 def _coincide(rob: dict) -> str:
@@ -305,6 +319,21 @@ def _vehicle_block(rob: dict, folder: Path):
     return {"columns": [label for label, _ in cols] + ["change"], "rows": rows, "text": text}, figs
 
 
+def settable(value, tolerance) -> str:
+    """A knob's value rounded to the step a crew can set, judged from its setup scatter (one std).
+
+    To the decimal place of half the tolerance (0.5 deg -> 0.1 deg, 2 mm -> 1 mm): finer digits are
+    lost in the scatter. Without a tolerance, 3 significant digits.
+    """
+    if value is None or not math.isfinite(float(value)):
+        return "–"
+    if not tolerance or tolerance <= 0:
+        return fmt(value, 3)
+    places = max(0, -math.floor(math.log10(tolerance / 2.0)))
+    text = f"{round(float(value), places):.{places}f}"
+    return "0" if float(text) == 0 else text
+
+
 def _glance(study, inputs, blocks, robust, vehicle) -> list:
     res = inputs.results
     lines = [f"Studied: {study.space.dim} knobs ({', '.join(p.name for p in study.space.parameters)}) with "
@@ -315,8 +344,10 @@ def _glance(study, inputs, blocks, robust, vehicle) -> list:
             lines.append(f"What drives {b['response']}: {b['words']}")
     if robust:
         rb = inputs.robust["robust"]
-        where = ", ".join(f"{p.name} {fmt(rb['point'].get(p.name), 3)} {p.unit}" for p in study.space.parameters)
-        lines.append(f"What to set: {where}. There {robust['name']} is "
+        where = ", ".join(f"{p.name} {settable(rb['point'].get(p.name), p.tolerance)} {p.unit}"
+                          for p in study.space.parameters)
+        lines.append(f"What to set: {where} (each to the step its setup scatter allows). There the "
+                     f"{figure_words(robust['name'])} is "
                      f"{F.format_with_interval(rb.get('mean'), rb.get('std'), unit=robust['unit'])} under setup "
                      "scatter.")
     if inputs.fit:
@@ -333,6 +364,19 @@ def _glance(study, inputs, blocks, robust, vehicle) -> list:
     return lines
 
 
+def _chance(p) -> str:
+    """A probability in words a driver reads at once: "of 0.48", "under 0.01", "over 0.99"."""
+    if p is None:
+        return "not known"
+    return "under 0.01" if p < 0.005 else "over 0.99" if p > 0.995 else f"of {p:.2f}"
+
+
+def _gap(diff: float, std_a, std_b) -> str:
+    """``|diff| ± hypot(std_a, std_b) s`` (the stds of two lap times taken as independent), or ``|diff| s``."""
+    half = math.hypot(std_a, std_b) if std_a is not None and std_b is not None else None
+    return F.format_with_interval(abs(diff), half, unit="s")
+
+
 def _worth_lines(rob: dict) -> list:
     """"What it is worth" (lap time with its uncertainty) and how the balance moves, for "At a glance"."""
     (rt, rs), (nt, ns) = _lap(rob["robust"]), _lap(rob["nominal"])
@@ -340,7 +384,7 @@ def _worth_lines(rob: dict) -> list:
     if rt is not None and nt is not None:
         d = rt - nt
         than = ("the same as the nominal best on paper" if abs(d) < 0.0005 else
-                f"{fmt(abs(d), 1)} s {'slower' if d > 0 else 'faster'} than the nominal best on paper"
+                f"{_gap(d, rs, ns)} {'slower' if d > 0 else 'faster'} than the nominal best on paper"
                 + (" (the price of holding the limits under setup scatter)" if d > 0 else ""))
         text = f"What it is worth: the robust setting laps in {F.format_with_interval(rt, rs, unit='s')}, {than}"
         base = rob.get("baseline")
@@ -348,11 +392,20 @@ def _worth_lines(rob: dict) -> list:
             bt, bs = _lap(base)
             if bt is not None:
                 gain = bt - rt
-                text += (f", and {fmt(abs(gain), 2)} s {'quicker' if gain > 0 else 'slower'} than the car as it "
-                         f"runs now ({F.format_with_interval(bt, bs, unit='s')})")
+                text += (f", and {_gap(gain, rs, bs)} {'quicker' if gain > 0 else 'slower'} per lap than the car "
+                         f"as it runs now ({F.format_with_interval(bt, bs, unit='s')})")
         if rs is not None:
-            text += "; ± is one standard deviation from the surrogates' uncertainty"
+            text += ("; ± is one standard deviation from the surrogates' uncertainty (for a difference, the two "
+                     "taken as independent: an overstatement when the settings are close)")
         lines.append(text + ".")
+        base = rob.get("baseline")
+        bounds = {lim["response"]: _bound_words(lim["response"], lim.get("min"), lim.get("max")) + (
+            f" {lim['unit']}" if lim.get("unit") not in (None, "", "-") else "") for lim in rob.get("limits", [])}
+        broken = [lim for lim in (base or {}).get("limits", []) if not lim.get("met_with_probability", True)]
+        if broken:
+            lines.append("The car as it runs now does not keep every limit: " + "; ".join(
+                f"{bounds.get(lim['response'], lim['response'])} holds with a chance {_chance(lim.get('probability'))}"
+                for lim in broken) + ".")
     if rob.get("balance_change"):
         lines.append("How the balance moves: " + rob["balance_change"]["sentence"])
     return lines
@@ -416,8 +469,23 @@ def build_report(inputs: ReportInputs, folder) -> Path:
 
 def _question(study) -> str:
     goals = [f"{r.name} {GOAL_WORDS[r.goal]}" for r in study.responses if r.goal != "none"]
-    return (f"{study.description or study.name}. The study varies {study.space.dim} knobs within the ranges below"
+    text = (f"{study.description or study.name}. The study varies {study.space.dim} knobs within the ranges below"
             + (f" and wants {', '.join(goals)}" if goals else "") + ".")
+    r = study.robust
+    if r is None:
+        return text
+    track = getattr(study, "track", None)
+    where = f" on {track.name}" if r.objective == "lap_time_s" and track is not None and track.name else ""
+    bounds = [_bound_words(lim.response, lim.min, lim.max) for lim in r.limits]
+    bounds += [_bound_words(lim.figure, lim.min, lim.max) for lim in r.vehicle_limits]
+    return (text + f" The recommended setting makes the {figure_words(r.objective)}{where} "
+            f"{GOAL_WORDS.get(r.goal, r.goal)}" + (f", keeping {', '.join(bounds)}" if bounds else "") + ".")
+
+
+def _bound_words(name: str, low, high) -> str:
+    """``"-0.045 <= balance shift"`` in plain words."""
+    return " ≤ ".join(x for x in (fmt(low) if low is not None else "", figure_words(name),
+                                  fmt(high) if high is not None else "") if x)
 
 
 def _runs_text(inputs) -> str:
@@ -450,10 +518,11 @@ def _effect_figures(study, inputs, blocks, pick, folder) -> list:
     for r in study.responses:
         if r.name not in sset.responses:
             continue
-        figs = [F.main_effects(r.name, r.unit, sset.predict, study.space, folder)]
+        predict = replace(sset, models={r.name: sset.models[r.name]}).predict   # only the response drawn
+        figs = [F.main_effects(r.name, r.unit, predict, study.space, folder)]
         px, py = _strongest_two(study, blocks, r.name)
         if px and py:
-            figs.append(F.response_map(r.name, r.unit, sset.predict, study.space, px, py, fixed,
+            figs.append(F.response_map(r.name, r.unit, predict, study.space, px, py, fixed,
                                        inputs.results.frame, folder, pick=pick))
         groups.append({"response": r.name, "unit": r.unit, "open": r.name == _objective(study, inputs),
                        "figures": figs})

@@ -397,7 +397,10 @@ def tradeoff_plot(frame, rx: str, ux: str, ry: str, uy: str, folder: Path, point
     file = f"tradeoff_{rx}_{ry}.png"
     save(fig, folder / file)
     caption = (f"Settings for which no other setting is better in both {rx} and {ry} (surrogate means). "
-               "Moving along the line buys one at the price of the other.")
+               "Moving along the line buys one at the price of the other. The points are settings polished onto "
+               "the line (each end, even steps of the first response, and more where the line is steep) and the "
+               "best of a sample between them; a small step between two points is the sample's resolution, "
+               "not a feature of the car.")
     if off:
         caption += (f" Off the line: {', '.join(off)}; settings on the line beat "
                     f"{'it' if len(off) == 1 else 'them'} in both, so {'it was' if len(off) == 1 else 'they were'} "

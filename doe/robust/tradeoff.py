@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 from scipy.stats import qmc
+from threadpoolctl import threadpool_limits
 
 from ..errors import DoeError
 from ..space import Space
@@ -67,6 +68,10 @@ def _minimised(pred: dict, responses, goals: dict, targets: dict) -> np.ndarray:
     return np.column_stack(cols)
 
 
+#: Margin (share of the first response's range) by which a polish aims below its epsilon level.
+_LEVEL_MARGIN = 1e-7
+
+
 def refine_points(predict, space: Space, responses, goals: dict, X, targets=None, levels: int = 8,
                   maxiter: int = 60) -> np.ndarray:
     """Settings on the trade-off's edges and along it, polished from the best of the candidates ``X``.
@@ -74,7 +79,9 @@ def refine_points(predict, space: Space, responses, goals: dict, X, targets=None
     Each response's own optimum on the surrogate mean (the ends of the trade-off
     line), then, for the first two responses, ``levels`` epsilon-constraint
     points: the best second response with the first no worse than a level
-    between its two ends ([D]_ sec. 4.2; Haimes, Lasdon & Wismer 1971). Each is
+    between its two ends ([D]_ sec. 4.2; Haimes, Lasdon & Wismer 1971), and up
+    to ``levels`` more halfway across the widest gaps of the second response
+    (where the line is steep). Each is
     a local SLSQP polish (unit cube, the linear constraints kept) from the best
     candidate of ``X`` for it (and, along the line, also from the previous
     level's point), so it is never worse than that candidate.
@@ -117,33 +124,65 @@ def refine_points(predict, space: Space, responses, goals: dict, X, targets=None
     scale = np.ptp(F, axis=0)
     scale = np.where(scale > 0, scale, 1.0)
 
-    def polish(start, j, level=None):
-        extra = [] if level is None else [{"type": "ineq", "fun": lambda u: (level - values(u)[0]) / scale[0]}]
+    def polish(start, j, level=None, on=0):
+        """Minimise response j from ``start``, with response ``on`` no worse than ``level`` (if given)."""
+        # the level is aimed at with a margin: at an epsilon-constraint optimum the level is active, and
+        # SLSQP ends on it only to its tolerance, often a hair above; the check below would then throw the
+        # polished point away and keep the (sampled) start, leaving steps in the line
+        extra = [] if level is None else [{"type": "ineq",
+                                           "fun": lambda u: (level - values(u)[on]) / scale[on] - _LEVEL_MARGIN}]
         res = minimize(lambda u: values(u)[j] / scale[j], space.to_unit(start[None, :])[0], method="SLSQP",
                        bounds=[(0.0, 1.0)] * space.dim, constraints=cons + extra,
                        options={"maxiter": maxiter, "ftol": 1e-10})
         u = np.clip(res.x, 0.0, 1.0)
         x, f = space.from_unit(u[None, :])[0], values(u)
-        ok = bool(space.feasible(x[None, :])[0]) and (level is None or f[0] <= level)
+        ok = bool(space.feasible(x[None, :])[0]) and (level is None or f[on] <= level)
         return x if ok and f[j] <= values(space.to_unit(start[None, :]))[j] else start
 
-    ends = [polish(X[np.argmin(F[:, j])], j) for j in range(len(responses))]
-    out = list(ends)
-    lo, hi = values(space.to_unit(ends[0][None, :]))[0], values(space.to_unit(ends[1][None, :]))[0]
-    last = ends[0]
-    for level in np.linspace(lo, hi, levels + 2)[1:-1]:
+    def on_level(level, previous):
+        # two starts, the previous level's point (a continuation along the line) and the best sampled
+        # setting under the level (if any); the better polish is kept
         ok = F[:, 0] <= level
-        if np.any(ok):
-            # two starts, the best sampled setting under the level and the last level's point (a
-            # continuation along the line); the better polish is kept
-            tries = [polish(X[ok][np.argmin(F[ok, 1])], 1, level), polish(last, 1, level)]
-            last = min(tries, key=lambda x: values(space.to_unit(x[None, :]))[1])
-            out.append(last)
-    return np.asarray(out)
+        tries = [polish(previous, 1, level)] + ([polish(X[ok][np.argmin(F[ok, 1])], 1, level)] if np.any(ok) else [])
+        return min(tries, key=lambda x: values(space.to_unit(x[None, :]))[1])
+
+    ends = [polish(X[np.argmin(F[:, j])], j) for j in range(len(responses))]
+    # an end can tie on its own response with settings better in the other (a knob that only moves the
+    # other response): the best of the other response at the end's own value is the line's true end
+    for j, o in ((0, 1), (1, 0)):
+        own = values(space.to_unit(ends[j][None, :]))[j]
+        ends[j] = polish(ends[j], o, own + 2 * _LEVEL_MARGIN * scale[j], on=j)
+    line = [ends[0]]
+    lo, hi = values(space.to_unit(ends[0][None, :]))[0], values(space.to_unit(ends[1][None, :]))[0]
+    for level in np.linspace(lo, hi, levels + 2)[1:-1]:
+        line.append(on_level(level, line[-1]))
+    line.append(ends[1])
+    # where the line is steep, evenly spaced levels of the first response leave wide gaps in the second
+    # (between them only sampled settings, well behind the line, fill in): across each gap wider than an
+    # even share of the second response's range on the line, widest first (up to ``levels`` of them),
+    # the best first response with the second no worse than halfway across the gap, polished from the
+    # gap's better end in the first response
+    f = np.array([values(space.to_unit(x[None, :]))[:2] for x in line])
+    height = abs(f[-1, 1] - f[0, 1]) or 1.0           # the second response's range along the line
+    tried = np.zeros(len(f) - 1, dtype=bool)                  # gaps that a polish could not split
+    for _ in range(levels):
+        gaps = np.where(tried, 0.0, np.abs(np.diff(f[:, 1])) / height)
+        k = int(np.argmax(gaps))
+        if gaps[k] <= 1.0 / (levels + 1):
+            break
+        x = polish(line[k + 1], 0, 0.5 * (f[k, 1] + f[k + 1, 1]), on=1)
+        fx = values(space.to_unit(x[None, :]))[:2]
+        if not min(f[k, 1], f[k + 1, 1]) < fx[1] < max(f[k, 1], f[k + 1, 1]):
+            tried[k] = True
+            continue
+        line.insert(k + 1, x)
+        f = np.insert(f, k + 1, fx, axis=0)
+        tried = np.insert(tried, k + 1, False)
+    return np.asarray(line)
 
 
 def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, samples: int = 4096, seed=0,
-                 candidates=None, include=None, refine: bool = False) -> pd.DataFrame:
+                 candidates=None, include=None, refine: bool = False, levels: int = 16) -> pd.DataFrame:
     """Non-dominated settings of several responses on the surrogate mean (e.g. downforce vs drag).
 
     Parameters
@@ -167,6 +206,8 @@ def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, sa
     refine : bool
         Add each response's optimum and points along the line (:func:`refine_points`), so
         the set reaches the true ends of the trade-off, not only the sample's.
+    levels : int
+        Epsilon-constraint levels of the refinement (:func:`refine_points`).
 
     Returns
     -------
@@ -189,9 +230,10 @@ def tradeoff_set(predict, space: Space, responses, goals: dict, targets=None, sa
     X = X[space.feasible(X)]
     if len(X) == 0:
         raise DoeError("trade-off: no candidate setting meets the constraints")
-    if refine:
-        X = np.unique(np.vstack([X, refine_points(predict, space, responses, goals, X, targets)]), axis=0)
-    pred = predict_checked(predict, X, responses)
+    with threadpool_limits(limits=1, user_api="blas"):  # many small predictions: BLAS threads only contend
+        if refine:
+            X = np.unique(np.vstack([X, refine_points(predict, space, responses, goals, X, targets, levels)]), axis=0)
+        pred = predict_checked(predict, X, responses)
     keep = nondominated(_minimised(pred, responses, goals, targets))
     frame = pd.DataFrame(X[keep], columns=space.names)
     for name in responses:

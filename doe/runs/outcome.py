@@ -35,6 +35,9 @@ class Outcome:
         Where the numbers come from (``builtin``, ``command``, ``cfd``, ``tunnel``, ...).
     elapsed_s : float
         Wall time of the run, in seconds.
+    extra : dict of str to (float, int, bool or str)
+        Further plain values the run reported besides its responses (e.g. a
+        solver's iterations or convergence flag); stored beside the results.
     """
 
     values: dict

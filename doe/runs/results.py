@@ -10,6 +10,12 @@ Results CSV
     ``elapsed_s`` (wall time of the run, s). Only ``run_id``, the parameters and
     the responses are required in a file recorded elsewhere; extra columns are
     kept and ignored.
+Extras file
+    ``<results CSV>.extra.jsonl`` beside it: one JSON object a line, ``run_id``
+    and the plain values a run reported besides its responses (a command's
+    ``result.json`` extras: iterations, convergence flags, spreads). Written by
+    the store when a run has any; :func:`read_results` adds them as extra
+    columns (the last line of a run wins; a torn line is skipped).
 
 Readers accept UTF-8 with or without a byte-order mark, Windows line endings,
 and semicolon-separated files with decimal commas. Any problem is a
@@ -20,6 +26,7 @@ from __future__ import annotations
 import csv
 import fcntl
 import io
+import json
 import math
 import os
 import warnings
@@ -33,7 +40,7 @@ from ..errors import ResultsError, StoreLockedError, where
 from .outcome import Outcome, safe_run_id
 
 __all__ = ["read_plan", "read_points", "read_results", "write_plan", "write_json", "ResultsTable", "ResultsStore",
-           "STATUS_VALUES", "META_COLUMNS"]
+           "STATUS_VALUES", "META_COLUMNS", "extras_path"]
 
 STATUS_VALUES = ("ok", "failed")
 #: Columns the store writes after the responses.
@@ -42,6 +49,8 @@ META_COLUMNS = ("status", "source", "message", "elapsed_s")
 MAX_FILE_BYTES = 512 * 1024 * 1024
 #: Longest accepted line, in characters.
 MAX_LINE_CHARS = 100_000
+#: Suffix of the file beside a results CSV that keeps the runs' extras.
+EXTRAS_SUFFIX = ".extra.jsonl"
 #: A recorded value of a stepped knob counts as on its step when it is within this share of the knob's range.
 STEP_RTOL = 1e-6
 
@@ -360,10 +369,36 @@ def read_results(path, study, accept_outside: bool = False, responses=None) -> R
             frame[extra] = [cells[k] for _, cells in rows.rows]
     if "source" not in frame.columns:
         frame["source"] = "recorded"
+    _add_extras(frame, extras_path(path))
     if not inside.all():
         frame["outside"] = ~inside
     return ResultsTable(frame, study.space.names, responses, path,
                         {p.name: p.levels for p in study.space.choices})
+
+
+def extras_path(results_path) -> Path:
+    """The extras file of a results CSV: ``<name>.extra.jsonl`` beside it."""
+    p = Path(results_path)
+    return p.with_name(p.name + EXTRAS_SUFFIX)
+
+
+def _add_extras(frame: pd.DataFrame, path: Path) -> None:
+    """Add the runs' extras from ``path`` (if it exists) as columns the frame does not have yet."""
+    if not path.exists():
+        return
+    if path.stat().st_size > MAX_FILE_BYTES:
+        raise ResultsError(f"{path}: larger than {MAX_FILE_BYTES // 2**20} MiB; is this the right file?")
+    runs = {}
+    for line in path.read_text(encoding="utf-8", errors="replace").splitlines():
+        try:
+            obj = json.loads(line)
+        except ValueError:              # a line torn by a kill
+            continue
+        if isinstance(obj, dict) and isinstance(obj.get("run_id"), str):
+            runs[obj["run_id"]] = obj
+    keys = dict.fromkeys(k for obj in runs.values() for k in obj if k not in frame.columns)
+    for key in keys:
+        frame[key] = [runs.get(rid, {}).get(key) for rid in frame["run_id"]]
 
 
 def _status(rows: _Rows, Y: np.ndarray) -> list:
@@ -406,6 +441,7 @@ class ResultsStore:
         self.columns = ["run_id", *self.parameters, *self.responses, *META_COLUMNS]
         self._lock = None
         self._fh = None
+        self._extras = None
 
     # -- life cycle ------------------------------------------------------
     def __enter__(self):
@@ -438,9 +474,10 @@ class ResultsStore:
 
     def close(self) -> None:
         """Release the file and the lock."""
-        if self._fh is not None:
-            self._fh.close()
-            self._fh = None
+        for fh in (self._fh, self._extras):
+            if fh is not None:
+                fh.close()
+        self._fh = self._extras = None
         if self._lock is not None:
             fcntl.flock(self._lock, fcntl.LOCK_UN)
             self._lock.close()
@@ -478,6 +515,8 @@ class ResultsStore:
         """Store one finished run: one line, flushed and synced before returning."""
         if self._fh is None:
             raise ResultsError(f"{self.path}: the store is not open")
+        if outcome.extra:
+            self._append_extras(run_id, outcome.extra)
         cells = [run_id, *(_fmt(point[p]) for p in self.parameters),
                  *(_fmt(outcome.values.get(r, math.nan)) for r in self.responses),
                  outcome.status, outcome.source, outcome.message, f"{outcome.elapsed_s:.3f}"]
@@ -486,6 +525,13 @@ class ResultsStore:
         self._fh.write(buf.getvalue())
         self._fh.flush()
         os.fsync(self._fh.fileno())
+
+    def _append_extras(self, run_id: str, extra: dict) -> None:
+        if self._extras is None:
+            self._extras = open(extras_path(self.path), "a", encoding="utf-8")
+        self._extras.write(json.dumps({**extra, "run_id": run_id}) + "\n")
+        self._extras.flush()
+        os.fsync(self._extras.fileno())
 
     def drop_failed(self) -> int:
         """Remove failed rows (before rerunning them); atomic rewrite. Returns how many."""

@@ -743,3 +743,75 @@ TEST_FUNCTIONS.update({
                                           "Modelling, sec. 1.3; " + _VLSE),
 })
 __all__ += ["otl_circuit", "piston", "wing_weight"]
+
+
+# ---------------------------------------------------------------------------
+# Mixed inputs: continuous columns in the unit square, then one column of level indices 0 .. L-1.
+#: Values of Hartmann 3-D's first input behind the three levels of :func:`hartmann3_levels`.
+HARTMANN_LEVELS = (0.2, 0.5, 0.8)
+
+
+def hartmann3_levels(X, values=HARTMANN_LEVELS, column: int = 0) -> np.ndarray:
+    """Hartmann 3-D with one input held at a few values: two continuous inputs and a choice.
+
+    ``X[:, :2]`` are the other two inputs in ``[0, 1]``, ``X[:, 2]`` the level
+    index ``c``; the function is ``hartmann3`` with input ``column`` set to
+    ``values[c]``. With the first input at 0.2, 0.5 and 0.8 the three level
+    surfaces are slices of one smooth surface (their correlation over the
+    square is 0.88 to 0.98) yet differ in shape and scale: the case in which a
+    kernel that shares information across levels should beat one surrogate per
+    level. Holding the third input instead (``column=2``; correlations -0.6 to
+    0.2) gives levels that share little, the case in which it should not.
+
+    Defining a mixed test problem by restricting a continuous input of a
+    published function to a few values keeps its exact values known at every
+    level (Hartmann 3-D: Dixon & Szego 1978; [VLSE]_).
+    """
+    X = _points(X, 3, "hartmann3_levels")
+    c = _level_column(X[:, 2], len(values), "hartmann3_levels")
+    full = np.insert(X[:, :2], column, np.asarray(values, dtype=float)[c], axis=1)
+    return hartmann3(full)
+
+
+def _level_column(c, n_levels: int, name: str) -> np.ndarray:
+    idx = np.rint(c).astype(int)
+    if np.any(np.abs(c - idx) > 1e-9) or idx.min() < 0 or idx.max() >= n_levels:
+        raise DoeError(f"{name}: the last column must hold level indices 0 to {n_levels - 1}")
+    return idx
+
+
+#: Level effects ``h(c)`` of :func:`additive_levels` (three levels, equally likely).
+ADDITIVE_LEVEL_EFFECTS = (0.0, 0.8, -0.5)
+
+
+def additive_levels(X, a: float = 2.0, b: float = 1.0, h=ADDITIVE_LEVEL_EFFECTS) -> np.ndarray:
+    """An additive mixed function ``g(x) + h(c)`` with Sobol indices known in closed form.
+
+    ``g(x1, x2) = a sin(pi x1) + b (2 x2 - 1)^2`` on ``[0, 1]^2`` and ``h`` a
+    level effect per level of the choice ``c`` in ``X[:, 2]``. With
+    independent ``x1, x2 ~ U(0, 1)`` and every level equally likely the
+    variance splits into the parts' own variances (the ANOVA decomposition of
+    an additive function has no interaction terms; Sobol' 1993, Math. Model.
+    Comput. Exp. 1:407):
+
+    ``V1 = a^2 (1/2 - 4/pi^2)``, ``V2 = 4 b^2 / 45``, ``Vc = mean(h^2) - mean(h)^2``,
+
+    and ``S_i = ST_i = V_i / (V1 + V2 + Vc)`` (see :func:`additive_levels_indices`).
+    """
+    X = _points(X, 3, "additive_levels")
+    h = np.asarray(h, dtype=float)
+    c = _level_column(X[:, 2], len(h), "additive_levels")
+    return a * np.sin(np.pi * X[:, 0]) + b * (2 * X[:, 1] - 1) ** 2 + h[c]
+
+
+def additive_levels_indices(a: float = 2.0, b: float = 1.0, h=ADDITIVE_LEVEL_EFFECTS) -> dict:
+    """Partial variances and Sobol indices of :func:`additive_levels` (first order = total)."""
+    h = np.asarray(h, dtype=float)
+    # E[sin^2(pi x)] = 1/2, E[sin(pi x)] = 2/pi; E[(2x-1)^4] = 1/5, E[(2x-1)^2] = 1/3 for x ~ U(0, 1)
+    parts = {"x1": a**2 * (0.5 - 4 / math.pi**2), "x2": b**2 * (1 / 5 - 1 / 9), "c": float(np.var(h))}
+    total = sum(parts.values())
+    return {"V": parts, "S": {k: v / total for k, v in parts.items()}}
+
+
+__all__ += ["hartmann3_levels", "HARTMANN_LEVELS", "additive_levels", "additive_levels_indices",
+            "ADDITIVE_LEVEL_EFFECTS"]

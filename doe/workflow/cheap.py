@@ -30,10 +30,15 @@ __all__ = ["cheap_plan", "run_cheap", "cheap_study", "study_surrogates", "wants_
 NESTED_PREFIX = "at_"
 
 
-def default_cheap_path(results_path) -> Path:
-    """Where the cheap runs of a results file go by default: ``<results>.low.csv`` beside it."""
+def default_cheap_path(results_path, output_folder=None) -> Path:
+    """Where the cheap runs of a results file go by default: ``<results stem>.low.csv``.
+
+    In ``output_folder`` (a study's output folder, so that a recorded data set's
+    folder is left as it was committed), else beside the results. Named after the
+    results file, so that two results files of one study keep their own cheap runs.
+    """
     p = Path(results_path)
-    return p.with_name(p.stem + ".low.csv")
+    return (Path(output_folder) if output_folder is not None else p.parent) / (p.stem + ".low.csv")
 
 
 def cheap_plan(study, expensive: pd.DataFrame, spread: int | None = None) -> pd.DataFrame:
@@ -141,7 +146,7 @@ def study_surrogates(study, results, seed: int = 0, fidelity: str | None = None,
         Overrides ``[fit] fidelity``.
     cheap_path : str or Path, optional
         The cheap runs' results file; default :func:`default_cheap_path` of
-        the results file.
+        the results file in the study's output folder (``reports/<study name>/``).
     jobs : int
         Local workers for the cheap runs.
     progress : bool
@@ -157,7 +162,7 @@ def study_surrogates(study, results, seed: int = 0, fidelity: str | None = None,
     if cheap_path is None:
         if results.path is None:
             raise DoeError("give a file for the cheap runs (the results have no path to put it beside)")
-        cheap_path = default_cheap_path(results.path)
+        cheap_path = default_cheap_path(results.path, study.default_output)
     ok = results.ok
     summary, cheap = run_cheap(study, ok[["run_id", *study.space.names]], cheap_path, jobs=jobs, progress=progress)
     if say is not None:

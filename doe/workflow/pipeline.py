@@ -30,6 +30,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
+from threadpoolctl import threadpool_limits
 
 from .. import defaults
 from ..design.adaptive import accuracy_status
@@ -180,6 +181,15 @@ def analyse_and_report(study, results_path, files: StudyFiles, steps=None, next_
     in the output folder).
     """
     steps = steps or _Steps(5)  # fit, sensitivity, robust, next runs, report
+    # every analysis works on matrices of tens to a few thousand rows: BLAS threads only contend for the
+    # cores (on the 2-core machine of reports/benchmarks.md the robust search ran 4 times slower with them)
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _analyse_and_report(study, results_path, files, steps, next_runs, accept_outside, fidelity,
+                                   cheap_path)
+
+
+def _analyse_and_report(study, results_path, files: StudyFiles, steps, next_runs, accept_outside, fidelity,
+                        cheap_path) -> Path:
     results_path = Path(results_path)
     results = read_results(results_path, study, accept_outside=accept_outside)
     if len(results.ok) < 3:

@@ -7,7 +7,7 @@ import pandas as pd
 
 from ..errors import DoeError
 from ..robust.scatter import predict_checked
-from ..robust.search import DEFAULT_MAXITER, RobustResult, find_settings
+from ..robust.search import DEFAULT_MAXITER, DEFAULT_ROBUST_RESTARTS, RobustResult, find_settings
 from ..robust.tradeoff import tradeoff_set
 from ..vehicle import Aero, VehicleFigures, VehicleObjective, vehicle_figures
 
@@ -89,7 +89,8 @@ def only_responses(surrogates, names):
     return replace(surrogates, models={n: surrogates.models[n] for n in names})
 
 
-def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) -> RobustResult:
+def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER,
+                 robust_restarts: int = DEFAULT_ROBUST_RESTARTS) -> RobustResult:
     """:func:`find_settings` with a study's ``[robust]`` goals, units and ``[vehicle]`` figures.
 
     Parameters
@@ -99,7 +100,8 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) ->
         E.g. the ``predict`` of a fitted surrogate set.
     runs_X : array_like, optional
         Settings already run (study units).
-    maxiter : int
+    maxiter, robust_restarts : int
+        Generations of each search run, and runs of the robust search (:func:`find_settings`).
     """
     study.space.refuse_choices("the robust search (doe robust)")
     r = study.robust
@@ -111,7 +113,8 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER) ->
     vobj = study_vehicle_objective(study)
     return find_settings(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
                          probability=r.probability, samples=r.samples, seed=r.seed, runs_X=runs_X, units=units,
-                         vehicle_block=block, baseline=baseline, maxiter=maxiter, vehicle_objective=vobj,
+                         vehicle_block=block, baseline=baseline, maxiter=maxiter, robust_restarts=robust_restarts,
+                         vehicle_objective=vobj,
                          aero_responses=_aero_responses(study) if vobj is not None else None)
 
 

@@ -21,6 +21,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from threadpoolctl import threadpool_limits
+
 from ..design.adaptive import propose_runs
 from ..design.plans import augment_plan, make_plan
 from ..errors import DoeError
@@ -117,7 +119,8 @@ def sensitivity_step(study, out, **options):
 
     ``options`` go to :func:`~doe.workflow.sensitivity.study_sensitivity`.
     """
-    data = study_sensitivity_json(study, study_sensitivity(study, **options))
+    with threadpool_limits(limits=1, user_api="blas"):  # many small surrogate predictions: threads only contend
+        data = study_sensitivity_json(study, study_sensitivity(study, **options))
     write_json(data, out)
     return data
 

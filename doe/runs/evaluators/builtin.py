@@ -20,6 +20,16 @@ wing_thickness  %, -      NACA 4-digit thickness, % chord
 wing_overhang   mm, m     wing leading edge behind the hatch edge
 =============== ========= ===================================================
 
+Choice knobs (``levels = [...]``) named after :data:`doe.aero.CHOICE_INPUTS`
+change the geometry the model solves, run by run (see :mod:`doe.aero.choices`):
+
+=============== =======================================================================
+wing_section    NACA 4-digit names (``naca2412``) or coordinate files (relative to the study)
+flap_position   ``hatch_edge``, ``roof_edge`` (or a number 0-100, % of the rear window)
+flap            ``on``, ``off`` (off: no flap, whatever flap_chord says)
+wing            ``on``, ``off`` (off: the car and its flap alone)
+=============== =======================================================================
+
 Responses must be model outputs (:data:`doe.aero.OUTPUTS`), in their units.
 
 Study keys (all optional; defaults in brackets)::
@@ -63,9 +73,10 @@ from dataclasses import fields
 import numpy as np
 
 from ...aero.car import CarGeometry
+from ...aero.choices import CHOICE_INPUTS, ChoiceModel
 from ...aero.model import DESIGN_INPUTS, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
 from ...aero.sections import read_coords
-from ...errors import AeroError, DoeError
+from ...errors import AeroError, DoeError, StudyError, where
 from .base import Evaluator, Outcome, failed
 from .calibration_file import read_calibrated_coefficients
 
@@ -113,6 +124,7 @@ def read_builtin_settings(study, evaluator=None) -> tuple[ModelSettings, dict]:
     kw["has_wing"] = t.take("wing", bool, default=True)
     kw["ground"] = t.take("ground", bool, default=True)
     names = study.space.names
+    _check_choice_clashes(study, t)
     section = t.take("wing_section", str, default=None)
     if section is not None:
         if {"wing_camber", "wing_thickness"} & set(names):
@@ -138,7 +150,42 @@ def read_builtin_settings(study, evaluator=None) -> tuple[ModelSettings, dict]:
         settings = ModelSettings(**kw)
     except AeroError as exc:
         raise t.error(None, str(exc)) from exc
-    return settings, _conversions(study, t)
+    conversion = _conversions(study, t)
+    _check_levels(study, t, settings)
+    return settings, conversion
+
+
+def _check_choice_clashes(study, t) -> None:
+    """A choice knob must be one the model knows, and not also be fixed by an ``[evaluator]`` key."""
+    names = set(study.space.names)
+    for p in study.space.choices:
+        if p.name not in CHOICE_INPUTS:
+            raise _parameter_error(study, t, p.name, "name", f"choice knob '{p.name}' is not a choice of the builtin "
+                                   f"model (choices: {', '.join(CHOICE_INPUTS)})")
+    clashes = {"wing_section": ("wing_section", "wing_camber", "wing_thickness"), "wing": ("wing",)}
+    for knob, keys in clashes.items():
+        if knob not in names:
+            continue
+        key = next((k for k in keys if t.has(k) or (k != knob and k in names)), None)
+        if key is not None:
+            raise t.error(key if t.has(key) else None, f"'{key}' clashes with the choice knob '{knob}' "
+                                                       f"(the choice sets it run by run); leave it out")
+
+
+def _check_levels(study, t, settings) -> None:
+    """Every level of every choice knob must be usable (a section file is read here, once)."""
+    for p in study.space.choices:
+        try:
+            ChoiceModel(settings, {p.name: p.levels}, study.folder)
+        except AeroError as exc:
+            raise _parameter_error(study, t, p.name, "levels", str(exc)) from exc
+
+
+def _parameter_error(study, t, name, key, problem):
+    """A StudyError located at ``key`` of the ``[[parameters]]`` entry called ``name``."""
+    index = study.space.names.index(name)
+    line = t.source.line_of("parameters", key, index)
+    return StudyError(f"{where(t.source.path, line, f'[[parameters]] #{index + 1} {key}')}: {problem}")
 
 
 def _calibrated(study, t) -> dict:
@@ -171,7 +218,12 @@ def _read_dataclass(t, key, cls, defaults=None):
 def _conversions(study, t) -> dict:
     conv = {}
     for p in study.space.parameters:
+        if p.levels:
+            continue
         d = DESIGN_INPUTS.get(p.name)
+        if d is None and p.name in CHOICE_INPUTS:
+            raise t.error(None, f"parameter '{p.name}' is a choice of the builtin model: give it levels "
+                                f"({CHOICE_INPUTS[p.name]})")
         if d is None:
             raise t.error(None, f"parameter '{p.name}' is not an input of the builtin model "
                                 f"(known inputs: {', '.join(DESIGN_INPUTS)})")
@@ -214,20 +266,26 @@ class BuiltinEvaluator(Evaluator):
     conversion : dict
         Study parameter -> factor to the model's unit.
     responses : list of str
+    choices : dict of str to tuple of str, optional
+        Choice knob -> its level names (see :mod:`doe.aero.choices`).
+    folder : path
+        Folder that coordinate files named as levels are relative to.
     """
 
     kind = "builtin"
 
-    def __init__(self, settings: ModelSettings, conversion: dict, responses):
+    def __init__(self, settings: ModelSettings, conversion: dict, responses, choices=None, folder="."):
         super().__init__(responses)
-        self.model = RearPackageModel(settings)
+        self.choices = {k: tuple(v) for k, v in (choices or {}).items()}
+        self.model = ChoiceModel(settings, self.choices, folder) if self.choices else RearPackageModel(settings)
         self.conversion = dict(conversion)
 
     @classmethod
     def from_study(cls, study) -> "BuiltinEvaluator":
         """Build from a study's ``[evaluator]`` table."""
         settings, conv = read_builtin_settings(study)
-        return cls(settings, conv, study.response_names)
+        return cls(settings, conv, study.response_names, {p.name: p.levels for p in study.space.choices},
+                   study.folder)
 
     def evaluate(self, run_id: str, point: dict) -> Outcome:
         return self.evaluate_many([run_id], [point])[0]
@@ -236,11 +294,12 @@ class BuiltinEvaluator(Evaluator):
         start = time.monotonic()
         try:
             inputs = {name: np.array([float(p[name]) * f for p in points]) for name, f in self.conversion.items()}
+            levels = {name: np.array([names.index(str(p[name])) for p in points]) for name, names in self.choices.items()}
         except (KeyError, TypeError, ValueError) as exc:
             return [failed(self.responses, f"point is missing or has a bad value: {exc}", self.kind)
                     for _ in points]
         try:
-            result = self.model.evaluate(inputs)
+            result = self.model.evaluate(inputs, levels) if self.choices else self.model.evaluate(inputs)
         except AeroError as exc:
             return [failed(self.responses, str(exc), self.kind) for _ in points]
         each = (time.monotonic() - start) / max(len(points), 1)

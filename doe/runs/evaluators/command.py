@@ -4,7 +4,10 @@ Each run gets its own case folder ``<workspace>/<run_id>/``. The run's
 parameters are written there as ``params.json`` first; then the program named by
 ``argv`` is started *directly* (never through a shell) with that folder as its
 working directory; it must leave a JSON object with one number per response in
-``output``. A run that exits non-zero, takes longer than ``timeout_s``, writes
+``output``. Its other keys with a plain value (a number, a string, true or
+false: e.g. a solver's iterations, cells, convergence flag or the spread of a
+force) are kept as the run's extras (:attr:`Outcome.extra`) and stored beside
+the results (:class:`~doe.runs.results.ResultsStore`); nested values are left out. A run that exits non-zero, takes longer than ``timeout_s``, writes
 no output, malformed JSON or a non-finite number is a failed run whose message
 carries the reason and the tail of its log; the study goes on.
 
@@ -31,13 +34,15 @@ from pathlib import Path
 
 from ...checks import is_number
 from ...errors import EvaluatorError
-from ..outcome import safe_run_id
+from ..outcome import one_line, safe_run_id
 from .base import Evaluator, Outcome, failed
 
 __all__ = ["CommandSettings", "CommandEvaluator"]
 
 _PLACEHOLDER = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
 LOG_TAIL_CHARS = 300
+#: Most extra keys kept from one output file (the first ones, in file order).
+EXTRA_LIMIT = 64
 
 
 @dataclass(frozen=True)
@@ -181,7 +186,24 @@ class CommandEvaluator(Evaluator):
             if not math.isfinite(v):
                 return fail(f"{out_path.name}: '{r}' is {v}")
             values[r] = float(v)
-        return Outcome(values, "ok", "", self.kind, elapsed)
+        return Outcome(values, "ok", "", self.kind, elapsed, extra=plain_extras(data, self.responses))
+
+
+def plain_extras(data: dict, responses) -> dict:
+    """The keys of an output object besides the responses whose values are plain (number, string, bool).
+
+    Strings are folded to one line; non-finite numbers and nested values are
+    left out; at most :data:`EXTRA_LIMIT` keys are kept.
+    """
+    out = {}
+    for key, v in data.items():
+        if key in responses or not isinstance(key, str) or not key.strip() or len(out) >= EXTRA_LIMIT:
+            continue
+        if isinstance(v, bool) or (is_number(v) and math.isfinite(v)):
+            out[key] = v
+        elif isinstance(v, str):
+            out[key] = one_line(v)
+    return out
 
 
 def _kill_group(proc: subprocess.Popen) -> None:
