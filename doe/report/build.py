@@ -47,6 +47,11 @@ MODEL_LIMITS = (
     "The built-in model is two-dimensional potential flow with separation fixed at the body's trailing edge, "
     "corrected to three dimensions by lifting-line theory: no yaw, no cooling flow, no rotating wheels, no "
     "underbody detail; stall is estimated, not computed.",
+    "Held against 32 two-dimensional RANS runs of the same geometry (docs/cfd.md), the built-in model ranked "
+    "the configurations' total lift no better than chance (rank correlation 0.03) and gave the wrong sign for "
+    "four of the five knobs' effects on it (only the wing angle agreed; the wing's height, the largest effect "
+    "in RANS, it hardly sees); it followed drag and the wing's own lift better (0.41, 0.45). Treat its body "
+    "and total-lift trends as a hypothesis for CFD or testing to confirm, not as an answer.",
 )
 
 GOAL_WORDS = {"minimize": "as low as possible", "maximize": "as high as possible", "none": "watched, no goal"}
