@@ -11,9 +11,10 @@ are fitted by
 * **default**: what ``doe fit`` does with ``[fit] uncertainty = "auto"``
   (``doe.workflow.fit.fit_uncertainty``): the same fit plus a hyperparameter
   posterior (``doe.surrogate.hyperposterior.HyperPosterior``, Matern 5/2 with a
-  sampled linear trend) whose mixture over draws predicts, unless a Laplace
-  check finds the settings pinned down (then its posterior mode alone), or
-  there are at least 20 runs per parameter (then the plug-in fit).
+  sampled linear trend) whose mixture over draws predicts ("mixture"), unless a
+  short chain of draws finds the settings pinned down (then its posterior mode
+  alone, "plugin") or nearly so (the mode with its band widened by the measured
+  factor, "widened"); from 20 runs per parameter on, the mode alone.
 
 Measured per fit: the share of 1000 uniform held-out points whose error lies
 inside the 2-sigma band; the held-out q2; the 95 % intervals of the surrogate
@@ -246,7 +247,7 @@ def _fit_time_lines(seeds) -> list:
     a = (0.0, 1.0, 4.5, 9.0, 99.0)
     lines = ["### Fit time: 60 runs in 5 parameters (G-function, a = 0, 1, 4.5, 9, 99), one response", "",
              "The default fit is what `doe fit` does per response (`doe.workflow.fit`: the surrogate, then "
-             "`fit_uncertainty` with `uncertainty = \"auto\"`: hyperparameter posterior, Laplace check, q2 draws). "
+             "`fit_uncertainty` with `uncertainty = \"auto\"`: hyperparameter posterior, short-chain check, q2 draws). "
              "The issue's limit: under 10 s per response.", "",
              "| seed | plug-in fit: CPU s / wall s | default fit: CPU s / wall s | method | "
              "`uncertainty = \"mixture\"`: CPU s / wall s (sampler evaluations, draws kept) |",

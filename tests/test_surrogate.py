@@ -191,7 +191,7 @@ def test_fit_set_report_and_round_trip(tmp_path):
     for key in ("q2_loo", "rmse_loo", "verdict", "standardised_residuals", "noise", "length_scales"):
         assert key in rep["f"]
     # 20 maximin runs of Branin: the plug-in fit reaches q2_loo 0.934 (measured), but its kernel's settings are
-    # uncertain (the Laplace check widens the band by 16 %), so the mixture predicts; its importance-weighted
+    # uncertain (the short-chain check widens the band by more than 10 %), so the mixture predicts; its importance-weighted
     # leave-one-out q2 is 0.81 (measured): "add runs", by the rule in doe.surrogate.diagnostics.verdict
     assert rep["f"]["noise"] == "fixed" and rep["f"]["uncertainty"] == "mixture" and "uncertain" in rep["f"]["uncertainty_reason"]
     assert rep["f"]["q2_loo_plugin"] == pytest.approx(0.934, abs=0.005) and rep["f"]["verdict"] == "add runs"

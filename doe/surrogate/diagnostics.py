@@ -12,8 +12,10 @@ Keys of each response (units in brackets):
                                better than the mean of the runs (of the mixture when it is used:
                                importance-weighted over its draws)
 ``rmse_loo``                   root mean square leave-one-out error [response unit]
-``uncertainty``                ``"mixture"`` (predictions average over sampled kernel settings) or
-                               ``"plugin"`` (the fitted settings alone); ``uncertainty_reason`` says why
+``uncertainty``                ``"mixture"`` (predictions average over sampled kernel settings),
+                               ``"widened"`` (the best settings, band widened by the spread the
+                               samples showed) or ``"plugin"`` (the fitted settings alone);
+                               ``uncertainty_reason`` says why
 ``q2_low``                     5 % quantile of the posterior draws of the map's q2 [-]: with 95 %
                                probability (under the model) the map is at least this accurate
 ``q2_loo_plugin``              ``q2_loo`` of the fitted settings alone [-], for comparison

@@ -11,7 +11,8 @@ import numpy as np
 from .. import defaults
 from ..errors import SurrogateError
 from ..surrogate.gp import ResponseSurrogate
-from ..surrogate.hyperposterior import PLUGIN_RUNS_PER_PARAMETER, HyperPosterior
+from ..surrogate.hyperposterior import HyperPosterior
+from ..surrogate.kernels import kernel_label
 from ..surrogate.set import SurrogateSet, uncertainty_record
 from ..surrogate.twofidelity import TwoFidelitySurrogate
 
@@ -130,17 +131,16 @@ def fit_uncertainty(model, uncertainty: str = "auto", seed: int = 0) -> tuple:
     Returns
     -------
     posterior : HyperPosterior or None
-        The mixture, or (``auto``, when the runs pin the settings down) its
-        posterior mode alone; None when the fitted surrogate itself predicts
-        (``plugin``, two fidelities, a constant response, or at least
-        :data:`~doe.surrogate.hyperposterior.PLUGIN_RUNS_PER_PARAMETER` runs
-        per parameter).
+        The mixture, or (``auto``, when the runs pin the settings down, e.g.
+        at least :data:`~doe.surrogate.hyperposterior.PLUGIN_RUNS_PER_PARAMETER`
+        runs per parameter) its posterior mode alone, possibly with a widened
+        band; None when the fitted surrogate itself predicts (``plugin``, two
+        fidelities, a constant response).
     record : dict
         ``method`` ("mixture" or "plugin"), ``reason`` (one sentence),
         ``q2_low`` (5 % quantile of the posterior draws of the map's q2) and
         ``q2_loo_plugin`` (see :func:`doe.surrogate.set.uncertainty_record`).
     """
-    n, d = model.X_unit_.shape
     posterior, reason = None, ""
     if getattr(model, "fidelity", "single") == "two":
         reason = "two-fidelity surrogates use their fitted kernel settings (plug-in)"
@@ -148,15 +148,12 @@ def fit_uncertainty(model, uncertainty: str = "auto", seed: int = 0) -> tuple:
         reason = "the response is constant"
     elif uncertainty == "plugin":
         reason = 'the plug-in fit was asked for ([fit] uncertainty = "plugin")'
-    elif uncertainty == "auto" and n >= PLUGIN_RUNS_PER_PARAMETER * d:
-        reason = (f"{n} runs for {d} parameters (at least {PLUGIN_RUNS_PER_PARAMETER} per parameter): the kernel's "
-                  "settings are well determined, so the fitted settings alone (plug-in) are used")
     else:
         hp = HyperPosterior(family=MIXTURE_KERNEL[0] if model.kernel == "auto" else model.kernel,
                             trend=MIXTURE_KERNEL[1] if model.trend == "auto" else model.trend,
                             noise="learn" if model.learn_noise_ else "fixed", mode=uncertainty,
                             seed=seed).fit(model.X_unit_, model.y_)
-        posterior, reason = hp, hp.reason_
+        posterior, reason = hp, f"{hp.reason_} (posterior of a {kernel_label(hp.family, hp.trend)} kernel)"
     return posterior, uncertainty_record(model, posterior, reason, seed)
 
 

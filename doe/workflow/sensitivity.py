@@ -85,17 +85,23 @@ def study_inputs(study, around=None) -> InputDistribution:
 def surrogate_callables(surrogates):
     """``(model, paths)`` for :func:`~doe.sensitivity.sobol.sobol_indices` from a fitted ``SurrogateSet``.
 
-    ``model`` is the posterior mean of every response (no standard deviation
-    is computed); ``paths`` the set's joint posterior draws. Both come from
-    what predicts each response: the mixture over kernel settings when it is
-    used, so the intervals carry the uncertainty of those settings too.
+    ``paths`` are the set's joint posterior draws, from what predicts each
+    response: the mixture over kernel settings when it is used, so the
+    intervals carry the uncertainty of those settings too. ``model`` is the
+    control variate of the paths and the large-sample part of the estimate: the
+    posterior mean, or for a mixture the mean of its posterior mode (one draw
+    instead of all, and as good a control variate: the indices are centred on
+    the mean over paths either way, see :mod:`doe.sensitivity.sobol`).
     """
     space = surrogates.space
 
+    def centre(name, U):
+        p = surrogates.predictor(name)
+        return p.centre(U) if hasattr(p, "centre") else p.predict(U, return_std=False)
+
     def model(X):
         U = space.to_unit(X)
-        return {r: np.asarray(surrogates.predictor(r).predict(U, return_std=False), dtype=float)
-                for r in surrogates.models}
+        return {r: np.asarray(centre(r, U), dtype=float) for r in surrogates.models}
 
     def paths(X, n_paths, seed):
         return surrogates.sample_paths(X, n_paths, seed)
