@@ -162,6 +162,9 @@ COMPRESS_TOL = 0.05
 #: Name and version of a saved record.
 FORMAT = ("doe-hyperposterior", 1)
 _NU = {"matern52": 2.5, "matern32": 1.5}
+#: Largest number of elements of one stacked prediction array (draws x points x runs x parameters): 4e6
+#: doubles, 32 MB.
+STACK_ELEMENTS = 4_000_000
 
 
 # ---------------------------------------------------------------------------
@@ -394,6 +397,48 @@ class _Draw:
         """Leave-one-out means and variances, normalised units (Rasmussen & Williams 2006, eq. 5.12)."""
         dinv = np.diag(cho_solve((self.L_, True), np.eye(len(self.yn_)), check_finite=False))
         return self.yn_ - self.alpha_ / dinv, 1.0 / dinv
+
+
+def _unit_correlation(family: str, r: np.ndarray) -> np.ndarray:
+    """The stationary correlation at scaled distance ``r`` (Rasmussen & Williams 2006, eqs. 4.9, 4.17)."""
+    if family == "sqexp":
+        return np.exp(-0.5 * r * r)
+    if family == "matern32":
+        a = np.sqrt(3.0) * r
+        return (1.0 + a) * np.exp(-a)
+    a = np.sqrt(5.0) * r
+    return (1.0 + a + a * a / 3.0) * np.exp(-a)
+
+
+def _stack_draws(draws) -> dict:
+    """Every draw's parameters, weights and inverse Cholesky factor stacked along a first axis."""
+    parts = [d._parts() for d in draws]
+    linv = np.array([solve_triangular(d.L_, np.eye(len(d.yn_)), lower=True, check_finite=False) for d in draws])
+    return {"family": draws[0].family, "trend": draws[0].trend, "Z": draws[0].Z_,
+            "amplitude": np.array([p["amplitude"] for p in parts]),
+            "length_scales": np.array([np.broadcast_to(p["length_scales"], (draws[0].d,)) for p in parts]),
+            "trend_variance": np.array([p["trend_variance"] for p in parts]),
+            "alpha": np.array([d.alpha_ for d in draws]), "linv": linv}
+
+
+def _stacked_posterior(st: dict, Z: np.ndarray):
+    """Means and variances of all draws at ``Z`` at once; the same numbers as each draw's
+    ``_posterior_normalised`` (the kernel of :func:`_sklearn_kernel`, written out with NumPy)."""
+    ls = st["length_scales"]                                          # (J, d)
+    diff = Z[None, :, None, :] - st["Z"][None, None, :, :]             # (1, m, n, d)
+    r = np.sqrt(np.sum((diff / ls[:, None, None, :]) ** 2, axis=-1))  # (J, m, n)
+    ks = st["amplitude"][:, None, None] * _unit_correlation(st["family"], r)
+    if st["trend"] == "linear":
+        dot = Z @ st["Z"].T + 1.0
+        ks = ks + st["trend_variance"][:, None, None] * dot[None]
+        prior = st["amplitude"][:, None] + st["trend_variance"][:, None] * (np.sum(Z * Z, axis=1) + 1.0)[None]
+    else:
+        ks = ks + st["trend_variance"][:, None, None]
+        prior = (st["amplitude"] + st["trend_variance"])[:, None] * np.ones(len(Z))[None]
+    mean = np.einsum("jmn,jn->jm", ks, st["alpha"])
+    v = np.einsum("jkn,jmn->jmk", st["linv"], ks)                    # L^-1 k*, as each draw's triangular solve
+    explained = np.einsum("jmk,jmk->jm", v, v)
+    return mean, np.clip(prior - explained, 0.0, None)
 
 
 def _sklearn_kernel(parts: dict):
@@ -741,8 +786,23 @@ class HyperPosterior:
         """Mean and variance of every draw at ``X_unit``, normalised units, each of shape ``(J, m)``."""
         self._check_fitted()
         Z = self._check_points(X_unit) - 0.5
+        if len(self.draws_) > 1:
+            st = self._stack()
+            step = max(1, STACK_ELEMENTS // (len(self.draws_) * st["Z"].size))     # bounded memory per chunk
+            parts = [_stacked_posterior(st, Z[i:i + step]) for i in range(0, len(Z), step)] or [
+                _stacked_posterior(st, Z)]
+            return np.concatenate([m for m, _ in parts], axis=1), np.concatenate([v for _, v in parts], axis=1)
         out = [d._posterior_normalised(Z) for d in self.draws_]
         return np.array([m for m, _ in out]), np.array([v for _, v in out])
+
+    def _stack(self) -> dict:
+        """The draws' kernels and solves as stacked arrays (built once per set of draws)."""
+        cached = getattr(self, "_stack_cache", None)
+        if cached is not None and cached[0] is self.draws_:
+            return cached[1]
+        stack = _stack_draws(self.draws_)
+        self._stack_cache = (self.draws_, stack)
+        return stack
 
     def predict(self, X_unit, return_std=False):
         """Mixture mean (and standard deviation) of the response over the draws.
