@@ -441,6 +441,28 @@ def _stacked_posterior(st: dict, Z: np.ndarray):
     return mean, np.clip(prior - explained, 0.0, None)
 
 
+def _draws_posterior(draws, Z, stack=None):
+    """Means and variances of every draw at ``Z`` (normalised units), each of shape ``(J, m)``.
+
+    Several draws go through :func:`_stacked_posterior` in chunks of at most
+    :data:`STACK_ELEMENTS` elements (``stack`` from :func:`_stack_draws`, built
+    here when not given); a single draw through its own posterior.
+    """
+    if len(draws) == 1:
+        m, v = draws[0]._posterior_normalised(Z)
+        return m[None, :], v[None, :]
+    st = _stack_draws(draws) if stack is None else stack
+    step = max(1, STACK_ELEMENTS // (len(draws) * st["Z"].size))
+    parts = [_stacked_posterior(st, Z[i:i + step]) for i in range(0, max(len(Z), 1), step)]
+    return np.concatenate([m for m, _ in parts], axis=1), np.concatenate([v for _, v in parts], axis=1)
+
+
+def _mixture_moments(means, variances):
+    """Mean and variance (law of total variance, not clipped) of the equal-weight mixture of the draws."""
+    mean = means.mean(axis=0)
+    return mean, np.mean(variances + means**2, axis=0) - mean**2
+
+
 def _sklearn_kernel(parts: dict):
     """The mean function's covariance as a scikit-learn kernel (same form as :mod:`doe.surrogate`)."""
     ls = parts["length_scales"]
@@ -678,10 +700,8 @@ class HyperPosterior:
         C = qmc.Sobol(target.d, scramble=True, seed=rng).random(CHECK_POINTS) - 0.5
         m0, v0 = _Draw(target, self.theta_map_)._posterior_normalised(C)
         thetas, self.check_evaluations_ = self._chain(target, W, rng, CHECK_BURN, CHECK_DRAWS, CHECK_THIN)
-        parts = [_Draw(target, theta)._posterior_normalised(C) for theta in thetas]
-        ms, vs = np.array([m for m, _ in parts]), np.array([v for _, v in parts])
-        mean = ms.mean(axis=0)
-        var = np.mean(vs + ms**2, axis=0) - mean**2
+        ms, vs = _draws_posterior([_Draw(target, theta) for theta in thetas], C)
+        mean, var = _mixture_moments(ms, vs)
         scale = max(float(np.mean(v0)), 1e-300)
         # the mean of K draws scatters by (between-draw variance) / K about the mixture's mean even when that
         # equals the mode's: subtract that part of the squared shift (Monte-Carlo error, not a real shift)
@@ -701,12 +721,11 @@ class HyperPosterior:
         J = len(self.draws_)
         rng = np.random.default_rng([int(self.seed), 2])
         C = qmc.Sobol(target.d, scramble=True, seed=rng).random(CHECK_POINTS) - 0.5
-        parts = [d._posterior_normalised(C) for d in self.draws_]
-        ms, vs = np.array([m for m, _ in parts]), np.array([v for _, v in parts])
+        ms, vs = _draws_posterior(self.draws_, C)
 
         def moments(rows):
-            m = ms[rows].mean(axis=0)
-            return m, np.sqrt(np.clip(np.mean(vs[rows] + ms[rows] ** 2, axis=0) - m**2, 0.0, None))
+            m, var = _mixture_moments(ms[rows], vs[rows])
+            return m, np.sqrt(np.clip(var, 0.0, None))
 
         full_m, full_s = moments(np.arange(J))
         scale = max(float(np.sqrt(np.mean(full_s**2))), 1e-300)
@@ -786,14 +805,7 @@ class HyperPosterior:
         """Mean and variance of every draw at ``X_unit``, normalised units, each of shape ``(J, m)``."""
         self._check_fitted()
         Z = self._check_points(X_unit) - 0.5
-        if len(self.draws_) > 1:
-            st = self._stack()
-            step = max(1, STACK_ELEMENTS // (len(self.draws_) * st["Z"].size))     # bounded memory per chunk
-            parts = [_stacked_posterior(st, Z[i:i + step]) for i in range(0, len(Z), step)] or [
-                _stacked_posterior(st, Z)]
-            return np.concatenate([m for m, _ in parts], axis=1), np.concatenate([v for _, v in parts], axis=1)
-        out = [d._posterior_normalised(Z) for d in self.draws_]
-        return np.array([m for m, _ in out]), np.array([v for _, v in out])
+        return _draws_posterior(self.draws_, Z, self._stack() if len(self.draws_) > 1 else None)
 
     def _stack(self) -> dict:
         """The draws' kernels and solves as stacked arrays (built once per set of draws)."""
@@ -822,13 +834,11 @@ class HyperPosterior:
         std : ndarray, shape (m,), only with ``return_std``
             Response unit.
         """
-        means, variances = self.predict_draws(X_unit)
-        mean = means.mean(axis=0)
+        mean, var = _mixture_moments(*self.predict_draws(X_unit))
         out = self.y_mean_ + self.y_std_ * mean
         if not return_std:
             return out
-        var = np.clip(np.mean(variances + means**2, axis=0) - mean**2, 0.0, None)
-        return out, self.band_scale_ * self.y_std_ * np.sqrt(var)
+        return out, self.band_scale_ * self.y_std_ * np.sqrt(np.clip(var, 0.0, None))
 
     def centre(self, X_unit) -> np.ndarray:
         """The posterior mode's mean (response unit): one draw, a cheap stand-in for the mean where only a
