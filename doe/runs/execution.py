@@ -184,17 +184,19 @@ def _run_on(executor, evaluator, ids, points, keep) -> None:
         while queue and len(in_flight) < window:
             chunk = queue.pop()
             in_flight[executor.submit(evaluator, *chunk)] = chunk
+        died = False
         for handle, result in executor.wait_any(list(in_flight)):
             chunk_ids, chunk_pts = in_flight.pop(handle)
             if isinstance(result, WorkerDied) and isinstance(executor, LocalProcesses):
                 suspects += zip(chunk_ids, chunk_pts)
+                died = True
             elif isinstance(result, BaseException):
                 for rid, pt in zip(chunk_ids, chunk_pts):
                     keep(rid, pt, _error_outcome(evaluator, result))
             else:
                 for rid, pt, out in zip(chunk_ids, chunk_pts, result):
                     keep(rid, pt, out)
-        if suspects and isinstance(executor, LocalProcesses):
+        if died:  # only a death in this wait breaks the pool; earlier suspects wait for the end
             # A dead worker breaks the whole local pool: the other runs in flight were lost too.
             for chunk_ids, chunk_pts in in_flight.values():
                 suspects += zip(chunk_ids, chunk_pts)
@@ -204,19 +206,29 @@ def _run_on(executor, evaluator, ids, points, keep) -> None:
 
 
 def _run_suspects(evaluator, suspects, keep) -> None:
-    """Retry, one at a time on a fresh single worker, the runs whose worker died."""
-    for rid, pt in suspects:
-        solo = LocalProcesses(1)
-        try:
+    """Retry, one at a time on a single fresh worker, the runs whose worker died.
+
+    The runs go through one worker process in turn, so a run that kills its worker
+    again is known for certain; only then is the worker replaced (starting a
+    process costs about a second of imports, which a run that lives need not pay).
+    """
+    solo = None
+    try:
+        for rid, pt in suspects:
+            if solo is None:
+                solo = LocalProcesses(1)
             handle = solo.submit(evaluator, [rid], [pt])
             (_, result), = solo.wait_any([handle])
-        finally:
+            if isinstance(result, WorkerDied):
+                solo.close(cancel=True)
+                solo = None
+            if isinstance(result, BaseException):
+                keep(rid, pt, _error_outcome(evaluator, result, retried=True))
+            else:
+                keep(rid, pt, result[0])
+    finally:
+        if solo is not None:
             solo.close(cancel=True)
-        if isinstance(result, BaseException):
-            keep(rid, pt, _error_outcome(evaluator, result, retried=True))
-        else:
-            keep(rid, pt, result[0])
-
 
 
 def _error_outcome(evaluator, exc: BaseException, retried: bool = False):
