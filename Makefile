@@ -15,9 +15,10 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(VENV)/bin/doe run studies/demo_hatch.toml
 
-# one BLAS thread: the tests work on small matrices, where a second thread only contends for the cores
+# one pytest worker per core (pytest-xdist; a file's tests stay on one worker, so its shared fixtures are
+# built once), and one BLAS thread each: the tests work on small matrices, where more threads only contend
 test: $(STAMP)
-	OPENBLAS_NUM_THREADS=1 OMP_NUM_THREADS=1 $(PY) -m pytest; rc=$$?; if [ $$rc -eq 5 ]; then echo "no tests collected"; exit 0; fi; exit $$rc
+	OPENBLAS_NUM_THREADS=1 OMP_NUM_THREADS=1 $(PY) -m pytest -n auto --dist loadfile; rc=$$?; if [ $$rc -eq 5 ]; then echo "no tests collected"; exit 0; fi; exit $$rc
 
 bench: $(STAMP)
 	$(PY) -m pytest -m slow
