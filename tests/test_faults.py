@@ -122,19 +122,36 @@ def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):
     proc = subprocess.Popen(_cli(study_file, plan, out), env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                             text=True)
     _wait_rows(out, 2)
-    proc.send_signal(signal.SIGINT)
-    try:
-        _, err = proc.communicate(timeout=2)
-    except subprocess.TimeoutExpired:
-        # Seen about once in five full-suite runs (never alone): the first SIGINT is not acted on and the run
-        # goes on; a user presses Ctrl-C again, so does the test. Cause not found yet.
-        proc.send_signal(signal.SIGINT)
-        _, err = proc.communicate(timeout=30)
+    proc.send_signal(signal.SIGINT)   # once: a press swallowed in a finaliser is caught (test below)
+    _, err = proc.communicate(timeout=30)
     assert proc.returncode == 130
     assert "run the same command again to resume" in err
     assert "Traceback" not in err
     stored = pd.read_csv(out)
     assert 2 <= len(stored) < 10 and (stored["status"] == "ok").all()
+
+
+class _PressesCtrlCInAFinaliser(Toy):
+    """At run r003 a Ctrl-C lands while Python runs a finaliser, where its KeyboardInterrupt is only printed."""
+
+    def evaluate(self, run_id, point):
+        if run_id == "r003":
+            class Finalised:
+                def __del__(self):
+                    os.kill(os.getpid(), signal.SIGINT)
+                    time.sleep(0.01)     # the handler runs here, inside __del__
+            Finalised()
+        return super().evaluate(run_id, point)
+
+
+@pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")   # the swallowed interrupt
+def test_ctrl_c_swallowed_by_a_finaliser_still_stops_at_the_next_run(tmp_path):
+    from doe.runs.execution import Interrupted
+
+    out = tmp_path / "res.csv"
+    with pytest.raises(Interrupted, match="3 of 12 runs are stored"):
+        evaluate_plan(toy_plan(), _PressesCtrlCInAFinaliser(), out, ["x1", "x2"], progress=False)
+    assert list(pd.read_csv(out)["run_id"]) == ["r001", "r002", "r003"]
 
 
 @pytest.mark.slow   # test_command_evaluator's kill-then-resume checks the same in the fast set

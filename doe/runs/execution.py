@@ -18,7 +18,10 @@ What happens to a run that goes wrong
 """
 from __future__ import annotations
 
+import signal
 import sys
+import threading
+from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
@@ -33,6 +36,38 @@ __all__ = ["EvaluationSummary", "Interrupted", "evaluate_plan", "TASKS_PER_WORKE
 
 #: Tasks kept in flight per worker: enough to keep workers busy, few enough to stream.
 TASKS_PER_WORKER = 2
+
+
+class _CtrlC:
+    """Whether Ctrl-C was pressed while runs were evaluated (see :func:`_watch_ctrl_c`)."""
+
+    pressed = False
+
+    def handler(self, signum, frame):
+        self.pressed = True
+        raise KeyboardInterrupt
+
+
+@contextmanager
+def _watch_ctrl_c():
+    """Note every Ctrl-C (SIGINT) while the block runs, besides raising KeyboardInterrupt as Python does.
+
+    Python raises KeyboardInterrupt wherever the main thread happens to be;
+    when that is a finaliser run by the garbage collector, the exception is
+    printed as ignored and the evaluation would go on. The note lets the loop
+    stop at the next stored run all the same. Outside the main thread, or when
+    the caller installed its own handler, nothing is changed.
+    """
+    seen = _CtrlC()
+    if threading.current_thread() is not threading.main_thread() or \
+            signal.getsignal(signal.SIGINT) is not signal.default_int_handler:
+        yield seen
+        return
+    signal.signal(signal.SIGINT, seen.handler)
+    try:
+        yield seen
+    finally:
+        signal.signal(signal.SIGINT, signal.default_int_handler)
 
 
 class Interrupted(DoeError):
@@ -120,7 +155,7 @@ def evaluate_plan(plan, evaluator, store_path, parameters, jobs: int = 1, retry_
     Interrupted
         On Ctrl-C, after the finished runs are stored.
     """
-    with ResultsStore(store_path, parameters, evaluator.responses) as store:
+    with ResultsStore(store_path, parameters, evaluator.responses) as store, _watch_ctrl_c() as ctrl_c:
         _check_same_points(plan, store, parameters)
         if retry_failed:
             store.drop_failed()
@@ -140,6 +175,8 @@ def evaluate_plan(plan, evaluator, store_path, parameters, jobs: int = 1, retry_
             summary.failed += outcome.status != "ok"
             bar.update(1)
             bar.set_postfix(failed=summary.failed, refresh=False)
+            if ctrl_c.pressed:  # a Ctrl-C whose KeyboardInterrupt was swallowed somewhere: stop here
+                raise KeyboardInterrupt
 
         own = executor is None
         try:
