@@ -102,7 +102,7 @@ def _add_fidelity_options(p):
                         "the results alone (default: [fit] fidelity, auto = two when [low_fidelity] exists)")
     p.add_argument("--cheap-results", type=Path, metavar="CSV",
                    help="results file of the cheap model's runs (made or resumed; default: "
-                        "reports/<study name>/<results>.low.csv)")
+                        "<results>.low.csv in the folder that holds --out, else in reports/<study name>/)")
 
 
 def _add_results_options(p, results_required: bool = True):
@@ -123,6 +123,15 @@ def _study_results(args):
     return study, results, args.seed if args.seed is not None else study.plan.seed
 
 
+def _cheap_path(args):
+    """``--cheap-results``, else beside the verb's ``--out`` when given (None: the study's output folder)."""
+    from .workflow.cheap import default_cheap_path
+
+    if args.cheap_results is not None or getattr(args, "out", None) is None:
+        return args.cheap_results
+    return default_cheap_path(args.results, Path(args.out).parent)
+
+
 def _surrogates(args, study, results, seed):
     """Surrogates loaded from ``--surrogate`` when given, else fitted to the results."""
     from .workflow.cheap import study_surrogates
@@ -130,7 +139,7 @@ def _surrogates(args, study, results, seed):
 
     if getattr(args, "surrogate", None):
         return load_surrogates(args.surrogate, study)
-    return study_surrogates(study, results, seed=seed, fidelity=args.fidelity, cheap_path=args.cheap_results,
+    return study_surrogates(study, results, seed=seed, fidelity=args.fidelity, cheap_path=_cheap_path(args),
                             say=_say)
 
 
@@ -155,7 +164,7 @@ def _cmd_fit(args):
 
     study, results, seed = _study_results(args)
     out = args.out or study.default_output / "surrogate"
-    sset = fit_step(study, results, out, seed=seed, fidelity=args.fidelity, cheap_path=args.cheap_results, say=_say)
+    sset = fit_step(study, results, out, seed=seed, fidelity=args.fidelity, cheap_path=_cheap_path(args), say=_say)
     for line in fit_lines(sset.fit_report()):
         _say(line)
     print(f"wrote {out}/fit.json")

@@ -145,7 +145,7 @@ STUDY = study_text("two-levels", [("x", "-", 0.0, 1.0)], [("y", "-", "minimize")
 
 @pytest.fixture
 def two_level_study(tmp_path, monkeypatch):
-    monkeypatch.chdir(tmp_path)                  # cheap runs go to the study's output folder, reports/<name>/
+    monkeypatch.chdir(tmp_path)                  # without --out, cheap runs go to the study's output folder
     (tmp_path / "cheap.py").write_text(textwrap.dedent(CHEAP_CASE))
     study = tmp_path / "study.toml"
     study.write_text(STUDY.replace("{python}", sys.executable.replace("\\", "/")))
@@ -157,20 +157,22 @@ def two_level_study(tmp_path, monkeypatch):
 
 def test_cli_fit_two_fidelity_then_single(two_level_study, tmp_path, capsys):
     results = str(tmp_path / "high.csv")
-    assert main(["fit", str(two_level_study), "--results", results, "--out", str(tmp_path / "two")]) == 0
-    rep = json.loads((tmp_path / "two" / "fit.json").read_text())["y"]
+    two = tmp_path / "fits" / "two"
+    assert main(["fit", str(two_level_study), "--results", results, "--out", str(two)]) == 0
+    rep = json.loads((two / "fit.json").read_text())["y"]
     assert rep["fidelity"] == "two" and rep["two_fidelity"]["rho"] == pytest.approx(2.0, rel=0.01)
     assert rep["two_fidelity"]["nested_points"] == 6 and rep["two_fidelity"]["cheap_runs"] == 17
     assert not (tmp_path / "high.low.csv").exists()      # nothing is written beside the recorded results
-    cheap = pd.read_csv(next((tmp_path / "reports").glob("*/high.low.csv")))
+    assert not (tmp_path / "reports").exists()           # nor in the study's output folder: --out says where
+    cheap = pd.read_csv(tmp_path / "fits" / "high.low.csv")
     assert len(cheap) == 17 and cheap["run_id"].str.startswith("at_").sum() == 6
     assert "17 evaluated now" in capsys.readouterr().err
     # a second fit reuses the cheap runs
-    assert main(["fit", str(two_level_study), "--results", results, "--out", str(tmp_path / "two")]) == 0
+    assert main(["fit", str(two_level_study), "--results", results, "--out", str(two)]) == 0
     assert "0 evaluated now" in capsys.readouterr().err
     # saved and loaded: the same predictions
     study = load_study(two_level_study)
-    sset = load_surrogates(tmp_path / "two", study)
+    sset = load_surrogates(two, study)
     X = np.linspace(0, 1, 50)[:, None]
     assert np.allclose(sset.predict(X)["y"][0], forrester_high(X[:, 0]), atol=0.5)   # spread of y about 4.4
     assert main(["fit", str(two_level_study), "--results", results, "--fidelity", "single",
