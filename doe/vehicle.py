@@ -57,6 +57,7 @@ from dataclasses import asdict, dataclass, field
 
 import numpy as np
 
+from .aero.atmosphere import ISA_DENSITY
 from .checks import check_limit_bounds
 from .errors import DoeError
 
@@ -68,8 +69,8 @@ __all__ = ["G", "RHO_SEA_LEVEL", "DRIVES", "Vehicle", "Aero", "Segment", "Track"
 
 #: Standard gravity, m/s^2 (ISO 80000-3).
 G = 9.80665
-#: ISA sea-level air density, kg/m^3 (ISO 2533:1975).
-RHO_SEA_LEVEL = 1.2250
+#: ISA sea-level air density, kg/m^3 (ISO 2533:1975): the aero model's own value, one number for both.
+RHO_SEA_LEVEL = ISA_DENSITY
 #: Driven axles accepted by :class:`Vehicle`.
 DRIVES = ("front", "rear", "all")
 
