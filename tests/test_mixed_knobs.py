@@ -223,6 +223,3 @@ def test_steps_not_ready_for_choices_refuse_in_one_line(tmp_path):
     for step, call in calls.items():
         with pytest.raises(DoeError, match=f"^choice knobs are not yet supported by {step} .*: section, flap$"):
             call()
-    with pytest.raises(PlanError, match="choice knobs are not yet supported by plan augmentation"):
-        from doe.design.plans import augment_plan
-        augment_plan(study.space, frame, 2)
