@@ -88,3 +88,146 @@ def test_augmentation_inside_constraints_and_reproducible():
         d = np.sqrt(((U[:, None] - U[None]) ** 2).sum(-1)) + np.eye(len(U)) * 9
         assert d.min() > 0.05
     assert more.frame.equals(augment_plan(space, first.frame, 6, seed=2).frame)
+
+
+# ---------------------------------------------------------------------------
+# doe next
+def test_allocation_fills_the_fewest_first_and_breaks_ties_by_score():
+    from doe.design.level_proposals import allocate_runs
+
+    # balanced plan: the share stays within one (issue 18), the extra runs go to the largest scores
+    np.testing.assert_array_equal(allocate_runs([4, 4, 4, 4], [0.1, 0.4, 0.3, 0.2], 6), [1, 2, 2, 1])
+    # a combination that lost runs is topped up before any other gets one, whatever the scores
+    np.testing.assert_array_equal(allocate_runs([2, 4, 4, 3], [0.0, 9.0, 9.0, 0.0], 3), [2, 0, 0, 1])
+    # then every combination has 4: the higher scores first, equal scores in combination order
+    np.testing.assert_array_equal(allocate_runs([2, 4, 4, 3], [0.0, 9.0, 9.0, 0.0], 6), [3, 1, 1, 1])
+
+
+@pytest.fixture(scope="module")
+def mixed_fit():
+    from doe.surrogate.mixed import MixedSurrogate
+
+    rng = np.random.default_rng(0)
+    X = np.column_stack([rng.random(18), rng.random(18), np.repeat([0, 1, 2], 6)])
+    y = np.sin(4 * X[:, 0]) + X[:, 1] ** 2 + 0.3 * X[:, 2]
+    return MixedSurrogate([0, 0, 3], restarts=0, seed=1).fit(X, y)
+
+
+def test_combination_view_is_the_mixed_gp_posterior(mixed_fit):
+    # Reference library: scikit-learn's GaussianProcessRegressor.predict(return_cov=True) on the mixed GP's own
+    # fitted kernel and data gives the posterior covariance (Rasmussen & Williams 2006, eqs. 2.25-2.26).
+    from doe.design.level_proposals import CombinationGP
+
+    view = CombinationGP(mixed_fit, (2,), mixed_fit.loo_)
+    U = np.random.default_rng(5).random((7, 2))
+    Z = np.column_stack([U - 0.5, np.full(7, 2.0)])
+    mean, cov = mixed_fit.gp_.predict(Z, return_cov=True)
+    s = mixed_fit.y_std_
+    np.testing.assert_allclose(view.predict(U), mean * s + mixed_fit.y_mean_, rtol=0, atol=1e-9)   # round-off
+    np.testing.assert_allclose(view.predict_cov(U), cov * s**2, rtol=0, atol=1e-9 * s**2)
+    np.testing.assert_allclose(view.predict(U, return_std=True)[1], np.sqrt(np.clip(np.diag(cov), 0, None)) * s,
+                               rtol=1e-6, atol=1e-8)
+    assert len(view.X_unit_) == 6 and np.all(view.y_ == mixed_fit.y_[12:])
+    # kriging believer: conditioning on a point at its own mean leaves the mean and removes the variance there
+    # (down to the nugget), the same as refitting scikit-learn's GP on the data plus that point, kernel kept
+    from sklearn.gaussian_process import GaussianProcessRegressor
+
+    more = view.conditioned(U[:1])
+    gp = GaussianProcessRegressor(mixed_fit.gp_.kernel_, alpha=mixed_fit.gp_.alpha, optimizer=None)
+    gp.fit(np.vstack([mixed_fit.gp_.X_train_, Z[:1]]), np.concatenate([mixed_fit.gp_.y_train_, [mean[0]]]))
+    np.testing.assert_allclose(more.predict_cov(U), gp.predict(Z, return_cov=True)[1] * s**2, rtol=0,
+                               atol=1e-9 * s**2)
+    # the variance drop at the new point itself: v - v^2 / (v + noise^2) (Cohn 1996; the nugget is the noise)
+    v = view.predict(U[:1], return_std=True)[1][0] ** 2
+    expected = v - v**2 / (v + view.noise_std_**2)
+    np.testing.assert_allclose(more.predict(U[:1], return_std=True)[1][0] ** 2, expected, rtol=1e-6)
+    capped = view.capped(0.05)
+    assert np.all(np.asarray(capped._kernel.k1.k2.length_scale) <= 0.05)
+    assert np.mean(capped.predict(U, return_std=True)[1]) > np.mean(view.predict(U, return_std=True)[1])
+
+
+def _choice_study(tmp_path, runs=12):
+    import shutil
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    (tmp_path / "sections").mkdir(exist_ok=True)
+    shutil.copy(root / "studies" / "sections" / "high_lift_invented.dat", tmp_path / "sections")
+    # a cut-down copy of studies/demo_choices.toml (invented car and class), one response, a stepped knob
+    (tmp_path / "study.toml").write_text(f"""
+[study]
+name = "choice-next"
+
+[[parameters]]
+name = "wing_section"
+levels = ["naca2412", "sections/high_lift_invented.dat"]
+
+[[parameters]]
+name = "flap"
+levels = ["on", "off"]
+
+[[parameters]]
+name = "wing_aoa"
+unit = "deg"
+low = 0.0
+high = 12.0
+
+[[parameters]]
+name = "flap_angle"
+unit = "deg"
+values = [10, 20, 30, 40]
+
+[[responses]]
+name = "cla_total"
+unit = "m^2"
+goal = "minimize"
+
+[evaluator]
+kind = "builtin"
+chord = 0.24
+span = 1.30
+endplate_height = 0.15
+speed = 44.0
+flap_chord = 60.0
+
+[fit]
+restarts = 0
+
+[plan]
+runs = {runs}
+seed = 7
+""")
+    return tmp_path / "study.toml"
+
+
+def test_cli_next_and_add_to_with_choice_knobs(tmp_path, capsys):
+    import json
+
+    from doe.cli import main
+    from doe.runs.results import read_plan
+    from doe.study.reader import load_study
+
+    path = _choice_study(tmp_path)
+    assert main(["plan", str(path), "--out", str(tmp_path / "plan.csv")]) == 0
+    assert main(["evaluate", str(path), "--plan", str(tmp_path / "plan.csv"), "--out", str(tmp_path / "res.csv"),
+                 "--no-progress"]) == 0
+    assert main(["next", str(path), "--results", str(tmp_path / "res.csv"), "--runs", "5",
+                 "--out", str(tmp_path / "next.csv")]) == 0, capsys.readouterr().err
+    study = load_study(path)
+    new = read_plan(tmp_path / "next.csv", study)
+    header = (tmp_path / "next.csv").read_text().splitlines()[0]
+    assert header == "run_id,wing_section,flap,wing_aoa,flap_angle"
+    assert list(new["run_id"]) == ["r013", "r014", "r015", "r016", "r017"]
+    old = read_plan(tmp_path / "plan.csv", study)
+    counts = pd.concat([old, new]).groupby(["wing_section", "flap"]).size()
+    assert len(counts) == 4 and counts.max() - counts.min() <= 1          # issue 18: share within one
+    assert len(new.groupby(["wing_section", "flap"])) == 4                 # the first four visit every combination
+    assert set(new["flap_angle"]) <= {10.0, 20.0, 30.0, 40.0}
+    why = json.loads((tmp_path / "next.why.json").read_text())
+    assert why["criterion"] == "ivr" and why["runs"][0]["reason"].startswith("level combination wing_section ")
+    assert why["runs"][0]["point"]["wing_section"] in ("naca2412", "sections/high_lift_invented.dat")
+    # the proposed runs extend the plan, and the plan can also be extended by a sliced augmentation
+    assert main(["plan", str(path), "--add-to", str(tmp_path / "plan.csv"), "--runs", "4",
+                 "--out", str(tmp_path / "more.csv")]) == 0
+    more = read_plan(tmp_path / "more.csv", study)
+    assert set(more.groupby(["wing_section", "flap"]).size()) == {4}
