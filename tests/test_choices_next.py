@@ -146,58 +146,12 @@ def test_combination_view_is_the_mixed_gp_posterior(mixed_fit):
     assert np.mean(capped.predict(U, return_std=True)[1]) > np.mean(view.predict(U, return_std=True)[1])
 
 
-def _choice_study(tmp_path, runs=12):
-    import shutil
-    from pathlib import Path
+def _choice_study(tmp_path):
+    from test_choices_chain import BUILTIN, _folder
 
-    root = Path(__file__).resolve().parents[1]
-    (tmp_path / "sections").mkdir(exist_ok=True)
-    shutil.copy(root / "studies" / "sections" / "high_lift_invented.dat", tmp_path / "sections")
-    # a cut-down copy of studies/demo_choices.toml (invented car and class), one response, a stepped knob
-    (tmp_path / "study.toml").write_text(f"""
-[study]
-name = "choice-next"
-
-[[parameters]]
-name = "wing_section"
-levels = ["naca2412", "sections/high_lift_invented.dat"]
-
-[[parameters]]
-name = "flap"
-levels = ["on", "off"]
-
-[[parameters]]
-name = "wing_aoa"
-unit = "deg"
-low = 0.0
-high = 12.0
-
-[[parameters]]
-name = "flap_angle"
-unit = "deg"
-values = [10, 20, 30, 40]
-
-[[responses]]
-name = "cla_total"
-unit = "m^2"
-goal = "minimize"
-
-[evaluator]
-kind = "builtin"
-chord = 0.24
-span = 1.30
-endplate_height = 0.15
-speed = 44.0
-flap_chord = 60.0
-
-[fit]
-restarts = 0
-
-[plan]
-runs = {runs}
-seed = 7
-""")
-    return tmp_path / "study.toml"
+    # the chain test's cut-down copy of studies/demo_choices.toml (invented car and class: two sections, the flap
+    # on or off, a continuous knob and a stepped one), 12 runs (3 per level combination), no optimiser restarts
+    return _folder(tmp_path, BUILTIN.replace("runs = 16", "runs = 12") + "\n[fit]\nrestarts = 0\n")
 
 
 def test_cli_next_and_add_to_with_choice_knobs(tmp_path, capsys):
