@@ -185,3 +185,27 @@ def test_cli_next_and_add_to_with_choice_knobs(tmp_path, capsys):
                  "--out", str(tmp_path / "more.csv")]) == 0
     more = read_plan(tmp_path / "more.csv", study)
     assert set(more.groupby(["wing_section", "flap"]).size()) == {4}
+
+
+# ---------------------------------------------------------------------------
+# the built-in evaluator at points with level indices
+def test_builtin_evaluator_takes_level_indices_as_well_as_names(tmp_path):
+    from doe.runs.evaluators import make_evaluator
+    from doe.study.reader import load_study
+    from doe.workflow.sensitivity import evaluate_points
+
+    study = load_study(_choice_study(tmp_path))
+    evaluator = make_evaluator(study)
+    X = np.array([[0, 0, 4.0, 20.0], [1, 1, 8.0, 40.0], [1, 0, 0.0, 10.0]])   # choices as level indices
+    table = evaluate_points(study, X, evaluator)
+    assert list(table.frame["status"]) == ["ok"] * 3
+    named = [{"wing_section": study.space.parameter("wing_section").levels[int(x[0])],
+              "flap": ["on", "off"][int(x[1])], "wing_aoa": x[2], "flap_angle": x[3]} for x in X]
+    by_name = evaluator.evaluate_many(["a", "b", "c"], named)
+    np.testing.assert_array_equal(table.frame["cla_total"], [o.values["cla_total"] for o in by_name])
+    assert table.frame["cla_total"].iloc[1] < table.frame["cla_total"].iloc[0]   # more angle, high-lift: less lift
+    bad = [evaluator.evaluate(r, {**named[0], "flap": v}) for r, v in (("d", 2.0), ("e", "maybe"))]
+    assert [o.status for o in bad] == ["failed", "failed"]
+    assert "flap must be a level name or a level index 0 to 1, got 2.0" in bad[0].message
+    assert "'maybe' is not a level of flap (levels: on, off)" in bad[1].message
+    assert all("\n" not in o.message for o in bad)
