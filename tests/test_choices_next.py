@@ -209,3 +209,41 @@ def test_builtin_evaluator_takes_level_indices_as_well_as_names(tmp_path):
     assert "flap must be a level name or a level index 0 to 1, got 2.0" in bad[0].message
     assert "'maybe' is not a level of flap (levels: on, off)" in bad[1].message
     assert all("\n" not in o.message for o in bad)
+
+
+# ---------------------------------------------------------------------------
+# calibration with choice knobs
+def test_calibration_with_choices_recovers_the_truth_exactly(tmp_path):
+    # external check as in tests/test_calibration.py: recovery of a known truth from noise-free data made by the
+    # model with the coefficients changed; each run's section and flap change the geometry solved, so the
+    # residuals vanish only when every run is solved with its own levels
+    from dataclasses import replace
+
+    from test_choices_chain import BUILTIN, _folder
+
+    from doe.aero.choices import ChoiceModel
+    from doe.aero.model import COEFFICIENT_RANGES
+    from doe.calibration.settings import builtin_settings_for
+    from doe.runs.results import ResultsTable
+    from doe.study.reader import load_study
+    from doe.workflow.calibration import calibrate_study
+
+    coarse = BUILTIN.replace("flap_chord = 60.0", "flap_chord = 60.0\nbody_panels = 40\nwing_panels = 20\n"
+                                                  "flap_panels = 2")
+    study = load_study(_folder(tmp_path, coarse))
+    truth = {"body_3d_factor": 0.16, "viscous_lift_factor": 0.82}     # moved from 0.12 and 0.88
+    settings, conversion = builtin_settings_for(study)
+    plan = make_plan(study.space, 12, seed=2).frame
+    choices = {p.name: p.levels for p in study.space.choices}
+    out = ChoiceModel(replace(settings, coefficients=replace(settings.coefficients, **truth)), choices,
+                      study.folder).evaluate({p: plan[p].to_numpy(float) * f for p, f in conversion.items()},
+                                             {k: [v.index(x) for x in plan[k]] for k, v in choices.items()})
+    frame = plan.assign(**{r: out.values[r] for r in study.response_names}, status="ok")
+    table = ResultsTable(frame, study.space.names, study.response_names, levels=choices)
+    cal = calibrate_study(study, table, coefficients=list(truth))
+    for e in cal.estimates:
+        lo, hi = COEFFICIENT_RANGES[e.name]
+        # deterministic model, exact data: only the optimiser's tolerances are left (1e-6 of the range)
+        assert abs(e.value - truth[e.name]) < 1e-6 * (hi - lo), e
+    assert all(d.rms < 1e-8 for d in cal.discrepancy_after.values())
+    assert cal.discrepancy_before["cla_total"].rms > 1e-3                  # the defaults are visibly off

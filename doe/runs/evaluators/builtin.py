@@ -80,7 +80,7 @@ from ...errors import AeroError, DoeError, StudyError, where
 from .base import Evaluator, Outcome, failed
 from .calibration_file import read_calibrated_coefficients
 
-__all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings", "same_output_unit"]
+__all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings", "same_output_unit", "level_index"]
 
 _UNIT_ALIASES = {"m^2": {"m^2", "m2", "m²"}, "-": {"-", "", "1"}, "N": {"n"}}
 
@@ -257,7 +257,7 @@ def check_builtin_settings(study) -> None:
     read_builtin_settings(study)
 
 
-def _level_index(value, knob: str, names) -> int:
+def level_index(value, knob: str, names) -> int:
     """A choice's level given by name (a string) or by index (a whole number ``0 .. L-1``), as its index.
 
     Plans and results files carry names; points built from ``Space.to_unit``-style arrays
@@ -310,7 +310,7 @@ class BuiltinEvaluator(Evaluator):
         start = time.monotonic()
         try:
             inputs = {name: np.array([float(p[name]) * f for p in points]) for name, f in self.conversion.items()}
-            levels = {name: np.array([_level_index(p[name], name, names) for p in points])
+            levels = {name: np.array([level_index(p[name], name, names) for p in points])
                       for name, names in self.choices.items()}
         except (KeyError, TypeError, ValueError) as exc:
             return [failed(self.responses, f"point is missing or has a bad value: {exc}", self.kind)
