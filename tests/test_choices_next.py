@@ -146,6 +146,26 @@ def test_combination_view_is_the_mixed_gp_posterior(mixed_fit):
     assert np.mean(capped.predict(U, return_std=True)[1]) > np.mean(view.predict(U, return_std=True)[1])
 
 
+def test_separate_per_level_gps_are_used_as_they_are():
+    from doe.design.level_proposals import combination_set, propose_level_runs
+    from doe.design.plans import _unit_rows
+    from doe.surrogate.levelset import LevelResponseSurrogate
+    from doe.surrogate.set import SurrogateSet
+
+    space = Space((Parameter("x1", "-", 0, 1), Parameter.stepped("x2", "-", [0, 0.5, 1]),
+                   Parameter.choice("c", ["A", "B"])))
+    plan = make_plan(space, 12, seed=1).frame
+    U = _unit_rows(space, plan)
+    y = np.where(U[:, 2] == 0, np.sin(6 * U[:, 0]), U[:, 1] ** 2) + U[:, 0]    # the levels share little
+    model = LevelResponseSurrogate([0, 0, 2], space.names, restarts=1).fit(U, y, np.ones(3))
+    assert model.kind_ == "separate"
+    sset = SurrogateSet(space, {"y": model}, {"y": "-"}, {"y": "minimize"}, list(plan["run_id"]), 0.9)
+    assert combination_set(sset, (1,)).models["y"] is model.model_.models_[(1,)]
+    frame = propose_level_runs(sset, 3, criterion="variance", seed=0).frame
+    assert sorted(frame["c"].value_counts()) == [1, 2] and set(frame["x2"]) <= {0.0, 0.5, 1.0}
+    assert list(frame["run_id"]) == ["r013", "r014", "r015"]
+
+
 def _choice_study(tmp_path):
     from test_choices_chain import BUILTIN, _folder
 

@@ -148,7 +148,7 @@ def _view(model, levels: tuple):
 def combination_set(sset: SurrogateSet, levels: tuple) -> SurrogateSet:
     """The surrogates of ``sset`` within one level combination, over the continuous and stepped knobs.
 
-    Responses constant over the runs are left out (nothing to learn there).
+    Responses constant over the runs (of the combination, for one GP per combination) are left out.
 
     Raises
     ------
@@ -160,8 +160,9 @@ def combination_set(sset: SurrogateSet, levels: tuple) -> SurrogateSet:
     for name, model in sset.models.items():
         view = _view(model, levels)
         if view is None and not model.constant_:
-            raise SurrogateError(f"level combination {_label(space, levels)} has no surrogate of {name} (no runs)")
-        if view is not None:
+            raise SurrogateError(f"level combination {_label(space, levels)} has no runs, so no surrogate of {name} "
+                                 "covers it: add runs to it first (doe plan --add-to)")
+        if view is not None and not view.constant_:   # constant within the combination: nothing to learn there
             models[name] = view
     return SurrogateSet(space.settable(), models, {n: sset.units[n] for n in models},
                         {n: sset.goals[n] for n in models}, [], sset.target_q2, sset.study_name)
