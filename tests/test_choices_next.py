@@ -166,6 +166,26 @@ def test_separate_per_level_gps_are_used_as_they_are():
     assert list(frame["run_id"]) == ["r013", "r014", "r015"]
 
 
+def test_optimum_aim_fills_an_empty_combination_first_by_variance():
+    from doe.design.level_proposals import propose_level_runs
+    from doe.design.plans import _unit_rows
+    from doe.surrogate.levelset import LevelResponseSurrogate
+    from doe.surrogate.set import SurrogateSet
+
+    space = Space((Parameter("x1", "-", 0, 1), Parameter("x2", "-", 0, 1), Parameter.choice("c", ["A", "B", "C"])))
+    plan = make_plan(space, 15, seed=1).frame
+    plan = plan[plan["c"] != "C"]                                   # level C has no run yet
+    U = _unit_rows(space, plan)
+    y = np.sin(5 * U[:, 0]) * np.cos(3 * U[:, 1]) + 0.5 * U[:, 2]
+    model = LevelResponseSurrogate([0, 0, 3], space.names, restarts=2).fit(U, y, np.ones(3))
+    assert model.kind_ == "mixed"            # one GP per level cannot predict at a level without runs
+    sset = SurrogateSet(space, {"y": model}, {"y": "-"}, {"y": "minimize"}, list(plan["run_id"]), 0.9)
+    made = propose_level_runs(sset, 4, aim="optimum", seed=0)
+    assert list(made.frame["c"]) == ["C"] * 4                       # 5, 5, 0 runs: the fewest first
+    assert made.criterion == "ei" and made.to_dict()["criterion"] == "ei"
+    assert "largest predictive uncertainty" in made.picks[0].reason
+
+
 def _choice_study(tmp_path):
     from test_choices_chain import BUILTIN, _folder
 

@@ -238,7 +238,7 @@ def propose_level_runs(sset: SurrogateSet, runs: int, aim: str = "map", criterio
     combos = level_combinations(space)
     first = next(iter(sset.models.values()))
     P, A = _rows(space, pending), _rows(space, avoid)
-    sets, scores, first_picks, counts = [], [], [], []
+    sets, scores, first_picks, counts, named = [], [], [], [], None
     for t, combo in enumerate(combos):
         sub = combination_set(sset, combo)
         sets.append(sub)
@@ -255,6 +255,7 @@ def propose_level_runs(sset: SurrogateSet, runs: int, aim: str = "map", criterio
                       avoid=space.from_unit(A[mine[2]])[:, cont] if mine[2].any() else None)
         one = propose_runs(sub, 1, **kwargs)
         first_picks.append((one, kwargs))
+        named = named if named is not None or blind else one
         scores.append(one.picks[0].score)
     add = allocate_runs(counts, scores, int(runs))
     ids = next_ids(list(sset.run_ids) + list(taken_ids), int(runs))
@@ -276,10 +277,11 @@ def propose_level_runs(sset: SurrogateSet, runs: int, aim: str = "map", criterio
     frame = pd.DataFrame([frames[i] for i in order], columns=space.names)
     frame.insert(0, "run_id", ids)
     met, status = accuracy_status(sset)
-    notes = [status, _allocation_note(space, combos, counts, add, made.criterion)]
+    named = named or made   # the criterion asked for (a combination without ok runs may have used variance)
+    notes = [status, _allocation_note(space, combos, counts, add, named.criterion)]
     if len(P):
         notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean (within their combination)")
-    return Proposal(frame, picks, aim, made.criterion, made.response, met, notes)
+    return Proposal(frame, picks, aim, named.criterion, named.response, met, notes)
 
 
 def _allocation_note(space, combos, counts, add, criterion: str) -> str:
