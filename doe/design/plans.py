@@ -111,13 +111,21 @@ def centered_l2_discrepancy(U) -> float:
     return float(term1 - term2 + term3)
 
 
-def phi_p(U, p: int = PHI_P_EXPONENT) -> float:
-    """Morris-Mitchell space-filling criterion ``(sum_{i<j} d_ij^-p)^(1/p)`` [2]; smaller is better."""
+def phi_p(U, p: int = PHI_P_EXPONENT, groups=None) -> float:
+    """Morris-Mitchell space-filling criterion ``(sum_{i<j} d_ij^-p)^(1/p)`` [2]; smaller is better.
+
+    With ``groups`` (one label per run) a pair within a group counts twice: the
+    whole plan's criterion plus each group's own (as in sliced plans).
+    """
     d = pdist(np.asarray(U, dtype=float))
     if np.any(d == 0):
         return math.inf
+    w = 1.0
+    if groups is not None:
+        i, j = np.triu_indices(len(groups), 1)   # the pair order of pdist
+        w = 1.0 + (np.asarray(groups)[i] == np.asarray(groups)[j])
     m = d.min()
-    return float((np.sum((m / d) ** p)) ** (1.0 / p) / m)
+    return float((np.sum(w * (m / d) ** p)) ** (1.0 / p) / m)
 
 
 @dataclass
@@ -726,6 +734,35 @@ def _extend_sliced(V0: np.ndarray, old_slice: np.ndarray, add: np.ndarray, rng) 
     return V, new_slice
 
 
+#: Random sliced extensions tried by :func:`_best_extension` (each improved by swaps; the best is kept).
+EXTENSION_TRIES = 8
+
+
+def _best_extension(V0: np.ndarray, old_slice: np.ndarray, add: np.ndarray, rng) -> tuple[np.ndarray, np.ndarray]:
+    """The best of :data:`EXTENSION_TRIES` sliced extensions (:func:`_extend_sliced`), each improved by swaps
+    among the new runs of each slice (:func:`_exchange`), by the Morris-Mitchell criterion [2] of the whole
+    plan plus each slice's own (pairs within a slice count twice, as in the swaps).
+
+    Returns
+    -------
+    W : ndarray, shape (len(V0) + sum(add), d)
+        Old runs, then the new ones slice by slice.
+    new_slice : ndarray of int
+    """
+    n0, d = V0.shape
+    iterations = max(min(15 * (n0 + int(add.sum())) * d, 20000) // EXTENSION_TRIES, 100)
+    best, best_value = None, np.inf
+    for _ in range(EXTENSION_TRIES):
+        V, new_slice = _extend_sliced(V0, old_slice, add, rng)
+        W = np.vstack([V0, V])
+        groups = np.concatenate([old_slice, new_slice])
+        _exchange(W, rng, iterations, groups=groups, movable=np.arange(len(W)) >= n0)
+        value = phi_p(W, groups=groups)
+        if value < best_value or best is None:
+            best, best_value = (W, new_slice), value
+    return best
+
+
 def _add_feasible(space, V0: np.ndarray, old_slice: np.ndarray, add: np.ndarray, rng) -> tuple:
     """New feasible runs, one slice at a time in turn, each far from its slice's runs and from all runs.
 
@@ -797,10 +834,7 @@ def _augment_sliced(space, existing: pd.DataFrame, runs: int, seed: int) -> Plan
                "combination's runs and from all runs, so the one-run-per-stratum (Latin) property does not hold")
     else:
         V0 = _to_shares(sub, U0[:, cont])
-        V, new_slice = _extend_sliced(V0, old_slice, add, rng)
-        W = np.vstack([V0, V])
-        _exchange(W, rng, min(15 * len(W) * sub.dim, 20000), groups=np.concatenate([old_slice, new_slice]),
-                  movable=np.arange(len(W)) >= len(V0))
+        W, new_slice = _best_extension(V0, old_slice, add, rng)
         order = _round_robin(add, new_slice)
         V, new_slice = _onto_steps(sub, W[len(V0):])[order], new_slice[order]
         how = ("the new runs extend the sliced Latin hypercube (Qian 2012): each takes a stratum its level "
