@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import time
+from pathlib import Path
 
 import numpy as np
 from scipy.spatial.distance import pdist
@@ -14,8 +15,7 @@ from doe.study.reader import load_study
 from doe.workflow.fit import fit_surrogates
 from doe.workflow.sensitivity import evaluate_points
 
-from run_all import ROOT
-
+ROOT = Path(__file__).resolve().parents[1]
 KNOBS = ("x1", "x2", "x3")
 
 
