@@ -287,3 +287,24 @@ def test_calibration_with_choices_recovers_the_truth_exactly(tmp_path):
         assert abs(e.value - truth[e.name]) < 1e-6 * (hi - lo), e
     assert all(d.rms < 1e-8 for d in cal.discrepancy_after.values())
     assert cal.discrepancy_before["cla_total"].rms > 1e-3                  # the defaults are visibly off
+
+
+def test_stepped_knobs_do_not_make_next_runs_repeat_a_run():
+    # all knobs stepped: the criterion's point snaps to a step, which could be a setting already run; the
+    # proposal skips those while other settings are left (12 settings per level, 5 run, 4 asked for)
+    from doe.design.level_proposals import propose_level_runs
+    from doe.design.plans import _unit_rows
+    from doe.surrogate.levelset import LevelResponseSurrogate
+    from doe.surrogate.set import SurrogateSet
+
+    space = Space((Parameter.stepped("g", "mm", [0, 5, 10]), Parameter.stepped("h", "mm", [0, 1, 2, 3]),
+                   Parameter.choice("c", ["A", "B"])))
+    plan = make_plan(space, 10, seed=1).frame
+    U = _unit_rows(space, plan)
+    model = LevelResponseSurrogate([0, 0, 2], space.names, restarts=1).fit(U, U[:, 0] ** 2 + U[:, 1] + 0.3 * U[:, 2],
+                                                                           np.array([10, 3, 1.0]))
+    sset = SurrogateSet(space, {"y": model}, {"y": "-"}, {"y": "minimize"}, list(plan["run_id"]), 0.9)
+    new = propose_level_runs(sset, 8, criterion="ivr", seed=0).frame
+    old = set(map(tuple, plan[["g", "h", "c"]].values.tolist()))
+    settings = list(map(tuple, new[["g", "h", "c"]].values.tolist()))
+    assert not old & set(settings) and len(set(settings)) == 8
