@@ -52,15 +52,16 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import asdict, dataclass, fields, replace
+from dataclasses import asdict, dataclass, field, fields, replace
 
 import numpy as np
 from scipy import optimize, stats
 
 from ..checks import is_whole
+from ..aero.choices import ChoiceModel
 from ..aero.model import COEFFICIENT_RANGES, OUTPUTS, Coefficients, ModelSettings, RearPackageModel
 from ..errors import CalibrationError
-from ..runs.evaluators.builtin import same_output_unit
+from ..runs.evaluators.builtin import level_index, same_output_unit
 from .result import Calibration, CoefficientEstimate, Discrepancy
 
 __all__ = ["calibrate", "FITTABLE", "SWITCHES", "CORRELATION_LIMIT", "EFFECT_MIN"]
@@ -84,22 +85,25 @@ MAX_ITERATIONS = 60
 # ---------------------------------------------------------------------------
 @dataclass
 class _Data:
-    """Recorded values at the runs a calibration uses, and the model's inputs there (model units)."""
+    """Recorded values at the runs a calibration uses, the model's inputs there (model units) and, per choice
+    knob, the level index of each run."""
 
     run_ids: list
     inputs: dict
     observed: dict
+    levels: dict = field(default_factory=dict)
 
     def subset(self, keep: np.ndarray) -> "_Data":
         return _Data([r for r, k in zip(self.run_ids, keep) if k], {n: v[keep] for n, v in self.inputs.items()},
-                     {n: v[keep] for n, v in self.observed.items()})
+                     {n: v[keep] for n, v in self.observed.items()}, {n: v[keep] for n, v in self.levels.items()})
 
 
 class _Problem:
     """Scaled residuals of the model against the data, as a function of the fitted coefficients in [0, 1]."""
 
-    def __init__(self, settings: ModelSettings, data: _Data, names: list, scales: dict):
+    def __init__(self, settings: ModelSettings, data: _Data, names: list, scales: dict, choices=None, folder="."):
         self.settings, self.data, self.names = settings, data, list(names)
+        self.choices, self.folder = dict(choices or {}), folder
         self.low = np.array([COEFFICIENT_RANGES[n][0] for n in names])
         self.width = np.array([COEFFICIENT_RANGES[n][1] - COEFFICIENT_RANGES[n][0] for n in names])
         self.scales = dict(scales)
@@ -107,7 +111,7 @@ class _Problem:
 
     def narrowed(self, names: list) -> "_Problem":
         """The same problem fitting only ``names`` (the evaluation count carries over)."""
-        out = _Problem(self.settings, self.data, names, self.scales)
+        out = _Problem(self.settings, self.data, names, self.scales, self.choices, self.folder)
         out.evaluations = self.evaluations
         return out
 
@@ -123,7 +127,11 @@ class _Problem:
         With ``why``, also the model's message per run (why it failed, "" when it did not).
         """
         co = replace(self.settings.coefficients, **{k: float(v) for k, v in values.items()})
-        result = RearPackageModel(replace(self.settings, coefficients=co)).evaluate(self.data.inputs)
+        settings = replace(self.settings, coefficients=co)
+        if self.choices:   # the levels change the solved geometry run by run (doe.aero.choices)
+            result = ChoiceModel(settings, self.choices, self.folder).evaluate(self.data.inputs, self.data.levels)
+        else:
+            result = RearPackageModel(settings).evaluate(self.data.inputs)
         self.evaluations += 1
         out = {r: result.values[r] for r in self.data.observed}
         ok = result.ok & np.all([np.isfinite(v) for v in out.values()], axis=0)
@@ -191,18 +199,24 @@ def _check_responses(responses, results, units) -> list:
     return names
 
 
-def _data(results, conversion: dict, responses: list) -> _Data:
+def _data(results, conversion: dict, responses: list, choices: dict) -> _Data:
     ok = results.ok
     if len(ok) == 0:
         raise CalibrationError(f"{results.path or 'results'}: no ok runs to calibrate against")
-    missing = [p for p in results.parameters if p not in conversion]
+    missing = [p for p in results.parameters if p not in conversion and p not in choices]
     if missing:
         raise CalibrationError(f"parameter '{missing[0]}' of the results is not a parameter of the model's study")
     inputs = {p: ok[p].to_numpy(float) * f for p, f in conversion.items() if p in results.parameters}
     unused = [p for p in conversion if p not in results.parameters]
     if unused:
         raise CalibrationError(f"the model's study varies '{unused[0]}', which the results do not record")
-    return _Data(list(ok["run_id"]), inputs, {r: ok[r].to_numpy(float) for r in responses})
+    try:
+        levels = {k: np.array([level_index(v, k, names) for v in ok[k]], dtype=int) for k, names in choices.items()}
+    except KeyError as exc:
+        raise CalibrationError(f"the model's study has the choice {exc}, which the results do not record") from None
+    except ValueError as exc:
+        raise CalibrationError(f"{results.path or 'results'}: {exc}") from None
+    return _Data(list(ok["run_id"]), inputs, {r: ok[r].to_numpy(float) for r in responses}, levels)
 
 
 def _scales(data: _Data, noise: dict | None) -> dict:
@@ -402,7 +416,7 @@ def _notes(post: _Posterior, known: bool, excluded: dict) -> list:
 # ---------------------------------------------------------------------------
 def calibrate(settings: ModelSettings, conversion: dict, results, coefficients=None, responses=None,
               noise: dict | None = None, starts: int = 1, seed=0, units: dict | None = None,
-              study_name: str = "", progress=None) -> Calibration:
+              study_name: str = "", progress=None, choices: dict | None = None, folder=".") -> Calibration:
     """Fit the builtin model's coefficients to recorded results.
 
     Parameters
@@ -431,6 +445,11 @@ def calibrate(settings: ModelSettings, conversion: dict, results, coefficients=N
     study_name : str
     progress : callable, optional
         Called with one line per optimiser iteration.
+    choices : dict of str to sequence of str, optional
+        Choice knobs of the model (:mod:`doe.aero.choices`) -> their level names; the
+        results' columns hold the names (or level indices).
+    folder : path
+        Folder that section files named as levels are relative to.
 
     Returns
     -------
@@ -458,8 +477,9 @@ def calibrate(settings: ModelSettings, conversion: dict, results, coefficients=N
     units = dict(units or {})
     responses = _check_responses(responses, results, units)
     chosen = _check_names(coefficients) if coefficients is not None else list(FITTABLE)
-    data = _data(results, conversion, responses)
-    problem = _Problem(settings, data, chosen, {})
+    choices = {k: tuple(v) for k, v in (choices or {}).items()}
+    data = _data(results, conversion, responses, choices)
+    problem = _Problem(settings, data, chosen, {}, choices, folder)
     excluded = _drop_failing(problem)
     problem.scales = _scales(problem.data, noise)
     problem, not_fitted = _choose(problem, screen=coefficients is None)

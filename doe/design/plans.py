@@ -111,13 +111,21 @@ def centered_l2_discrepancy(U) -> float:
     return float(term1 - term2 + term3)
 
 
-def phi_p(U, p: int = PHI_P_EXPONENT) -> float:
-    """Morris-Mitchell space-filling criterion ``(sum_{i<j} d_ij^-p)^(1/p)`` [2]; smaller is better."""
+def phi_p(U, p: int = PHI_P_EXPONENT, groups=None) -> float:
+    """Morris-Mitchell space-filling criterion ``(sum_{i<j} d_ij^-p)^(1/p)`` [2]; smaller is better.
+
+    With ``groups`` (one label per run) a pair within a group counts twice: the
+    whole plan's criterion plus each group's own (as in sliced plans).
+    """
     d = pdist(np.asarray(U, dtype=float))
     if np.any(d == 0):
         return math.inf
+    w = 1.0
+    if groups is not None:
+        i, j = np.triu_indices(len(groups), 1)   # the pair order of pdist
+        w = 1.0 + (np.asarray(groups)[i] == np.asarray(groups)[j])
     m = d.min()
-    return float((np.sum((m / d) ** p)) ** (1.0 / p) / m)
+    return float((np.sum(w * (m / d) ** p)) ** (1.0 / p) / m)
 
 
 @dataclass
@@ -207,13 +215,16 @@ def maximin_lhs(n: int, d: int, seed=None, iterations: int | None = None) -> np.
     return _exchange(U, rng, iterations)
 
 
-def _exchange(U: np.ndarray, rng, iterations: int, groups: np.ndarray | None = None) -> np.ndarray:
+def _exchange(U: np.ndarray, rng, iterations: int, groups: np.ndarray | None = None,
+              movable: np.ndarray | None = None) -> np.ndarray:
     """Swap two values within a column whenever that lowers ``phi_p`` [2] (in place; returns ``U``).
 
     Without ``groups`` any two runs may swap and every pair counts once. With
     ``groups`` (one label per run) only runs of the same group swap, so each
     group keeps its strata, and a pair within a group counts twice: the
-    criterion is the whole plan's plus each group's own.
+    criterion is the whole plan's plus each group's own. With ``movable`` (a
+    boolean per run, needs ``groups``) only those runs swap; the others stay
+    as they are but still count in the criterion (augmentation).
     """
     n, d = U.shape
     p = PHI_P_EXPONENT
@@ -227,7 +238,8 @@ def _exchange(U: np.ndarray, rng, iterations: int, groups: np.ndarray | None = N
     if groups is not None:
         M = 1.0 + (groups[:, None] == groups[None, :])
         W *= M
-        members = [np.flatnonzero(groups == g) for g in np.unique(groups)]
+        can = np.ones(n, dtype=bool) if movable is None else np.asarray(movable, dtype=bool)
+        members = [np.flatnonzero((groups == g) & can) for g in np.unique(groups)]
         members = [m for m in members if len(m) >= 2]
         if not members:
             return U
@@ -296,29 +308,46 @@ def sliced_lhs(sizes, d: int, seed=None) -> tuple[np.ndarray, np.ndarray]:
         raise PlanError(f"every slice needs at least one run, got sizes {sizes}")
     n = sum(sizes)
     slots = [(t, k) for t, size in enumerate(sizes) for k in range(size)]
-    # fine stratum i = [i/n, (i+1)/n) meets coarse stratum k of slice t = [k/s, (k+1)/s) when k n < (i+1) s and (k+1) n > i s
-    first = np.array([(k * n) // s for t, k in slots for s in [sizes[t]]])
-    last = np.array([-(-((k + 1) * n) // s) - 1 for t, k in slots for s in [sizes[t]]])
     start = np.cumsum([0] + sizes[:-1])
     U = np.empty((n, d))
     for j in range(d):
         tie = rng.random(n)
-        free = np.ones(n, dtype=bool)
-        lo = np.empty(n)
-        hi = np.empty(n)
-        for i in range(n):
-            open_ = np.flatnonzero(free & (first <= i) & (last >= i))
-            if open_.size == 0:  # pragma: no cover - excluded by Hall's condition (see above)
-                raise PlanError("internal error: no coarse stratum left for a fine stratum of the sliced plan")
-            q = open_[np.lexsort((tie[open_], last[open_]))[0]]
-            free[q] = False
-            t, k = slots[q]
-            lo[q] = max(i / n, k / sizes[t])
-            hi[q] = min((i + 1) / n, (k + 1) / sizes[t])
+        lo, hi, matched = _match_strata(slots, sizes, n, range(n), tie)
+        if not matched.all():  # pragma: no cover - excluded by Hall's condition (see above)
+            raise PlanError("internal error: no coarse stratum left for a fine stratum of the sliced plan")
         value = lo + rng.random(n) * (hi - lo)
         for t, size in enumerate(sizes):  # the runs of a slice take its coarse strata in random order
             U[start[t]:start[t] + size, j] = value[start[t] + rng.permutation(size)]
     return U, np.repeat(np.arange(len(sizes)), sizes)
+
+
+def _match_strata(slots, sizes, n: int, fine, tie):
+    """Deal free fine strata ``[i/n, (i+1)/n)`` to coarse strata ``(t, k)`` = ``[k/sizes[t], (k+1)/sizes[t])``.
+
+    Glover's rule [7]: fine strata in increasing order, each to the open coarse
+    stratum it overlaps that ends first (ties by ``tie``); this matches as many
+    coarse strata as any rule can (the overlaps form a convex bipartite graph).
+
+    Returns
+    -------
+    lo, hi : ndarray
+        Per coarse stratum, the part shared with its fine stratum (its own bounds when it got none).
+    matched : ndarray of bool
+    """
+    # fine stratum i meets coarse stratum k of slice t when k n < (i+1) s and (k+1) n > i s
+    first = np.array([(k * n) // sizes[t] for t, k in slots], dtype=int)
+    last = np.array([-(-((k + 1) * n) // sizes[t]) - 1 for t, k in slots], dtype=int)
+    lo = np.array([k / sizes[t] for t, k in slots], dtype=float)
+    hi = np.array([(k + 1) / sizes[t] for t, k in slots], dtype=float)
+    free = np.ones(len(slots), dtype=bool)
+    for i in fine:
+        open_ = np.flatnonzero(free & (first <= i) & (last >= i))
+        if open_.size == 0:
+            continue
+        q = open_[np.lexsort((tie[open_], last[open_]))[0]]
+        free[q] = False
+        lo[q], hi[q] = max(i / n, lo[q]), min((i + 1) / n, hi[q])
+    return lo, hi, ~free
 
 
 def level_combinations(space) -> list:
@@ -376,12 +405,18 @@ def sliced_plan(space, runs: int, seed=None) -> tuple[np.ndarray, list]:
                      "over the whole plan")
     if any(p.values for p in sub.parameters):
         notes.append("stepped knobs are put on their steps, so their columns repeat values")
-    order = np.argsort(np.concatenate([np.arange(s) for s in sizes]) * m + slice_of, kind="stable")
+    order = _round_robin(sizes, slice_of)
     U = np.empty((runs, space.dim))
     cont = [j for j in range(space.dim) if j not in space.choice_columns]
     U[:, cont] = V[order]
     U[:, space.choice_columns] = np.array(combos, dtype=float)[slice_of[order]]
     return U, notes
+
+
+def _round_robin(sizes, slice_of) -> np.ndarray:
+    """Row order taking one run of each slice in turn (rows listed slice by slice, ``sizes[t]`` of slice ``t``)."""
+    rank = np.concatenate([np.arange(s) for s in sizes])
+    return np.argsort(rank * len(sizes) + slice_of, kind="stable")
 
 
 def sobol_points(n: int, d: int, seed=None) -> tuple[np.ndarray, list]:
@@ -584,7 +619,9 @@ def augment_plan(space, existing: pd.DataFrame, runs: int, seed: int = 0) -> Pla
     """Add ``runs`` runs to an existing plan so that the whole set stays space-filling.
 
     The old runs are kept as they are; each new run is the feasible candidate
-    farthest from every run so far (greedy maximin [3]).
+    farthest from every run so far (greedy maximin [3]). With choice knobs the
+    new runs top up the level combinations and keep the plan sliced
+    (:func:`_augment_sliced`).
 
     Parameters
     ----------
@@ -603,7 +640,7 @@ def augment_plan(space, existing: pd.DataFrame, runs: int, seed: int = 0) -> Pla
     if runs < 1:
         raise PlanError(f"the number of runs to add must be at least 1, got {runs}")
     if space.choices:
-        raise PlanError("choice knobs are not yet supported by plan augmentation (adding runs to a plan)")
+        return _augment_sliced(space, existing, runs, seed)
     rng = np.random.default_rng(seed)
     U0 = space.to_unit(existing[space.names].to_numpy(dtype=float))
     C = candidates(space, min(max(64 * (len(U0) + runs), 4096), 65536), rng)
@@ -625,3 +662,193 @@ def next_ids(old: list, runs: int) -> list:
     if taken & set(ids):  # pragma: no cover - only with hand-made ids that collide
         ids = run_ids(runs, start, prefix="a")
     return ids
+
+
+# ---------------------------------------------------------------------------
+# augmentation with choice knobs
+def _unit_rows(space, frame: pd.DataFrame) -> np.ndarray:
+    """A plan's parameter columns in the unit cube; choice columns (level names or indices) as level indices."""
+    X = np.empty((len(frame), space.dim))
+    for j, p in enumerate(space.parameters):
+        column = frame[p.name]
+        X[:, j] = ([p.level_index(v) if isinstance(v, str) else float(v) for v in column] if p.levels
+                   else column.to_numpy(dtype=float))
+    return space.to_unit(X)
+
+
+def _top_up(counts: np.ndarray, runs: int, rng) -> np.ndarray:
+    """``runs`` new runs dealt one at a time to the slices with the fewest runs so far (ties at random)."""
+    add = np.zeros(len(counts), dtype=int)
+    for _ in range(runs):
+        total = counts + add
+        add[rng.choice(np.flatnonzero(total == total.min()))] += 1
+    return add
+
+
+def _to_shares(space, V: np.ndarray) -> np.ndarray:
+    """Stepped columns moved to the middle of their value's share of ``[0, 1]`` (the inverse of :func:`_onto_steps`)."""
+    V = V.copy()
+    for j, p in enumerate(space.parameters):
+        if p.values:
+            k = np.argmin(np.abs(space.lower[j] + V[:, j, None] * p.span - np.asarray(p.values)[None, :]), axis=1)
+            V[:, j] = (k + 0.5) / len(p.values)
+    return V
+
+
+def _extend_sliced(V0: np.ndarray, old_slice: np.ndarray, add: np.ndarray, rng) -> tuple[np.ndarray, np.ndarray]:
+    """New runs that make a sliced Latin hypercube bigger wherever the old runs allow it [6].
+
+    With ``N`` runs in the end and ``S_t`` in slice ``t``, each new run of
+    slice ``t`` takes a stratum of width ``1/S_t`` that no old run of its slice
+    holds, and within it, where it can, a stratum of width ``1/N`` that no run
+    of the whole plan holds (Glover's matching [7], as in :func:`sliced_lhs`).
+    When the old plan is a sliced Latin hypercube and every slice doubles, or
+    more generally when the old runs hold distinct strata at the new sizes,
+    the whole plan and every slice come out Latin again; otherwise the strata
+    left free are filled and the rest fall where their slice's stratum allows.
+
+    Returns
+    -------
+    V : ndarray, shape (sum(add), d)
+        The new runs, slice by slice.
+    new_slice : ndarray of int
+    """
+    n0, d = V0.shape
+    m = len(add)
+    sizes = np.bincount(old_slice, minlength=m) + add
+    N = int(sizes.sum())
+    new_slice = np.repeat(np.arange(m), add)
+    V = np.empty((len(new_slice), d))
+    for j in range(d):
+        held = set(np.clip(np.floor(V0[:, j] * N).astype(int), 0, N - 1))
+        slots = []
+        for t in np.flatnonzero(add):
+            own = set(np.clip(np.floor(V0[old_slice == t, j] * sizes[t]).astype(int), 0, sizes[t] - 1))
+            empty = [k for k in range(sizes[t]) if k not in own]
+            slots += [(t, int(k)) for k in np.sort(rng.choice(empty, add[t], replace=False))]
+        lo, hi, _ = _match_strata(slots, sizes, N, [i for i in range(N) if i not in held], rng.random(len(slots)))
+        value = lo + rng.random(len(slots)) * (hi - lo)
+        for t in np.flatnonzero(add):  # the new runs of a slice take its free strata in random order
+            rows = np.flatnonzero(new_slice == t)
+            V[rows, j] = value[rows[rng.permutation(len(rows))]]
+    return V, new_slice
+
+
+#: Random sliced extensions tried by :func:`_best_extension` (each improved by swaps; the best is kept).
+EXTENSION_TRIES = 8
+
+
+def _best_extension(V0: np.ndarray, old_slice: np.ndarray, add: np.ndarray, rng) -> tuple[np.ndarray, np.ndarray]:
+    """The best of :data:`EXTENSION_TRIES` sliced extensions (:func:`_extend_sliced`), each improved by swaps
+    among the new runs of each slice (:func:`_exchange`), by the Morris-Mitchell criterion [2] of the whole
+    plan plus each slice's own (pairs within a slice count twice, as in the swaps).
+
+    Returns
+    -------
+    W : ndarray, shape (len(V0) + sum(add), d)
+        Old runs, then the new ones slice by slice.
+    new_slice : ndarray of int
+    """
+    n0, d = V0.shape
+    iterations = max(min(15 * (n0 + int(add.sum())) * d, 20000) // EXTENSION_TRIES, 100)
+    best, best_value = None, np.inf
+    for _ in range(EXTENSION_TRIES):
+        V, new_slice = _extend_sliced(V0, old_slice, add, rng)
+        W = np.vstack([V0, V])
+        groups = np.concatenate([old_slice, new_slice])
+        _exchange(W, rng, iterations, groups=groups, movable=np.arange(len(W)) >= n0)
+        value = phi_p(W, groups=groups)
+        if value < best_value or best is None:
+            best, best_value = (W, new_slice), value
+    return best
+
+
+def _add_feasible(space, V0: np.ndarray, old_slice: np.ndarray, add: np.ndarray, rng) -> tuple:
+    """New feasible runs, one slice at a time in turn, each far from its slice's runs and from all runs.
+
+    Each pick is the feasible candidate with the largest ``min(d_slice / h_slice,
+    d_all / h_all)``: its distances to the nearest run of its slice and of the
+    whole plan, each over ``n^(-1/d)``, the spacing of ``n`` evenly spread runs
+    in the unit cube (greedy maximin [3] over both at once).
+
+    Returns
+    -------
+    V : ndarray, shape (sum(add), d)
+        The new runs, in the order picked.
+    new_slice : ndarray of int
+    """
+    n0, d = V0.shape
+    m = len(add)
+    counts = np.bincount(old_slice, minlength=m)
+    C = candidates(space, min(max(64 * (n0 + int(add.sum())), 4096), 65536), rng)
+    near_all = np.full(len(C), np.inf)
+    near_own = np.full((m, len(C)), np.inf)
+    for s in range(0, n0, 256):
+        dist = np.sqrt(((C[:, None, :] - V0[None, s:s + 256, :]) ** 2).sum(-1))
+        near_all = np.minimum(near_all, dist.min(axis=1))
+        for t in range(m):
+            mine = old_slice[s:s + 256] == t
+            if mine.any():
+                near_own[t] = np.minimum(near_own[t], dist[:, mine].min(axis=1))
+    new_slice = np.repeat(np.arange(m), add)[_round_robin(add, np.repeat(np.arange(m), add))]
+    V = np.empty((len(new_slice), d))
+    total = n0
+    for r, t in enumerate(new_slice):
+        counts[t] += 1
+        total += 1
+        score = np.minimum(near_own[t] * counts[t] ** (1 / d), near_all * total ** (1 / d))
+        i = int(np.argmax(score))
+        if not np.isfinite(score[i]) and np.isinf(near_all).all():
+            i = int(rng.integers(len(C)))
+        V[r] = C[i]
+        dist = np.sqrt(((C - C[i]) ** 2).sum(1))
+        near_all, near_own[t] = np.minimum(near_all, dist), np.minimum(near_own[t], dist)
+    return V, new_slice
+
+
+def _augment_sliced(space, existing: pd.DataFrame, runs: int, seed: int) -> Plan:
+    """:func:`augment_plan` with choice knobs: top up the level combinations, keep every slice space-filling.
+
+    The new runs go one at a time to the level combinations with the fewest
+    runs (ties at random), so a plan whose combinations had their share within
+    one keeps it. Without constraints the continuous and stepped knobs of the
+    new runs extend the sliced Latin hypercube (:func:`_extend_sliced`, Qian
+    2012 [6]) and are then improved by swaps among the new runs of each slice
+    (:func:`_exchange`); with constraints they are greedy maximin picks of
+    feasible points (:func:`_add_feasible`). Stepped knobs end on their values.
+    """
+    rng = np.random.default_rng(seed)
+    combos = level_combinations(space)
+    m = len(combos)
+    U0 = _unit_rows(space, existing)
+    cols = space.choice_columns
+    cont = [j for j in range(space.dim) if j not in cols]
+    where_ = {c: t for t, c in enumerate(combos)}
+    old_slice = np.array([where_[tuple(int(v) for v in row)] for row in U0[:, cols]], dtype=int).reshape(-1)
+    add = _top_up(np.bincount(old_slice, minlength=m), runs, rng)
+    sub = space.settable()
+    if sub.constraints:
+        sub.check_feasible()
+        V, new_slice = _add_feasible(sub, U0[:, cont], old_slice, add, rng)
+        how = ("constraints cut the box: the new runs are maximin picks of feasible points, far from their level "
+               "combination's runs and from all runs, so the one-run-per-stratum (Latin) property does not hold")
+    else:
+        V0 = _to_shares(sub, U0[:, cont])
+        W, new_slice = _best_extension(V0, old_slice, add, rng)
+        order = _round_robin(add, new_slice)
+        V, new_slice = _onto_steps(sub, W[len(V0):])[order], new_slice[order]
+        how = ("the new runs extend the sliced Latin hypercube (Qian 2012): each takes a stratum its level "
+               "combination and the whole plan leave free, where the old runs allow")
+    U = np.empty((runs, space.dim))
+    U[:, cont] = V
+    U[:, cols] = np.array(combos, dtype=float)[new_slice]
+    ids = next_ids(list(existing["run_id"]), runs)
+    frame = pd.concat([existing[["run_id", *space.names]].reset_index(drop=True), _frame(space, U, ids)],
+                      ignore_index=True)
+    final = np.bincount(old_slice, minlength=m) + add
+    share = f"{final.min()}" + (f" to {final.max()}" if final.max() > final.min() else "")
+    notes = [f"{len(U0)} runs kept, {runs} added to the level combinations with the fewest runs: {share} runs "
+             f"per combination of {', '.join(p.name for p in space.choices)}", how]
+    if any(p.values for p in sub.parameters):
+        notes.append("stepped knobs are put on their steps, so their columns repeat values")
+    return Plan(frame, _settable_quality(space, np.vstack([U0, U]), notes), "augment", seed)

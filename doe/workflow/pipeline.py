@@ -260,10 +260,6 @@ def _robust_step(study, sset, results, files: StudyFiles, steps):
 
 def _next_step(study, sset, results, files: StudyFiles, k: int, steps):
     met, sentence = accuracy_status(sset)
-    if study.space.choices and k > 0 and not met:          # doe next does not plan over choice knobs yet
-        steps("next runs", f"none proposed: {sentence}; proposing runs over choice knobs is not available yet: "
-                           "add runs to every level combination with a new plan")
-        return None, None, sentence
     if k <= 0 or met:
         steps("next runs", "none proposed: " + (sentence if met else "asked for none"))
         return None, None, sentence

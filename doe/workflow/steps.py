@@ -24,6 +24,7 @@ from pathlib import Path
 from threadpoolctl import threadpool_limits
 
 from ..design.adaptive import propose_runs
+from ..design.level_proposals import propose_level_runs
 from ..design.plans import augment_plan, make_plan
 from ..errors import DoeError
 from ..files import write_json
@@ -161,13 +162,16 @@ def next_step(study, sset, results, runs: int, out, seed: int | None = None, aim
 
     ``pending``: a plan (DataFrame) of runs planned but not yet evaluated.
     """
-    study.space.refuse_choices("next runs (doe next)")
     seed = study.plan.seed if seed is None else seed
     names = study.space.names
     taken = list(results.frame["run_id"]) + (list(pending["run_id"]) if pending is not None else [])
-    proposal = propose_runs(sset, runs, aim=aim, criterion=criterion, response=response,
-                            pending=None if pending is None else pending[names].to_numpy(float),
-                            avoid=results.failed[names].to_numpy(float), taken_ids=taken, seed=seed)
+    if study.space.choices:   # runs shared over the level combinations first, then placed within each
+        proposal = propose_level_runs(sset, runs, aim=aim, criterion=criterion, response=response, pending=pending,
+                                      avoid=results.failed, taken_ids=taken, seed=seed)
+    else:
+        proposal = propose_runs(sset, runs, aim=aim, criterion=criterion, response=response,
+                                pending=None if pending is None else pending[names].to_numpy(float),
+                                avoid=results.failed[names].to_numpy(float), taken_ids=taken, seed=seed)
     write_plan(proposal.frame, out)
     made = NextRuns(proposal, proposal.to_dict())
     if is_two_fidelity(sset):

@@ -80,7 +80,7 @@ from ...errors import AeroError, DoeError, StudyError, where
 from .base import Evaluator, Outcome, failed
 from .calibration_file import read_calibrated_coefficients
 
-__all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings", "same_output_unit"]
+__all__ = ["BuiltinEvaluator", "check_builtin_settings", "read_builtin_settings", "same_output_unit", "level_index"]
 
 _UNIT_ALIASES = {"m^2": {"m^2", "m2", "m²"}, "-": {"-", "", "1"}, "N": {"n"}}
 
@@ -257,6 +257,22 @@ def check_builtin_settings(study) -> None:
     read_builtin_settings(study)
 
 
+def level_index(value, knob: str, names) -> int:
+    """A choice's level given by name (a string) or by index (a whole number ``0 .. L-1``), as its index.
+
+    Plans and results files carry names; points built from ``Space.to_unit``-style arrays
+    (e.g. :func:`doe.workflow.sensitivity.evaluate_points`) carry indices. A ValueError otherwise.
+    """
+    if isinstance(value, str):
+        if value in names:
+            return names.index(value)
+        raise ValueError(f"{value[:40]!r} is not a level of {knob} (levels: {', '.join(names)})")
+    index = float(value)
+    if index.is_integer() and 0 <= index < len(names):
+        return int(index)
+    raise ValueError(f"{knob} must be a level name or a level index 0 to {len(names) - 1}, got {value!r}")
+
+
 class BuiltinEvaluator(Evaluator):
     """Evaluate runs with :class:`doe.aero.RearPackageModel` (vectorised in :meth:`evaluate_many`).
 
@@ -294,7 +310,8 @@ class BuiltinEvaluator(Evaluator):
         start = time.monotonic()
         try:
             inputs = {name: np.array([float(p[name]) * f for p in points]) for name, f in self.conversion.items()}
-            levels = {name: np.array([names.index(str(p[name])) for p in points]) for name, names in self.choices.items()}
+            levels = {name: np.array([level_index(p[name], name, names) for p in points])
+                      for name, names in self.choices.items()}
         except (KeyError, TypeError, ValueError) as exc:
             return [failed(self.responses, f"point is missing or has a bad value: {exc}", self.kind)
                     for _ in points]
