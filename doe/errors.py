@@ -18,6 +18,7 @@ __all__ = [
     "SurrogateError",
     "NotFittedError",
     "StoreLockedError",
+    "one_line_name",
     "SensitivityError",
     "AeroError",
     "CalibrationError",
@@ -92,7 +93,12 @@ def where(path, line=None, key=None, column=None) -> str:
     if line is not None:
         parts[0] += f":{line}"
     if key is not None:
-        parts.append(key)
+        parts.append(one_line_name(key))
     if column is not None:
-        parts.append(f"column '{column}'")
+        parts.append(f"column '{one_line_name(column)}'")
     return ": ".join(parts)
+
+
+def one_line_name(name) -> str:
+    """A name read from a file as it can be shown in a one-line message (line breaks written as ``\\n``)."""
+    return str(name).replace("\r", "\\r").replace("\n", "\\n")

@@ -4,7 +4,7 @@ from __future__ import annotations
 import warnings
 
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from doe.cli import main
@@ -41,6 +41,7 @@ EDITS = st.lists(st.tuples(st.integers(0, 2), st.integers(0, 10_000),
 
 @FUZZ
 @given(edits=EDITS)
+@example(edits=[(0, 0, '"'), (0, 194, '"')])   # a quoted header cell running over lines (found by the fuzzer)
 def test_fuzz_results_reader(study_file, tmp_path, edits):
     study = load_study(study_file)
     p = tmp_path / "fuzz.csv"

@@ -36,7 +36,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ..errors import ResultsError, StoreLockedError, where
+from ..errors import ResultsError, StoreLockedError, one_line_name, where
 from .outcome import Outcome, safe_run_id
 
 __all__ = ["read_plan", "read_points", "read_results", "write_plan", "write_json", "ResultsTable", "ResultsStore",
@@ -171,8 +171,9 @@ def _parameter_frame(space, X: np.ndarray, columns=None, data=None) -> pd.DataFr
 def _require_columns(rows: _Rows, columns, what: str) -> None:
     missing = [c for c in columns if c not in rows.header]
     if missing:
+        shown = ", ".join(one_line_name(h) for h in rows.header[:12])
         raise ResultsError(f"{rows.path}: missing {what} column '{missing[0]}' "
-                           f"(the header has: {', '.join(rows.header[:12])}{' ...' if len(rows.header) > 12 else ''})")
+                           f"(the header has: {shown}{' ...' if len(rows.header) > 12 else ''})")
 
 
 def _run_ids(rows: _Rows) -> list:
