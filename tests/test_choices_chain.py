@@ -251,3 +251,12 @@ def test_fit_predicts_at_points_given_with_level_names(builtin_run, tmp_path):
     sset = load_surrogates(tmp_path / "s", load_study(study))
     mean = sset.predict(np.array([[0, 0, 5, 20], [1, 1, 11, 40]]))["cla_total"][0]
     np.testing.assert_allclose(pred["cla_total_mean"], mean, rtol=1e-9)
+
+
+def test_a_baseline_level_that_is_not_a_level_is_one_line(tmp_path, capsys):
+    study = _folder(tmp_path, BUILTIN)
+    study.write_text(study.read_text().replace('wing_section = "naca2412", flap = "off"',
+                                               'wing_section = "naca9999", flap = "off"'))
+    assert main(["plan", str(study), "--out", str(tmp_path / "plan.csv")]) == 2
+    err = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
+    assert len(err) == 1 and "baseline" in err[0] and "naca9999" in err[0] and "study.toml:" in err[0], err
