@@ -8,7 +8,8 @@ import pytest
 from scipy.linalg import cho_solve
 
 from doe.design.plans import sliced_lhs
-from doe.surrogate.levelbands import BandWidening, loo_band_ratio, sampled_band_ratio
+from doe.surrogate.levelbands import (BandWidening, log_marginal_likelihood, loo_band_ratio, sampled_band_ratio,
+                                      theta_setter)
 from doe.surrogate.levelset import level_unit_sample
 from doe.surrogate.mixed import MixedSurrogate, SeparateSurrogates
 from doe.testing.functions import hartmann3_levels
@@ -41,6 +42,23 @@ def test_loo_ratio_is_the_cross_validation_variance_estimate(few):
     # closed form against an explicit inverse: round-off of a 18 x 18 solve, condition number ~1e6
     assert loo_band_ratio(model._plugin_loo if model.band_ is not None else model.loo_) == pytest.approx(
         expected, rel=1e-6)
+
+
+@pytest.mark.parametrize("kind", ["mixed", "separate"])
+def test_fast_likelihood_matches_scikit_learn(few, kind):
+    model, X, y = few
+    gp = model.gp_ if kind == "mixed" else SeparateSurrogates(LEVELS, seed=0).fit(X, y).models_[(1,)].gp_
+    kernel = gp.kernel_.clone_with_theta(gp.kernel_.theta)
+    set_theta = theta_setter(kernel)
+    rng = np.random.default_rng(4)
+    for _ in range(5):
+        theta = gp.kernel_.theta + rng.normal(0, 0.5, len(gp.kernel_.theta))
+        set_theta(theta)
+        np.testing.assert_allclose(kernel.theta, theta, rtol=1e-14, atol=1e-14)      # log(exp(t)): round-off
+        # the reference library's own log marginal likelihood (scikit-learn, GaussianProcessRegressor); the same
+        # Cholesky of the same matrix: round-off only
+        assert log_marginal_likelihood(kernel, gp.X_train_, gp.y_train_, gp.alpha) == pytest.approx(
+            gp.log_marginal_likelihood(theta), rel=1e-9, abs=1e-9)
 
 
 def test_sampled_ratio_shrinks_when_runs_pin_the_settings_down():

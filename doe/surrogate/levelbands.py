@@ -49,7 +49,7 @@ from ..errors import SurrogateError
 from .hyperposterior import slice_sample
 
 __all__ = ["BandWidening", "PRIORS", "BURN", "DRAWS", "THIN", "sampled_band_ratio", "loo_band_ratio",
-           "band_widening"]
+           "band_widening", "theta_setter", "log_marginal_likelihood"]
 
 #: Prior (mean, sd) of each log hyperparameter, by the ending of its scikit-learn name (normalised output,
 #: continuous inputs in fractions of their range). Amplitude, length scales and trend as in
@@ -143,13 +143,51 @@ def _moments(kernel, X, y, alpha: float, Z) -> tuple:
     return mean, np.clip(kernel.diag(Z) - np.einsum("ij,ij->j", v, v), 0.0, None)
 
 
+def theta_setter(kernel):
+    """A function that sets ``kernel``'s free hyperparameters from ``theta`` (log values), in place.
+
+    The same as ``kernel.theta = theta`` (scikit-learn's order: ``kernel.hyperparameters``), without
+    rebuilding the hyperparameter list on every call (most of a likelihood evaluation's time for small n).
+    """
+    slots, start = [], 0
+    for h in kernel.hyperparameters:
+        if h.fixed:
+            continue
+        *path, attr = h.name.split("__")
+        owner = kernel
+        for part in path:
+            owner = getattr(owner, part)
+        slots.append((owner, attr, start, start + h.n_elements, np.ndim(getattr(owner, attr)) == 0))
+        start += h.n_elements
+
+    def set_theta(theta):
+        values = np.exp(np.asarray(theta, dtype=float))
+        for owner, attr, a, b, scalar in slots:
+            setattr(owner, attr, float(values[a]) if scalar else values[a:b].copy())
+
+    return set_theta
+
+
+def log_marginal_likelihood(kernel, X, y, alpha) -> float:
+    """``log p(y | X, kernel)`` of a zero-mean GP with diagonal term ``alpha`` (Rasmussen & Williams 2006,
+    eq. 2.30); ``-inf`` when the kernel matrix cannot be factorised."""
+    K = kernel(X)
+    K[np.diag_indices_from(K)] += alpha
+    try:
+        L = cholesky(K, lower=True, check_finite=False)
+    except np.linalg.LinAlgError:
+        return -np.inf
+    a = cho_solve((L, True), y, check_finite=False)
+    return float(-0.5 * y @ a - np.sum(np.log(np.diag(L))) - 0.5 * len(y) * math.log(2 * math.pi))
+
+
 def sampled_band_ratio(gp, Z, n_cont: int, seed=0, draws: int = DRAWS, burn: int = BURN, thin: int = THIN) -> tuple:
     """How much wider the band is when the kernel settings are sampled than when they are fitted.
 
     Parameters
     ----------
     gp : sklearn.gaussian_process.GaussianProcessRegressor
-        Fitted (``kernel_`` holds the fitted settings; normalised output).
+        Fitted (``kernel_`` holds the fitted settings; normalised output); left as it is.
     Z : ndarray, shape (m, d)
         Check points, in the inputs ``gp`` was fitted on.
     n_cont : int
@@ -165,31 +203,27 @@ def sampled_band_ratio(gp, Z, n_cont: int, seed=0, draws: int = DRAWS, burn: int
     evaluations : int
         Likelihood evaluations.
     """
-    kernel = gp.kernel_
+    kernel = gp.kernel_.clone_with_theta(gp.kernel_.theta)
     mu, sd = _priors(kernel, n_cont)
     bounds = kernel.bounds
-    theta0 = kernel.theta.copy()
+    set_theta = theta_setter(kernel)
+    X, y = gp.X_train_, np.asarray(gp.y_train_, dtype=float).ravel()
 
     def logp(theta):
         if np.any(theta < bounds[:, 0]) or np.any(theta > bounds[:, 1]):
             return -np.inf
-        try:
-            value = gp.log_marginal_likelihood(theta, clone_kernel=False)
-        except (np.linalg.LinAlgError, ValueError):
-            return -np.inf
-        return value - 0.5 * float(np.sum(((theta - mu) / sd) ** 2))
+        set_theta(theta)
+        return log_marginal_likelihood(kernel, X, y, gp.alpha) - 0.5 * float(np.sum(((theta - mu) / sd) ** 2))
 
     rng = np.random.default_rng(seed)
     with threadpool_limits(limits=1, user_api="blas"), warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        try:
-            states, _, evaluations = slice_sample(logp, theta0, burn + draws * thin, rng, width=WIDTH)
-        finally:
-            kernel.theta = theta0              # log_marginal_likelihood(clone_kernel=False) moved it
-        fitted_mean, fitted_var = _moments(kernel, gp.X_train_, gp.y_train_, gp.alpha, Z)
+        states, _, evaluations = slice_sample(logp, gp.kernel_.theta.copy(), burn + draws * thin, rng, width=WIDTH)
+        fitted_mean, fitted_var = _moments(gp.kernel_, X, y, gp.alpha, Z)
         second = np.zeros(len(Z))
         for theta in states[burn + thin - 1::thin][:draws]:
-            m, v = _moments(kernel.clone_with_theta(theta), gp.X_train_, gp.y_train_, gp.alpha, Z)
+            set_theta(theta)
+            m, v = _moments(kernel, X, y, gp.alpha, Z)
             second += (v + (m - fitted_mean) ** 2) / draws
     base = float(np.mean(fitted_var))
     ratio = math.sqrt(float(np.mean(second)) / base) if base > 0 else 1.0
