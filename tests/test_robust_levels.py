@@ -120,3 +120,17 @@ def test_vehicle_figures_get_intervals_whatever_the_objective():
     assert lap[0]["unit"] == "s" and lap[0]["pm95"] == pytest.approx(Z95 * 0.02, rel=1e-9)
     assert lap[2]["minus_best"] == pytest.approx(2.0 * rows[2]["responses"]["f"]["minus_best"], rel=1e-9)
     assert lap[2]["minus_best_pm95"] == pytest.approx(Z95 * np.hypot(0.02, 0.02), rel=1e-9)
+
+
+def test_report_table_has_one_no_wing_row_with_its_idle_knob_dashed():
+    from types import SimpleNamespace
+
+    from doe.report.build import fmt
+    from doe.report.levels import level_block
+
+    res = find_settings_per_level(_wing, _switched(), "f", "minimize", samples=16, seed=1, maxiter=20)
+    study = SimpleNamespace(space=_switched(), response=lambda name: SimpleNamespace(unit="-"))
+    out = res.to_dict()
+    table = level_block(study, out, None, fmt)["best"]
+    aoa = [fmt(rec["robust"]["point"]["wing_aoa"]) for rec in out["per_level"]]
+    assert [row[:3] for row in table["rows"]] == [["on", "s1", aoa[0]], ["on", "s2", aoa[1]], ["off", "no wing", "-"]]

@@ -22,8 +22,8 @@ from ..surrogate.levelset import LevelResponseSurrogate
 from ..surrogate.set import SurrogateSet
 from ..vehicle import VehicleObjective
 
-__all__ = ["fit_level_surrogates", "level_figure_map", "LevelSobolResult", "wants_level_sensitivity", "check_level_route",
-           "study_level_sensitivity"]
+__all__ = ["fit_level_surrogates", "level_figure_map", "LevelSobolResult", "wants_level_sensitivity",
+           "check_level_route", "study_level_sensitivity"]
 
 def fit_level_surrogates(study, results, settings: dict, seed=0) -> SurrogateSet:
     """One :class:`~doe.surrogate.levelset.LevelResponseSurrogate` per response of a study with choice knobs.
