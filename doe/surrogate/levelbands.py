@@ -3,8 +3,9 @@
 A Gaussian process whose kernel settings (variance, length scales, the
 correlation between levels) are fitted by likelihood treats them as known.
 With 10 to 60 runs they are not, and its bands are too narrow: on the
-built-in model of ``studies/demo_choices.toml`` the plug-in 2-sigma band of
-the mixed GP held 66 to 94 % of held-out errors (``benchmarks/bench_mixed.py``).
+built-in model of ``studies/demo_choices.toml`` (40 runs) the plug-in 2-sigma
+band of the mixed GP held 84-85 % of held-out errors on average over plans,
+66 % at worst (``benchmarks/bench_mixed.py``).
 
 Two measured widening factors, the larger of which is kept (never below 1):
 
