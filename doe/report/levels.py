@@ -42,8 +42,7 @@ def level_glance(study, rob: dict | None, fmt) -> list:
                  "best setting (95 %, the surrogate's uncertainty)")
         lap = (nxt.get("figures") or {}).get("lap_time_s")
         if lap is not None:
-            line += (f"; on the lap it is {fmt(abs(lap['minus_best']), 3)} ± {fmt(lap['minus_best_pm95'], 2)} s "
-                     f"{'slower' if lap['minus_best'] > 0 else 'quicker'}")
+            line += "; on the lap it is " + _lap_words(lap["minus_best"], lap["minus_best_pm95"], fmt)
         line += "."
     lines = [line]
     if "mean_minus_baseline" in best and rob.get("baseline"):
@@ -55,10 +54,15 @@ def level_glance(study, rob: dict | None, fmt) -> list:
                 f"{unit} (95 %)")
         lap = (best.get("figures") or {}).get("lap_time_s")
         if lap is not None and "minus_baseline" in lap:
-            text += (f", {fmt(abs(lap['minus_baseline']), 3)} ± {fmt(lap['minus_baseline_pm95'], 2)} s per lap "
-                     f"{'slower' if lap['minus_baseline'] > 0 else 'quicker'}")
+            text += ", per lap " + _lap_words(lap["minus_baseline"], lap["minus_baseline_pm95"], fmt)
         lines.append(text + ".")
     return lines
+
+
+def _lap_words(d: float, pm95: float, fmt) -> str:
+    """``"0.21 ± 0.01 s quicker"``; a difference inside its own interval is said to be unresolved."""
+    words = f"{fmt(abs(d), 3)} ± {fmt(pm95, 2)} s {'slower' if d > 0 else 'quicker'}"
+    return words + (" (not resolved: within its 95 % interval)" if abs(d) <= pm95 else "")
 
 
 def _where(study, row: dict, fmt) -> str:
