@@ -334,6 +334,8 @@ class MixedSurrogate(_LevelSurrogate):
     log_marginal_likelihood_ : float
     statements_ : list of str
         Plain notes (optimiser trouble, a correlation at a bound).
+    band_ : BandWidening or None
+        The band's widening after :meth:`widen` (None: the plug-in band); ``band_factor_`` is its factor.
 
     References
     ----------
@@ -597,6 +599,14 @@ class SeparateSurrogates(_LevelSurrogate):
     kernel, restarts, nugget, seed
         Passed to each :class:`ResponseSurrogate` (constant trend; the seed is
         the same for every combination).
+
+    Attributes
+    ----------
+    models_ : dict of tuple to ResponseSurrogate
+        Per level combination (level indices of the choice columns).
+    bands_ : dict of tuple to BandWidening
+        Per combination, the band's widening after :meth:`widen` (empty: plug-in bands).
+    loo_ : LooResult
     """
 
 
