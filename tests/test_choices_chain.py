@@ -21,7 +21,8 @@ ROOT = Path(__file__).resolve().parents[1]
 
 # A cut-down copy of studies/demo_choices.toml (invented car and class): two sections, the flap on or off, a
 # continuous knob and a stepped one (a flap bracket with holes every 10 deg), 16 runs (4 per level combination)
-# and cheap analysis settings, so the chain runs in seconds.
+# and cheap analysis settings, so the chain runs in seconds; an invented car and track for lap times, and the
+# car as it runs now (a baseline naming its levels).
 HEAD = """
 [study]
 name = "choice-chain"
@@ -63,6 +64,24 @@ paths = 16
 
 [robust]
 samples = 16
+baseline = { wing_section = "naca2412", flap = "off", wing_aoa = 4.0, flap_angle = 20 }
+
+[vehicle]                 # invented car: lap times from cla_total (half on each axle) and cda_total
+mass_kg = 1150.0
+tyre_mu = 1.35
+power_kw = 160.0
+wheelbase_m = 2.55
+cg_to_front_axle_m = 0.98
+aero_front_share = 0.5
+
+[track]                   # invented: one straight and one corner
+[[track.segments]]
+kind = "straight"
+length_m = 400.0
+[[track.segments]]
+kind = "corner"
+radius_m = 40.0
+angle_deg = 180.0
 """
 
 BUILTIN = """
@@ -112,6 +131,9 @@ def test_builtin_run_fits_level_surrogates_and_reloads_them(builtin_run):
         assert {c["kernel"].split()[0] for c in rec["candidates"]} == {"mixed", "separate"}
         assert sum(c["chosen"] for c in rec["candidates"]) == 1
         assert set(rec["length_scales"]) == {"wing_aoa", "flap_angle"}   # the choices have none
+        # the band is measured, not plug-in: widened about the fitted mean, the factor and why in words
+        assert rec["uncertainty"] == "widened" and ("widened about" in rec["uncertainty_reason"]
+                                                    or "fitted band is kept" in rec["uncertainty_reason"])
     study = load_study(builtin_run / "study.toml")
     sset = load_surrogates(out / "surrogate", study)
     from doe.workflow.fit import fit_surrogates
@@ -149,10 +171,32 @@ def test_builtin_run_robust_searches_each_level_and_compares_them(builtin_run):
         assert row["point"]["flap_angle"] in (10.0, 20.0, 30.0, 40.0)      # a stepped knob is set on its steps
     # the best setting holds the choices as level indices in the study's units
     assert rob["robust"]["point"]["wing_section"] in (0.0, 1.0)
+    # the flap's angle has nothing to act on without the flap
+    assert all(row["not_applying"] == (["flap_angle"] if row["levels"]["flap"] == "off" else [])
+               for row in rob["level_comparison"])
     tradeoff = (builtin_run / "out" / "tradeoff.csv").read_text().splitlines()
     assert tradeoff[0].startswith("wing_section,flap,wing_aoa,flap_angle,cla_total")
     assert any("high_lift" in line for line in tradeoff[1:])
     assert {float(line.split(",")[3]) for line in tradeoff[1:]} <= {10.0, 20.0, 30.0, 40.0}
+
+
+def test_builtin_run_compares_every_pick_with_the_baseline_and_on_the_lap(builtin_run):
+    from doe.vehicle import lap_times
+
+    rob = json.loads((builtin_run / "out" / "robust.json").read_text())
+    assert rob["baseline"]["levels"] == {"wing_section": "naca2412", "flap": "off"}
+    assert rob["baseline"]["point"]["wing_aoa"] == 4.0 and rob["baseline"]["point"]["flap"] == 1.0
+    study = load_study(builtin_run / "study.toml")
+    car, track = study.vehicle.car, study.track
+    for row in rob["level_comparison"]:
+        resp, lap = row["responses"], row["figures"]["lap_time_s"]
+        assert row["mean_minus_baseline_pm95"] > 0 and "minus_baseline" in resp["cla_total"]
+        # the lap time at the pick is the point-mass lap of its CLA (half on each axle) and CDA
+        cla, cda = resp["cla_total"]["mean"], resp["cda_total"]["mean"]
+        assert lap["value"] == pytest.approx(float(lap_times(car, track, 0.5 * cla, 0.5 * cla, cda)), rel=1e-12)
+        # an interval whatever the objective (here cla_total): the surrogate's uncertainty carried to the lap
+        assert lap["pm95"] > 0 and lap["unit"] == "s"
+        assert (lap["minus_best_pm95"] > 0) == (row["levels"] != rob["choices"]["best"])
 
 
 def test_builtin_run_report_answers_which_level_and_where_with_the_files_numbers(builtin_run):
@@ -164,6 +208,9 @@ def test_builtin_run_report_answers_which_level_and_where_with_the_files_numbers
         assert format_with_interval(row["mean"], row["std"]) in text
         cda = row["responses"]["cda_total"]
         assert f"{fmt(cda['mean'])} ({fmt(cda['minus_best'], 3)} ± {fmt(cda['minus_best_pm95'], 2)})" in text
+        lap = row["figures"]["lap_time_s"]
+        assert f"{fmt(lap['value'], 5)} ({fmt(lap['minus_best'], 3)} ± {fmt(lap['minus_best_pm95'], 2)})" in text
+    assert "Against the car as it runs now (wing_section naca2412, flap off)" in text
     sens = json.loads((out / "sensitivity.json").read_text())
     for d in sens["_meta"]["levels"]["cda_total"]["flap"]["differences"]:
         assert f"{fmt(d['difference'])} ± {fmt(d['difference_pm95'])} m^2" in text
@@ -204,3 +251,12 @@ def test_fit_predicts_at_points_given_with_level_names(builtin_run, tmp_path):
     sset = load_surrogates(tmp_path / "s", load_study(study))
     mean = sset.predict(np.array([[0, 0, 5, 20], [1, 1, 11, 40]]))["cla_total"][0]
     np.testing.assert_allclose(pred["cla_total_mean"], mean, rtol=1e-9)
+
+
+def test_a_baseline_level_that_is_not_a_level_is_one_line(tmp_path, capsys):
+    study = _folder(tmp_path, BUILTIN)
+    study.write_text(study.read_text().replace('wing_section = "naca2412", flap = "off"',
+                                               'wing_section = "naca9999", flap = "off"'))
+    assert main(["plan", str(study), "--out", str(tmp_path / "plan.csv")]) == 2
+    err = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
+    assert len(err) == 1 and "baseline" in err[0] and "naca9999" in err[0] and "study.toml:" in err[0], err

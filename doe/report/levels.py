@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..vehicle import figure_words
 from . import figures as F
 from .style import new_figure
 
@@ -21,18 +22,16 @@ def _combo(levels: dict) -> str:
 
 
 def level_glance(study, rob: dict | None, fmt) -> list:
-    """One "at a glance" line answering which level combination, at what setting, and by how much."""
+    """"At a glance" lines: which level combination, at what setting, by how much, and against the car now."""
     if not rob or "level_comparison" not in rob:
         return []
     obj = rob["objective"]
     unit = obj.get("unit", "")
     rows = rob["level_comparison"]
     best = next(r for r in rows if r["levels"] == rob["choices"]["best"])
-    settable = [p for p in study.space.parameters if not p.levels]
-    where = ", ".join(f"{p.name} {fmt(best['point'][p.name], 3)} {p.unit}" for p in settable)
-    line = (f"Which {', '.join(rob['choices']['knobs'])}, and at what setting: {_combo(best['levels'])}, at {where}; "
-            f"there {obj['response']} is {F.format_with_interval(best['mean'], best['std'], unit=unit)} under "
-            "setup scatter.")
+    line = (f"Which {', '.join(rob['choices']['knobs'])}, and at what setting: {_combo(best['levels'])}, at "
+            f"{_where(study, best, fmt)}; there {obj['response']} is "
+            f"{F.format_with_interval(best['mean'], best['std'], unit=unit)} under setup scatter.")
     others = sorted((r for r in rows if r is not best), key=lambda r: abs(r["mean_minus_best"]))
     if others:
         nxt = others[0]
@@ -40,8 +39,37 @@ def level_glance(study, rob: dict | None, fmt) -> list:
         worse = d > 0 if obj.get("goal") == "minimize" else d < 0
         line += (f" The next best, {_combo(nxt['levels'])}, is {'worse' if worse else 'better on paper'} by "
                  f"{fmt(abs(d), 3)} ± {fmt(nxt['mean_minus_best_pm95'], 2)} {unit} in {obj['response']} at its own "
-                 "best setting (95 %, the surrogate's uncertainty).")
-    return [line]
+                 "best setting (95 %, the surrogate's uncertainty)")
+        lap = (nxt.get("figures") or {}).get("lap_time_s")
+        if lap is not None:
+            line += "; on the lap it is " + _lap_words(lap["minus_best"], lap["minus_best_pm95"], fmt)
+        line += "."
+    lines = [line]
+    if "mean_minus_baseline" in best and rob.get("baseline"):
+        base_levels = rob["baseline"].get("levels", {})
+        d = best["mean_minus_baseline"]
+        better = d < 0 if obj.get("goal") == "minimize" else d > 0
+        text = (f"Against the car as it runs now ({_combo(base_levels)}): {obj['response']} "
+                f"{'better' if better else 'worse'} by {fmt(abs(d), 3)} ± {fmt(best['mean_minus_baseline_pm95'], 2)} "
+                f"{unit} (95 %)")
+        lap = (best.get("figures") or {}).get("lap_time_s")
+        if lap is not None and "minus_baseline" in lap:
+            text += ", per lap " + _lap_words(lap["minus_baseline"], lap["minus_baseline_pm95"], fmt)
+        lines.append(text + ".")
+    return lines
+
+
+def _lap_words(d: float, pm95: float, fmt) -> str:
+    """``"0.21 ± 0.01 s quicker"``; a difference inside its own interval is said to be unresolved."""
+    words = f"{fmt(abs(d), 3)} ± {fmt(pm95, 2)} s {'slower' if d > 0 else 'quicker'}"
+    return words + (" (not resolved: within its 95 % interval)" if abs(d) <= pm95 else "")
+
+
+def _where(study, row: dict, fmt) -> str:
+    """The settable knobs of a comparison row, those that do not apply left out."""
+    skip = set(row.get("not_applying", []))
+    return ", ".join(f"{p.name} {fmt(row['point'][p.name], 3)} {p.unit}" for p in study.space.parameters
+                     if not p.levels and p.name not in skip)
 
 
 def level_block(study, rob: dict | None, sensitivity: dict | None, fmt) -> dict | None:
@@ -72,27 +100,41 @@ def _best_table(study, rob: dict, fmt) -> dict:
     unit = obj.get("unit", "")
     rows = rob["level_comparison"]
     responses = list(rows[0]["responses"])
-    header = ([p.name for p in study.space.choices] + [p.label() for p in study.space.parameters if not p.levels]
+    figures = list(rows[0].get("figures") or {})
+    baseline = "mean_minus_baseline" in rows[0]
+    settable = [p for p in study.space.parameters if not p.levels]
+    header = ([p.name for p in study.space.choices] + [p.label() for p in settable]
               + [f"{obj['response']} under scatter, mean ± std [{unit}]"]
-              + [f"{r} at the setting, change from the best ± 95 % [{study.response(r).unit}]" for r in responses])
-    lap = all(r.get("lap_time_s") is not None for r in rows)
+              + ([f"{obj['response']}, change from the car as it runs now ± 95 % [{unit}]"] if baseline else [])
+              + [f"{r} at the setting, change from the best ± 95 % [{study.response(r).unit}]" for r in responses]
+              + [f"{figure_words(f)} at the setting, change from the best ± 95 % [{rows[0]['figures'][f]['unit']}]"
+                 for f in figures])
+    lap = not figures and all(r.get("lap_time_s") is not None for r in rows)
     if lap:
         header.append("lap time, change from the best [s]")
     body = []
     for row in rows:
+        skip = set(row.get("not_applying", []))
         cells = [row["levels"][p.name] for p in study.space.choices]
-        cells += [fmt(row["point"][p.name]) for p in study.space.parameters if not p.levels]
+        cells += ["-" if p.name in skip else fmt(row["point"][p.name]) for p in settable]
         cells.append(F.format_with_interval(row["mean"], row["std"]))
+        if baseline:
+            cells.append(f"{fmt(row['mean_minus_baseline'], 3)} ± {fmt(row['mean_minus_baseline_pm95'], 2)}")
         for r in responses:
             rec = row["responses"][r]
             cells.append(f"{fmt(rec['mean'])} ({fmt(rec['minus_best'], 3)} ± {fmt(rec['minus_best_pm95'], 2)})")
+        for f in figures:
+            rec = row["figures"][f]
+            cells.append(f"{fmt(rec['value'], 5)} ({fmt(rec['minus_best'], 3)} ± {fmt(rec['minus_best_pm95'], 2)})")
         if lap:
             cells.append(f"{fmt(row['lap_time_s'], 5)} ({fmt(row['lap_time_minus_best_s'], 3)})")
         body.append(cells)
     text = ("The best setting of the other knobs within each level combination (a choice is not scattered: each "
-            "combination is searched on its own), and what each response is there; in brackets the change from "
+            "combination is searched on its own), and what each response"
+            + (" and vehicle figure" if figures else "") + " is there; in brackets the change from "
             "the best combination's value with its 95 % interval from the surrogate's uncertainty at the two "
-            "settings (robust.json, level_comparison). " + rob["choices"]["method"].capitalize() + ".")
+            "settings (robust.json, level_comparison). A knob marked - has nothing to act on in that combination "
+            "(its part is switched off). " + rob["choices"]["method"].capitalize() + ".")
     return {"header": header, "rows": body, "text": text}
 
 

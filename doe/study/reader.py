@@ -47,7 +47,7 @@ Optional tables for robust settings and vehicle figures (see
     of ``{ response = "...", max = x, min = y }``, either bound optional),
     ``tradeoff`` (responses of the trade-off set; default those with a goal),
     ``targets`` (``{ response = value }`` for trade-off responses with goal none),
-    ``baseline`` (``{ parameter = value, ... }``: the setting run now, to compare with).
+    ``baseline`` (``{ parameter = value, ... }``: the setting run now, to compare with; a choice takes a level name).
     The objective may also be a vehicle figure computed from the ``[vehicle]`` axle responses
     (``lap_time_s`` minimised, needs ``[track]``; ``top_speed_kph`` or
     ``corner_speed_<radius>m_kph`` maximised), and a limit may be put on a figure with
@@ -390,19 +390,26 @@ def _numbers(t: Table, key: str, default: tuple) -> tuple:
 
 
 def _read_baseline(t: Table, parameters) -> dict | None:
+    """``{name: value}`` in study units; a choice's level name becomes its index."""
     values = t.take("baseline", dict, default=None)
     if values is None:
         return None
     names = [p.name for p in parameters]
+    by_name = {p.name: p for p in parameters}
     for name, value in values.items():
-        if name not in names or not is_number(value):
+        p = by_name.get(name)
+        if p is not None and p.levels:
+            if value not in p.levels:
+                raise t.error("baseline", f"'{name}' is a choice: give one of its levels ({', '.join(p.levels)}), "
+                                          f"not {value!r}")
+        elif p is None or not is_number(value):
             raise t.error("baseline", f"'{name}' must be a parameter ({', '.join(names)}) with a number as its value")
     for p in parameters:
         if p.name not in values:
             raise t.error("baseline", f"give a value for every parameter; '{p.name}' is missing")
-        if not p.low <= values[p.name] <= p.high:
+        if not p.levels and not p.low <= values[p.name] <= p.high:
             raise t.error("baseline", f"{p.name} = {values[p.name]:g} is outside [{p.low:g}, {p.high:g}] {p.unit}")
-    return {n: float(values[n]) for n in names}
+    return {p.name: float(p.levels.index(values[p.name])) if p.levels else float(values[p.name]) for p in parameters}
 
 
 FIGURE_NAMES = ", ".join(list(FIGURE_UNITS) + ["corner_speed_<radius>m_kph"])

@@ -12,10 +12,14 @@ Stepped knobs are continuous columns here (the GP interpolates between
 steps); a setting proposed from the surrogate is snapped to its steps by
 :meth:`doe.space.Space.from_unit`.
 
-The kernel's settings are the fitted ones (plug-in): the hyperparameter
-posterior of :mod:`doe.surrogate.hyperposterior` does not cover the level
-correlations. ``q2_low`` is still computed from the fitted GP's paths, so the
-``ready`` verdict asks the same two things as for other responses.
+The kept model's mean is the fitted one; its band is widened by
+:mod:`doe.surrogate.levelbands` (the kernel settings, level correlations
+included, sampled from their posterior, and the leave-one-out errors; the
+larger factor is kept), because the fitted (plug-in) band is too narrow with
+the few runs per level combination a study has (measured in
+``benchmarks/bench_mixed.py``). The sample paths are widened with it, so
+``q2_low``, the Sobol intervals and the robust search carry the wider band;
+the ``ready`` verdict asks the same two things as for other responses.
 
 References
 ----------
@@ -31,13 +35,14 @@ import numpy as np
 from scipy.stats import qmc
 
 from ..errors import SurrogateError
-from ..seeds import child_seeds
 from .mixed import MixedSurrogate, SeparateSurrogates, best_level_surrogate
 
 __all__ = ["LevelResponseSurrogate", "level_unit_sample", "KIND"]
 
 #: Value of ``surrogate`` in a saved response record of this kind.
 KIND = "levels"
+#: Check points (a scrambled Sobol' sample over the levels) at which the band's widening is measured.
+CHECK_POINTS = 128
 
 
 def level_unit_sample(levels, n: int, seed=0) -> np.ndarray:
@@ -65,6 +70,8 @@ class LevelResponseSurrogate:
     kernel : {"matern52", "sqexp", "matern32"}
     restarts, nugget, seed
         As for :class:`~doe.surrogate.mixed.MixedSurrogate`.
+    widen : bool
+        Widen the kept model's band (:mod:`doe.surrogate.levelbands`); False keeps the plug-in band.
 
     Attributes
     ----------
@@ -73,6 +80,10 @@ class LevelResponseSurrogate:
     candidates_ : list of dict
         Both surrogates' leave-one-out figures and which was kept.
     loo_ : LooResult
+        Leave-one-out results; their standard deviations widened with the band.
+    band_method_ : {"widened", "plugin"}
+    band_words_ : str
+        How the band was set, in one sentence.
     q2_low_ : float
         5 % quantile of posterior draws of the map's q2 (see :func:`doe.surrogate.hyperposterior.q2_draws`).
     length_scales_ : ndarray
@@ -88,13 +99,14 @@ class LevelResponseSurrogate:
     fidelity = "single"
     learn_noise_ = False
 
-    def __init__(self, levels, names, kernel="matern52", restarts=4, nugget=1e-8, seed=0):
+    def __init__(self, levels, names, kernel="matern52", restarts=4, nugget=1e-8, seed=0, widen=True):
         self.levels = [int(v) for v in levels]
         self.all_names = list(names)
         self.kernel = kernel if kernel in ("matern52", "sqexp", "matern32") else "matern52"
         self.restarts = restarts
         self.nugget = nugget
         self.seed = seed
+        self.widen = widen
 
     # -- fitting -------------------------------------------------------------
     def fit(self, X_unit, y, spans=None) -> "LevelResponseSurrogate":
@@ -109,6 +121,9 @@ class LevelResponseSurrogate:
                                                       restarts=int(self.restarts), nugget=float(self.nugget),
                                                       seed=int(self.seed))
             self.kind_ = "mixed" if isinstance(self.model_, MixedSurrogate) else "separate"
+            if self.widen:
+                self.model_.widen(level_unit_sample(self.levels, CHECK_POINTS, seed=int(self.seed) + 1),
+                                  seed=int(self.seed))
             self.candidates_ = [{"kernel": f"{row['model']} ({self.kernel})", **{k: v for k, v in row.items()
                                                                                 if k != "model"}}
                                 for row in table]
@@ -135,6 +150,7 @@ class LevelResponseSurrogate:
         if self.constant_:
             self.loo_ = LooResult(self.y_.copy(), self.y_.copy(), np.zeros(len(self.y_)), float("nan"), 0.0)
             self.length_scales_, self.statements_ = np.full(len(cont), 1e3), []
+            self.band_words_ = "the response is constant"
             self.log_marginal_likelihood_, self.q2_low_ = float("nan"), float("nan")
             self.family_, self.trend_, self.noise_std_ = self.kernel, "constant", 0.0
             return
@@ -157,7 +173,30 @@ class LevelResponseSurrogate:
             notes = [f"one GP per level combination ({len(m.models_)}; its leave-one-out error was the smaller); "
                      "the length scales are their geometric mean"]
         self.statements_ = [self._named(s) for s in notes]
+        self.band_words_ = self._band_words()
         self.q2_low_ = self._q2_low()
+
+    def _band_words(self) -> str:
+        """How the kept model's band was set, in one sentence (``fit.json``'s uncertainty reason)."""
+        m = self.model_
+        bands = [m.band_] if self.kind_ == "mixed" else list(m.bands_.values())
+        bands = [b for b in bands if b is not None]
+        if not bands:
+            return "plug-in: the fitted kernel settings"
+        if self.kind_ == "mixed":
+            return bands[0].words()
+        return ("one GP per level combination, each band widened about its fitted mean by "
+                + ", ".join(f"{b.factor:.2f}" for b in bands)
+                + " (the larger of the spread over sampled kernel settings and the standardised leave-one-out "
+                "errors)")
+
+    @property
+    def band_method_(self) -> str:
+        """``"widened"`` when the kept model's band was widened, else ``"plugin"``."""
+        if self.model_ is None:
+            return "plugin"
+        bands = [self.model_.band_] if self.kind_ == "mixed" else list(self.model_.bands_.values())
+        return "widened" if any(b is not None for b in bands) else "plugin"
 
     def _named(self, text: str) -> str:
         """A mixed-GP statement with its column numbers replaced by the parameters' names."""
@@ -187,16 +226,7 @@ class LevelResponseSurrogate:
             return np.full((int(n_paths), len(X)), self.y_mean_)
         if self.kind_ == "mixed":
             return self.model_.sample_paths(X, n_paths, seed)
-        m = self.model_
-        Xc, keys = m._split(m._check_points(X, m.levels_))
-        out = np.empty((int(n_paths), len(X)))
-        combos = sorted(set(keys))
-        for key, s in zip(combos, child_seeds(seed, len(combos))):
-            if key not in m.models_:
-                raise SurrogateError(f"level combination {key} has no runs: no surrogate was fitted for it")
-            rows = [i for i, k in enumerate(keys) if k == key]
-            out[:, rows] = m.models_[key].sample_paths(Xc[rows], n_paths, int(s), method)
-        return out
+        return self.model_.sample_paths(X, n_paths, seed, method)
 
     # -- records ---------------------------------------------------------------
     def to_arrays(self) -> dict:
@@ -207,6 +237,7 @@ class LevelResponseSurrogate:
         """Plain JSON record (the runs go to the NPZ file): the kept model's own record and the options."""
         return {"surrogate": KIND, "levels": self.levels, "names": self.all_names, "kernel": self.kernel,
                 "restarts": int(self.restarts), "nugget": float(self.nugget), "seed": int(self.seed),
+                "widen": bool(self.widen),
                 "kind": self.kind_, "model": None if self.model_ is None else self.model_.to_dict(),
                 "candidates": self.candidates_, "fit_seconds": float(self.fit_seconds_),
                 "spans": [float(s) for s in self.spans_]}
@@ -216,7 +247,7 @@ class LevelResponseSurrogate:
         """Rebuild from :meth:`to_dict` and the runs, without optimising."""
         try:
             model = cls(record["levels"], record["names"], record["kernel"], record["restarts"], record["nugget"],
-                        record["seed"])
+                        record["seed"], bool(record.get("widen", False)))
             kind, saved = str(record["kind"]), record["model"]
             candidates, seconds = list(record["candidates"]), float(record["fit_seconds"])
             spans = np.zeros(len(model.levels))

@@ -49,7 +49,9 @@ from threadpoolctl import threadpool_limits
 from .. import defaults
 from ..checks import is_whole
 from ..errors import NotFittedError, SurrogateError
+from ..seeds import child_seeds
 from .gp import LooResult, ResponseSurrogate
+from .levelbands import BandWidening, band_widening
 from .kernels import AMPLITUDE_BOUNDS, FAMILIES, LENGTH_SCALE_BOUNDS, NU, TREND_BOUNDS
 
 __all__ = ["LevelKernel", "UnrestrictedLevelKernel", "hypersphere_correlation", "MixedSurrogate", "SeparateSurrogates", "best_level_surrogate", "LEVEL_SCALE_BOUNDS",
@@ -332,6 +334,8 @@ class MixedSurrogate(_LevelSurrogate):
     log_marginal_likelihood_ : float
     statements_ : list of str
         Plain notes (optimiser trouble, a correlation at a bound).
+    band_ : BandWidening or None
+        The band's widening after :meth:`widen` (None: the plug-in band); ``band_factor_`` is its factor.
 
     References
     ----------
@@ -441,6 +445,31 @@ class MixedSurrogate(_LevelSurrogate):
         q2 = 1.0 - float(np.sum(resid**2)) / total if total > 0 else float("nan")
         self.loo_ = LooResult(self.y_.copy(), self.y_ - resid, np.sqrt(1.0 / dinv) * self.y_std_, q2,
                               float(np.sqrt(np.mean(resid**2))))
+        self.band_ = None
+
+    @property
+    def band_factor_(self) -> float:
+        """What the fitted standard deviation is multiplied by (1 until :meth:`widen`)."""
+        return 1.0 if self.band_ is None else self.band_.factor
+
+    def widen(self, X_check, seed=0) -> "MixedSurrogate":
+        """Widen the band by :func:`~doe.surrogate.levelbands.band_widening` at the check points ``X_check``.
+
+        The kernel settings (level correlations included) are sampled; the band, the sample paths and the
+        leave-one-out standard deviations are widened about the fitted mean.
+        """
+        if not hasattr(self, "gp_"):
+            raise NotFittedError("this surrogate is not fitted yet; call fit(X, y) first")
+        Z = self._scaled(self._check_points(X_check, self.levels_))
+        loo = self.loo_ if self.band_ is None else self._plugin_loo
+        band = band_widening(self.gp_, Z, sum(n == 0 for n in self.levels_), loo, seed)
+        self._set_band(band)
+        return self
+
+    def _set_band(self, band) -> None:
+        loo = self.loo_ if self.band_ is None else self._plugin_loo
+        self._plugin_loo, self.band_ = loo, band
+        self.loo_ = LooResult(loo.observed, loo.predicted, loo.std * band.factor, loo.q2, loo.rmse)
 
     def _bound_statements(self) -> list:
         """Plain notes on hyperparameters at their bounds (the optimiser's warnings say the same less plainly)."""
@@ -484,7 +513,7 @@ class MixedSurrogate(_LevelSurrogate):
             return mean * self.y_std_ + self.y_mean_
         V = Ks @ self._L_inv.T
         var = np.clip(self.gp_.kernel_.diag(Z) - np.einsum("ij,ij->i", V, V), 0.0, None)
-        return mean * self.y_std_ + self.y_mean_, np.sqrt(var) * self.y_std_
+        return mean * self.y_std_ + self.y_mean_, np.sqrt(var) * (self.y_std_ * self.band_factor_)
 
 
     def to_dict(self) -> dict:
@@ -494,7 +523,7 @@ class MixedSurrogate(_LevelSurrogate):
         return {"kind": "mixed", "levels": list(self.levels_), "kernel": self.kernel, "correlation": self.correlation,
                 "restarts": int(self.restarts), "nugget": float(self.nugget), "seed": int(self.seed),
                 "alpha": float(self.gp_.alpha), "theta": [float(t) for t in self.gp_.kernel_.theta],
-                "statements": list(self.statements_)}
+                "statements": list(self.statements_), "band": None if self.band_ is None else self.band_.to_dict()}
 
     @classmethod
     def from_dict(cls, record: dict, X, y) -> "MixedSurrogate":
@@ -520,6 +549,8 @@ class MixedSurrogate(_LevelSurrogate):
         model.statements_ = []
         model._adopt(gp, (y - model.y_mean_) / model.y_std_)
         model.statements_ = statements
+        if record.get("band") is not None:
+            model._set_band(BandWidening.from_dict(record["band"]))
         return model
 
     def sample_paths(self, X, n_paths: int, seed=0) -> np.ndarray:
@@ -554,7 +585,7 @@ class MixedSurrogate(_LevelSurrogate):
             else:
                 raise SurrogateError("the posterior covariance at these points cannot be factorised")
             z = np.random.default_rng(seed).standard_normal((len(cov), int(n_paths)))
-            draws = mean[None, :] + (L @ z).T
+            draws = mean[None, :] + self.band_factor_ * (L @ z).T      # widened about the mean
         return self.y_mean_ + self.y_std_ * draws
 
 
@@ -568,6 +599,14 @@ class SeparateSurrogates(_LevelSurrogate):
     kernel, restarts, nugget, seed
         Passed to each :class:`ResponseSurrogate` (constant trend; the seed is
         the same for every combination).
+
+    Attributes
+    ----------
+    models_ : dict of tuple to ResponseSurrogate
+        Per level combination (level indices of the choice columns).
+    bands_ : dict of tuple to BandWidening
+        Per combination, the band's widening after :meth:`widen` (empty: plug-in bands).
+    loo_ : LooResult
     """
 
 
@@ -581,6 +620,7 @@ class SeparateSurrogates(_LevelSurrogate):
         self.levels_ = _level_counts(self.levels)
         X = self._check_points(X, self.levels_)
         y = np.asarray(y, dtype=float).ravel()
+        self.X_, self.y_ = X, y
         Xc, keys = self._split(X)
         self.models_ = {}
         for key in sorted(set(keys)):
@@ -590,7 +630,30 @@ class SeparateSurrogates(_LevelSurrogate):
             if len(model.y_) != len(rows):
                 raise SurrogateError(f"level combination {key} has repeated runs: merge or drop them first")
             self.models_[key] = model
+        self.bands_ = {}
         self._set_loo(keys, y)
+        return self
+
+    def factor(self, key) -> float:
+        """What a level combination's fitted standard deviation is multiplied by (1 until :meth:`widen`)."""
+        band = self.bands_.get(key)
+        return 1.0 if band is None else band.factor
+
+    def widen(self, X_check, seed=0) -> "SeparateSurrogates":
+        """Widen each combination's band by :func:`~doe.surrogate.levelbands.band_widening` at its check points.
+
+        Each combination's own kernel settings are sampled; its band, sample paths and leave-one-out
+        standard deviations are widened about its fitted mean.
+        """
+        if not hasattr(self, "models_"):
+            raise NotFittedError("these surrogates are not fitted yet; call fit(X, y) first")
+        Xc, keys = self._split(self._check_points(X_check, self.levels_))
+        for (key, model), s in zip(self.models_.items(), child_seeds(seed, len(self.models_))):
+            rows = [i for i, k in enumerate(keys) if k == key]
+            if model.constant_ or not rows:
+                continue
+            self.bands_[key] = band_widening(model.gp_, Xc[rows] - 0.5, Xc.shape[1], model.loo_, int(s))
+        self._set_loo(self._split(self.X_)[1], self.y_)
         return self
 
     def _set_loo(self, keys, y) -> None:
@@ -598,7 +661,7 @@ class SeparateSurrogates(_LevelSurrogate):
         predicted, std = np.empty(len(y)), np.empty(len(y))
         for key, model in self.models_.items():
             rows = [i for i, k in enumerate(keys) if k == key]
-            predicted[rows], std[rows] = model.loo_.predicted, model.loo_.std
+            predicted[rows], std[rows] = model.loo_.predicted, model.loo_.std * self.factor(key)
         total = float(np.sum((y - y.mean()) ** 2))
         resid = y - predicted
         self.loo_ = LooResult(y.copy(), predicted, std, 1.0 - float(np.sum(resid**2)) / total if total > 0
@@ -610,7 +673,9 @@ class SeparateSurrogates(_LevelSurrogate):
             raise NotFittedError("these surrogates are not fitted yet; call fit(X, y) first")
         return {"kind": "separate", "levels": list(self.levels_), "kernel": self.kernel,
                 "restarts": int(self.restarts), "nugget": float(self.nugget), "seed": int(self.seed),
-                "models": [{"levels": list(k), "record": m.to_dict()} for k, m in self.models_.items()]}
+                "models": [{"levels": list(k), "record": m.to_dict(),
+                            "band": None if k not in self.bands_ else self.bands_[k].to_dict()}
+                           for k, m in self.models_.items()]}
 
     @classmethod
     def from_dict(cls, record: dict, X, y) -> "SeparateSurrogates":
@@ -619,10 +684,13 @@ class SeparateSurrogates(_LevelSurrogate):
             model = cls(record["levels"], record["kernel"], record["restarts"], record["nugget"], record["seed"])
             model.levels_ = _level_counts(model.levels)
             saved = {tuple(int(v) for v in m["levels"]): m["record"] for m in record["models"]}
+            bands = {tuple(int(v) for v in m["levels"]): BandWidening.from_dict(m["band"])
+                     for m in record["models"] if m.get("band") is not None}
         except (KeyError, TypeError, ValueError) as exc:
             raise SurrogateError(f"the saved per-level surrogates are incomplete or malformed ({exc!r})") from exc
         X = model._check_points(X, model.levels_)
         y = np.asarray(y, dtype=float).ravel()
+        model.X_, model.y_ = X, y
         Xc, keys = model._split(X)
         if set(keys) != set(saved):
             raise SurrogateError("the runs' level combinations differ from the saved surrogates'")
@@ -630,6 +698,7 @@ class SeparateSurrogates(_LevelSurrogate):
         for key in sorted(saved):
             rows = [i for i, k in enumerate(keys) if k == key]
             model.models_[key] = ResponseSurrogate.from_dict(saved[key], Xc[rows], y[rows])
+        model.bands_ = bands
         model._set_loo(keys, y)
         return model
 
@@ -645,7 +714,25 @@ class SeparateSurrogates(_LevelSurrogate):
                 raise SurrogateError(f"level combination {key} has no runs: no surrogate was fitted for it")
             rows = [i for i, k in enumerate(keys) if k == key]
             mean[rows], std[rows] = self.models_[key].predict(Xc[rows], return_std=True)
+            std[rows] *= self.factor(key)
         return (mean, std) if return_std else mean
+
+    def sample_paths(self, X, n_paths: int, seed=0, method: str = "auto") -> np.ndarray:
+        """Joint posterior draws, shape ``(n_paths, n)``: independent between level combinations."""
+        if not hasattr(self, "models_"):
+            raise NotFittedError("these surrogates are not fitted yet; call fit(X, y) first")
+        Xc, keys = self._split(self._check_points(X, self.levels_))
+        out = np.empty((int(n_paths), len(Xc)))
+        combos = sorted(set(keys))
+        for key, s in zip(combos, child_seeds(seed, len(combos))):
+            if key not in self.models_:
+                raise SurrogateError(f"level combination {key} has no runs: no surrogate was fitted for it")
+            rows = [i for i, k in enumerate(keys) if k == key]
+            model = self.models_[key]
+            draws = model.sample_paths(Xc[rows], n_paths, int(s), method)
+            centre = model.predict(Xc[rows])
+            out[:, rows] = centre + self.factor(key) * (draws - centre)       # widened about the mean
+        return out
 
 
 def best_level_surrogate(levels, X, y, **options):

@@ -11,20 +11,19 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numpy as np
+
 from ..errors import SensitivityError, SurrogateError
+from ..robust.levels import FigureMap
 from ..seeds import child_seeds
 from ..sensitivity.levels import level_effects, level_sobol_indices
 from ..sensitivity.sobol import SobolResult
 from ..surrogate.levelset import LevelResponseSurrogate
 from ..surrogate.set import SurrogateSet
+from ..vehicle import VehicleObjective
 
-__all__ = ["fit_level_surrogates", "PLUGIN_REASON", "LevelSobolResult", "wants_level_sensitivity", "check_level_route",
-           "study_level_sensitivity"]
-
-#: Why a surrogate over choice knobs uses its fitted kernel settings.
-PLUGIN_REASON = ("surrogates over choice knobs use their fitted kernel settings (plug-in): the sampled kernel "
-                 "settings do not cover the correlation between levels")
-
+__all__ = ["fit_level_surrogates", "level_figure_map", "LevelSobolResult", "wants_level_sensitivity",
+           "check_level_route", "study_level_sensitivity"]
 
 def fit_level_surrogates(study, results, settings: dict, seed=0) -> SurrogateSet:
     """One :class:`~doe.surrogate.levelset.LevelResponseSurrogate` per response of a study with choice knobs.
@@ -41,7 +40,8 @@ def fit_level_surrogates(study, results, settings: dict, seed=0) -> SurrogateSet
     Returns
     -------
     SurrogateSet
-        Every response plug-in (``uncertainty[name]["method"] == "plugin"``), with its ``q2_low``.
+        Every response's band widened about its fitted mean (``uncertainty[name]["method"] == "widened"``,
+        the reason in words; :mod:`doe.surrogate.levelbands`), with its ``q2_low``.
 
     Raises
     ------
@@ -72,11 +72,36 @@ def fit_level_surrogates(study, results, settings: dict, seed=0) -> SurrogateSet
             raise SurrogateError(f"response '{resp.name}': {exc}") from exc
         models[resp.name] = model
         reasons[resp.name] = reason
-        uncertainty[resp.name] = {"method": "plugin", "reason": PLUGIN_REASON, "q2_low": model.q2_low_,
-                                  "q2_loo_plugin": float(model.loo_.q2)}
+        uncertainty[resp.name] = {"method": model.band_method_, "reason": model.band_words_,
+                                  "q2_low": model.q2_low_, "q2_loo_plugin": float(model.loo_.q2)}
     return SurrogateSet(space, models, {r.name: r.unit for r in study.responses},
                         {r.name: r.goal for r in study.responses}, list(ok["run_id"]), settings["target_q2"],
                         study.name, reasons, {}, uncertainty)
+
+
+# ---------------------------------------------------------------------------
+# robust search
+def level_figure_map(study) -> FigureMap | None:
+    """The study's vehicle figures as a function of its responses (None without ``[vehicle]``).
+
+    Lap time (with ``[track]``), top speed, and the front load share and balance shift at
+    ``balance_speed_kph``, from CLA front, CLA rear and CDA, or from the whole-car CLA split by the
+    front-share response or the fixed ``aero_front_share`` (as :func:`doe.workflow.robust.study_vehicle_figures`).
+    A negative CDA (a surrogate draw) counts as 0.
+    """
+    v = study.vehicle
+    if v is None:
+        return None
+    figures = VehicleObjective(v.car, study.track, balance_speed_kph=v.balance_speed_kph)
+    if v.cla_front_response is not None:
+        return FigureMap((v.cla_front_response, v.cla_rear_response, v.cda_response),
+                         lambda cf, cr, cd: figures.figures(cf, cr, np.maximum(cd, 0.0)))
+    if v.front_share_response is not None:
+        return FigureMap((v.cla_response, v.front_share_response, v.cda_response),
+                         lambda cla, share, cd: figures.figures(cla * share, cla * (1 - share), np.maximum(cd, 0.0)))
+    share = float(v.aero_front_share)
+    return FigureMap((v.cla_response, v.cda_response),
+                     lambda cla, cd: figures.figures(cla * share, cla * (1 - share), np.maximum(cd, 0.0)))
 
 
 # ---------------------------------------------------------------------------

@@ -9,6 +9,7 @@ from ..errors import DoeError
 from ..robust.scatter import predict_checked
 from ..robust.search import DEFAULT_MAXITER, DEFAULT_ROBUST_RESTARTS, RobustResult, find_settings
 from ..robust.levels import find_settings_per_level, tradeoff_per_level
+from .choices import level_figure_map
 from ..robust.tradeoff import tradeoff_set
 from ..vehicle import Aero, VehicleFigures, VehicleObjective, vehicle_figures
 
@@ -112,7 +113,8 @@ def study_robust(study, predict, runs_X=None, maxiter: int = DEFAULT_MAXITER,
     baseline = [r.baseline[n] for n in study.space.names] if r.baseline is not None else None
     vobj = study_vehicle_objective(study)
     search = find_settings_per_level if study.space.choices else find_settings    # choices: per level combination
-    return search(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits,
+    extra = {"figures": level_figure_map(study)} if study.space.choices else {}
+    return search(predict, study.space, r.objective, r.goal, k=r.k, limits=r.limits, **extra,
                          probability=r.probability, samples=r.samples, seed=r.seed, runs_X=runs_X, units=units,
                          vehicle_block=block, baseline=baseline, maxiter=maxiter, robust_restarts=robust_restarts,
                          vehicle_objective=vobj,
