@@ -22,15 +22,21 @@ def _combo(levels: dict) -> str:
 
 
 def level_glance(study, rob: dict | None, fmt) -> list:
-    """"At a glance" lines: which level combination, at what setting, by how much, and against the car now."""
+    """"At a glance" lines: which level combination, at what setting, by how much, and against the car now.
+
+    Differences are rounded to what their 95 % interval supports; the lap-time words are added only when
+    the objective is not the lap time itself.
+    """
     if not rob or "level_comparison" not in rob:
         return []
     obj = rob["objective"]
     unit = obj.get("unit", "")
+    name = figure_words(obj["response"])
+    on_lap = obj["response"] != "lap_time_s"
     rows = rob["level_comparison"]
     best = next(r for r in rows if r["levels"] == rob["choices"]["best"])
     line = (f"Which {', '.join(rob['choices']['knobs'])}, and at what setting: {_combo(best['levels'])}, at "
-            f"{_where(study, best, fmt)}; there {obj['response']} is "
+            f"{_where(study, best, fmt)}; there the {name} is "
             f"{F.format_with_interval(best['mean'], best['std'], unit=unit)} under setup scatter.")
     others = sorted((r for r in rows if r is not best), key=lambda r: abs(r["mean_minus_best"]))
     if others:
@@ -38,30 +44,36 @@ def level_glance(study, rob: dict | None, fmt) -> list:
         d = nxt["mean_minus_best"]
         worse = d > 0 if obj.get("goal") == "minimize" else d < 0
         line += (f" The next best, {_combo(nxt['levels'])}, is {'worse' if worse else 'better on paper'} by "
-                 f"{fmt(abs(d), 3)} ± {fmt(nxt['mean_minus_best_pm95'], 2)} {unit} in {obj['response']} at its own "
-                 "best setting (95 %, the surrogate's uncertainty)")
+                 f"{_difference(abs(d), nxt['mean_minus_best_pm95'], unit)} in the {name} at its own best setting "
+                 "(95 %, the surrogate's uncertainty"
+                 + ("; not resolved: within its interval)" if abs(d) <= nxt["mean_minus_best_pm95"] else ")"))
         lap = (nxt.get("figures") or {}).get("lap_time_s")
-        if lap is not None:
-            line += "; on the lap it is " + _lap_words(lap["minus_best"], lap["minus_best_pm95"], fmt)
+        if lap is not None and on_lap:
+            line += "; on the lap it is " + _lap_words(lap["minus_best"], lap["minus_best_pm95"])
         line += "."
     lines = [line]
     if "mean_minus_baseline" in best and rob.get("baseline"):
         base_levels = rob["baseline"].get("levels", {})
         d = best["mean_minus_baseline"]
         better = d < 0 if obj.get("goal") == "minimize" else d > 0
-        text = (f"Against the car as it runs now ({_combo(base_levels)}): {obj['response']} "
-                f"{'better' if better else 'worse'} by {fmt(abs(d), 3)} ± {fmt(best['mean_minus_baseline_pm95'], 2)} "
-                f"{unit} (95 %)")
+        text = (f"Against the car as it runs now ({_combo(base_levels)}): "
+                f"{'better' if better else 'worse'} by {_difference(abs(d), best['mean_minus_baseline_pm95'], unit)}"
+                f" in the {name} (95 %)")
         lap = (best.get("figures") or {}).get("lap_time_s")
-        if lap is not None and "minus_baseline" in lap:
-            text += ", per lap " + _lap_words(lap["minus_baseline"], lap["minus_baseline_pm95"], fmt)
+        if lap is not None and "minus_baseline" in lap and on_lap:
+            text += ", per lap " + _lap_words(lap["minus_baseline"], lap["minus_baseline_pm95"])
         lines.append(text + ".")
     return lines
 
 
-def _lap_words(d: float, pm95: float, fmt) -> str:
+def _difference(d: float, pm95: float, unit: str) -> str:
+    """``"0.012 ± 0.010 s"``: the difference rounded to what its 95 % interval supports (two digits of it)."""
+    return F.format_with_interval(d, pm95, digits=2, unit=unit)
+
+
+def _lap_words(d: float, pm95: float) -> str:
     """``"0.21 ± 0.01 s quicker"``; a difference inside its own interval is said to be unresolved."""
-    words = f"{fmt(abs(d), 3)} ± {fmt(pm95, 2)} s {'slower' if d > 0 else 'quicker'}"
+    words = f"{_difference(abs(d), pm95, 's')} {'slower' if d > 0 else 'quicker'}"
     return words + (" (not resolved: within its 95 % interval)" if abs(d) <= pm95 else "")
 
 
