@@ -16,7 +16,7 @@ import numpy as np
 from sklearn.gaussian_process.kernels import RBF, ConstantKernel, DotProduct, Matern, WhiteKernel
 
 __all__ = ["FAMILIES", "TRENDS", "LENGTH_SCALE_BOUNDS", "AMPLITUDE_BOUNDS", "TREND_BOUNDS", "NOISE_BOUNDS",
-           "NU", "build_kernel", "kernel_label"]
+           "NU", "build_kernel", "kernel_label", "unit_correlation"]
 
 FAMILIES = ("sqexp", "matern52", "matern32")
 TRENDS = ("constant", "linear")
@@ -53,3 +53,15 @@ def kernel_label(family: str, trend: str) -> str:
     """Plain name of a kernel, e.g. ``"Matern 5/2, linear trend"``."""
     names = {"sqexp": "squared-exponential", "matern52": "Matern 5/2", "matern32": "Matern 3/2"}
     return f"{names[family]}, {trend} trend"
+
+
+def unit_correlation(family: str, r: np.ndarray) -> np.ndarray:
+    """The stationary correlation of ``family`` at scaled distance ``r`` (Rasmussen & Williams 2006, eqs. 4.9,
+    4.17): the same numbers as scikit-learn's ``RBF`` and ``Matern`` with unit length scale."""
+    if family == "sqexp":
+        return np.exp(-0.5 * r * r)
+    if family == "matern32":
+        a = np.sqrt(3.0) * r
+        return (1.0 + a) * np.exp(-a)
+    a = np.sqrt(5.0) * r
+    return (1.0 + a + a * a / 3.0) * np.exp(-a)
