@@ -101,3 +101,21 @@ def test_ishigami_from_100_runs_default_route_several_plans():
     errs = [_ishigami_indices_from_runs(100, seed, {})[0] for seed in range(5)]
     assert max(errs) <= 0.03
     assert np.mean(errs) <= 0.02
+
+
+def test_fit_json_kernel_describes_what_predicts(ishigami_30):
+    # fit.json's kernel and length scales are those of the posterior that predicts (median over its draws for a
+    # mixture); the fitted surrogate's stay beside them under plugin_*
+    _, sets = ishigami_30
+    post = sets["auto"].posteriors["y"]
+    rep = sets["auto"].fit_report()["y"]
+    summary = post.kernel_summary()
+    assert rep["kernel"] == summary["label"] and rep["kernel_structure"] == post.structure_
+    assert rep["kernel_settings"] == "median over the draws"
+    med = np.exp(np.median(post.thetas_[:, 1:4], axis=0))        # joint term's ln l_1..l_3
+    np.testing.assert_allclose(list(rep["relative_length_scales"].values()), med, rtol=1e-12)
+    np.testing.assert_allclose(list(rep["length_scales"].values()), med * 2 * np.pi, rtol=1e-12)   # range 2 pi
+    gp = sets["auto"].models["y"]
+    np.testing.assert_allclose(list(rep["plugin_relative_length_scales"].values()), gp.length_scales_, rtol=1e-12)
+    plug = sets["plugin"].fit_report()["y"]
+    assert plug["kernel"] == plug["plugin_kernel"] and plug["kernel_settings"] == "fitted"

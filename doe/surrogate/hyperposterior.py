@@ -1112,6 +1112,31 @@ class HyperPosterior:
         self._check_fitted()
         return q2_draws(self, self.X_unit_.shape[1], n_points, n_paths, seed)
 
+    def kernel_summary(self) -> dict:
+        """What predicts, in plain values: kernel name, family, structure, trend and relative length scales.
+
+        Returns
+        -------
+        dict
+            ``label`` (e.g. ``"Matern 5/2 plus one-input terms, linear trend"``),
+            ``family``, ``structure``, ``trend``, ``length_scales`` (joint term,
+            fractions of each parameter's range) and, with one-input terms,
+            ``one_input_length_scales``: the posterior mode's when it predicts
+            alone (``plugin``, ``widened``), else the median over the kept
+            draws; ``which`` says which.
+        """
+        self._check_fitted()
+        ix = self.target_.ix
+        mixture = self.method_ == "mixture" and len(self.thetas_) > 1
+        theta = np.median(self.thetas_, axis=0) if mixture else self.theta_map_
+        out = {"label": f"{_structure_label(self.family_, self.structure_)}, {self.trend} trend",
+               "family": self.family_, "structure": self.structure_, "trend": self.trend,
+               "which": "median over the draws" if mixture else "posterior mode",
+               "length_scales": np.exp(theta[ix["ls"]])}
+        if "add_ls" in ix:
+            out["one_input_length_scales"] = np.exp(theta[ix["add_ls"]])
+        return out
+
     # -- records -----------------------------------------------------------
     def to_record(self) -> dict:
         """Options, scaling and draws as plain JSON values (training data are stored beside, e.g. in NPZ)."""
