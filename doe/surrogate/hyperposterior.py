@@ -298,19 +298,20 @@ def _layout(d: int, learn_noise: bool, additive: bool) -> dict:
     return ix
 
 
-def _correlation_and_factor(family: str, D, log_ls, amplitude: float) -> tuple:
-    """``amplitude * K`` of a stationary family over squared differences ``D`` (k, n, n), and the factor
-    ``F`` with ``dK / dln l_k = F * D_k / l_k^2`` (Rasmussen & Williams 2006, eqs. 4.9, 4.17)."""
-    r2 = np.tensordot(np.exp(-2 * np.asarray(log_ls)), D, axes=1)
+def _correlation_and_factor(family: str, r2, amplitude, factor: bool = True) -> tuple:
+    """``amplitude * K`` of a stationary family at squared scaled distances ``r2``, and (with ``factor``) the
+    factor ``F`` with ``dK / dln l_k = F * D_k / l_k^2`` (Rasmussen & Williams 2006, eqs. 4.9, 4.17); ``None``
+    in its place without."""
     if family == "sqexp":
         K = amplitude * np.exp(-0.5 * r2)
         return K, K
     r = np.sqrt(r2)
+    c = math.sqrt(5) if family == "matern52" else math.sqrt(3)
+    e = amplitude * np.exp(-c * r)
     if family == "matern52":
-        e = np.exp(-math.sqrt(5) * r)
-        return amplitude * (1 + math.sqrt(5) * r + 5 * r2 / 3) * e, amplitude * (5 / 3) * (1 + math.sqrt(5) * r) * e
-    e = np.exp(-math.sqrt(3) * r)
-    return amplitude * (1 + math.sqrt(3) * r) * e, amplitude * 3 * e
+        K = (1 + c * r + 5 * r2 / 3) * e
+        return K, ((5 / 3) * (1 + c * r) * e if factor else None)
+    return (1 + c * r) * e, (3 * e if factor else None)
 
 
 def _hessian(target, theta, h: float = 1e-4) -> np.ndarray:
@@ -390,23 +391,24 @@ class _Target:
         _, sd = _whitening(_hessian(self, theta))
         return self.logp(theta) - float(np.sum(np.log(self.prior_sd))) + float(np.sum(np.log(sd)))
 
-    def _stationary(self, theta):
-        """(s^2 K, dK/dln l_k factors) of the stationary part."""
-        return _correlation_and_factor(self.family, self.D, theta[self.ix["ls"]], math.exp(theta[0]))
+    def _stationary(self, theta, factor=True):
+        """(s^2 K, dK/dln l_k factors) of the joint term."""
+        r2 = np.tensordot(np.exp(-2 * theta[self.ix["ls"]]), self.D, axes=1)
+        return _correlation_and_factor(self.family, r2, math.exp(theta[0]), factor)
 
-    def _additive_terms(self, theta):
-        """(a^2/d sum_k K_k, per-input factors of dK/dln m_k) of the one-input terms."""
-        a2 = math.exp(theta[self.ix["add_amp"]]) / self.d
-        ls = theta[self.ix["add_ls"]]
-        K, F = zip(*(_correlation_and_factor(self.family, self.D[k:k + 1], ls[k:k + 1], a2) for k in range(self.d)))
-        return np.sum(K, axis=0), np.array(F)
+    def _additive_terms(self, theta, factor=True):
+        """(a^2/d sum_k K_k, per-input factors (d, n, n) of dK/dln m_k) of the one-input terms."""
+        r2 = self.D * np.exp(-2 * theta[self.ix["add_ls"]])[:, None, None]
+        K, F = _correlation_and_factor(self.family, r2, math.exp(theta[self.ix["add_amp"]]) / self.d, factor)
+        return np.sum(K, axis=0), F
 
-    def covariance(self, theta):
-        """Training covariance ``K`` (with noise and nugget) and the stationary part's pieces."""
-        S, dfac = self._stationary(theta)
+    def covariance(self, theta, factor=True):
+        """Training covariance ``K`` (with noise and nugget) and the joint term's pieces (factor: see
+        :func:`_correlation_and_factor`)."""
+        S, dfac = self._stationary(theta, factor)
         K = S + math.exp(theta[self.ix["trend"]]) * self.T
         if self.additive:
-            K = K + self._additive_terms(theta)[0]
+            K = K + self._additive_terms(theta, factor=False)[0]
         noise = math.exp(theta[self.ix["noise"]]) if self.learn_noise else 0.0
         K[np.diag_indices(self.n)] += noise + self.nugget
         return K, S, dfac
@@ -421,7 +423,7 @@ class _Target:
         lp = self.log_prior(theta)
         if not np.isfinite(lp):
             return -np.inf
-        K = self.covariance(theta)[0]
+        K = self.covariance(theta, factor=False)[0]
         try:
             L = cholesky(K, lower=True, check_finite=False)
         except np.linalg.LinAlgError:
