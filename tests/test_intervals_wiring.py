@@ -80,15 +80,14 @@ def _ishigami_indices_from_runs(n, seed, gp_options, **sobol_options):
     return float(np.max(np.abs(np.r_[res.S1 - ref["S1"], res.ST - ref["ST"]]))), res, post
 
 
-@pytest.mark.parametrize("seed", [0, 3])
-def test_ishigami_from_100_runs_within_003(seed):
+def test_ishigami_from_100_runs_within_003():
     # Analytic indices: Ishigami & Homma (1990); Sobol' & Levitan (1999), Comput. Phys. Commun. 117:52
     # (tf.ishigami_indices). The issue's accuracy: largest S1/ST error at most 0.03 from 100 runs (goal 0.02).
     # The surrogate is fitted with the default's kernel (Matern 5/2, linear trend) fixed, so that the test skips
-    # the plug-in's kernel search; the posterior is the default's (structure chosen by evidence). Measured
-    # 0.0036 and 0.0106 with a base sample of 2^13; the posterior with one joint term only (the default before)
-    # gave 0.084 and 0.064 on the same plans (base sample 2^11, benchmarks/bench_intervals.py settings).
-    err, res, post = _ishigami_indices_from_runs(100, seed, dict(kernel="matern52", trend="linear", restarts=1),
+    # the plug-in's kernel search; the posterior is the default's (structure chosen by evidence). Plan seed 3, the
+    # worst of five: measured 0.0106 with a base sample of 2^13; the posterior with one joint term only (the
+    # default before) gave 0.064 on this plan (base sample 2^11, benchmarks/bench_intervals.py settings).
+    err, res, post = _ishigami_indices_from_runs(100, 3, dict(kernel="matern52", trend="linear", restarts=1),
                                                  base_samples=2**13, n_paths=32)
     assert post.structure_ == "additive"       # Ishigami is mostly a sum of one-input terms
     assert err <= 0.03
