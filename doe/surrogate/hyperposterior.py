@@ -598,9 +598,14 @@ def _additive_cov(parts: dict, A, B) -> np.ndarray:
     """``a^2 / d sum_k K_family(|a_k - b_k| / m_k)``, the one-input terms' covariance between two point sets."""
     ls = parts["additive_length_scales"]
     out = np.zeros((len(A), len(B)))
+    r = np.empty_like(out)
     for k in range(A.shape[1]):
-        out += unit_correlation(parts["family"], np.abs(A[:, k, None] - B[None, :, k]) / ls[k])
-    return parts["additive_amplitude"] / A.shape[1] * out
+        np.subtract.outer(A[:, k], B[:, k], out=r)
+        np.abs(r, out=r)
+        r *= 1.0 / ls[k]
+        out += unit_correlation(parts["family"], r)
+    out *= parts["additive_amplitude"] / A.shape[1]
+    return out
 
 
 class _WithAdditive:

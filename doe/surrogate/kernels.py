@@ -57,11 +57,20 @@ def kernel_label(family: str, trend: str) -> str:
 
 def unit_correlation(family: str, r: np.ndarray) -> np.ndarray:
     """The stationary correlation of ``family`` at scaled distance ``r`` (Rasmussen & Williams 2006, eqs. 4.9,
-    4.17): the same numbers as scikit-learn's ``RBF`` and ``Matern`` with unit length scale."""
+    4.17): the same numbers as scikit-learn's ``RBF`` and ``Matern`` with unit length scale. Computed in place
+    where it can (large covariance matrices of sample paths)."""
     if family == "sqexp":
-        return np.exp(-0.5 * r * r)
+        out = np.square(r)
+        out *= -0.5
+        return np.exp(out, out=out)
+    a = np.multiply(r, np.sqrt(3.0) if family == "matern32" else np.sqrt(5.0))
+    e = np.exp(np.negative(a))
     if family == "matern32":
-        a = np.sqrt(3.0) * r
-        return (1.0 + a) * np.exp(-a)
-    a = np.sqrt(5.0) * r
-    return (1.0 + a + a * a / 3.0) * np.exp(-a)
+        a += 1.0
+    else:
+        poly = np.square(a)
+        poly *= 1.0 / 3.0
+        a += poly
+        a += 1.0
+    a *= e
+    return a
