@@ -59,6 +59,8 @@ N_TEST = 1000
 SOBOL_BASE = 2**11
 N_PATHS = 64
 REFERENCE_BASE = 2**15
+#: Plans of the Ishigami-from-100-runs table.
+ISHIGAMI_100_SEEDS = (0, 1, 2, 3, 4)
 
 
 @dataclass
@@ -267,6 +269,40 @@ def _fit_time_lines(seeds) -> list:
     return lines + [""]
 
 
+def _ishigami_100_lines(seeds) -> list:
+    """Ishigami from 100 maximin runs, every step at its default: largest S1/ST error per plan."""
+    f = tf.get("ishigami")
+    ref = _reference("ishigami")
+    truth = np.r_[ref["S1"], ref["ST"]]
+    lines = ["### Ishigami from 100 runs: largest index error per plan", "",
+             "Maximin Latin hypercube of 100 runs (seed as given); plug-in: the fitted surrogate alone; default: "
+             "`doe fit` and `doe sensitivity` at their defaults (`fit_uncertainty(..., \"auto\")`, then "
+             "`sobol_indices` with its adaptive base sample). Analytic indices: Ishigami & Homma 1990, "
+             "Sobol' & Levitan 1999. The issue's limit: 0.03 (goal 0.02).", "",
+             "| seed | max error plug-in | max error default | default: indices inside their 95 % interval | "
+             "largest half-width | kernel (default) | held-out q2 plug-in / default |", "|---|---|---|---|---|---|---|"]
+    Ut = np.random.default_rng(2024).random((N_TEST, 3))
+    yt = f.on_unit(Ut)
+    errors = []
+    for seed in seeds:
+        U = maximin_lhs(100, 3, seed=seed)
+        gp = ResponseSurrogate(seed=seed).fit(U, f.on_unit(U))
+        posterior, record = fit_uncertainty(gp, "auto", seed)
+        row = []
+        for sset in (_set(f.space(), gp, 100, None, uncertainty_record(gp, None, "plug-in", seed)),
+                     _set(f.space(), gp, 100, posterior, record)):
+            model, paths = surrogate_callables(sset)
+            res = sobol_indices(model, InputDistribution.uniform(f.space()), paths=paths, seed=seed)["y"]
+            est, half = np.r_[res.S1, res.ST], np.r_[res.S1_pm95, res.ST_pm95]
+            row.append((float(np.max(np.abs(est - truth))), int(np.sum(np.abs(est - truth) <= half)),
+                        float(half.max()), _band(*sset.predictor("y").predict(Ut, return_std=True), yt)[1]))
+        errors.append(row[1][0])
+        lines.append(f"| {seed} | {row[0][0]:.4f} | {row[1][0]:.4f} | {row[1][1]}/6 | {row[1][2]:.3f} | "
+                     f"{posterior.kernel_summary()['label']} ({posterior.method_}) | {row[0][3]:.4f} / {row[1][3]:.4f} |")
+    return lines + ["", f"Default route: largest error {max(errors):.4f}, mean {np.mean(errors):.4f} over "
+                        f"{len(errors)} plans.", ""]
+
+
 def _report(cases, ref_half, seeds, seconds) -> list:
     lines = ["## Calibration at small budgets: bands, Sobol intervals, verdicts", "",
              *[" ".join(part.split()) for part in __doc__.split("\n\n")[1:]], "",
@@ -274,6 +310,7 @@ def _report(cases, ref_half, seeds, seconds) -> list:
     lines += _table_lines(cases, ref_half)
     lines += _verdict_lines(cases)
     lines += _fit_time_lines(seeds)
+    lines += _ishigami_100_lines(ISHIGAMI_100_SEEDS)
     lines.append(f"Wall time of this section: {seconds:.0f} s.")
     return lines
 

@@ -23,12 +23,22 @@ Keys of each response (units in brackets):
 ``verdict_reason``             one sentence saying why
 ``target_q2``, ``meets_target``  the accuracy wanted (``[fit] target_q2``) and whether it is met
 ``runs``, ``points``           runs fitted, and distinct points among them
-``kernel``, ``family``, ``trend``  the kernel kept (``family``: sqexp, matern52, matern32;
-                               ``trend``: constant, linear)
+``kernel``, ``family``, ``trend``  the kernel that predicts (``family``: sqexp, matern52, matern32;
+                               ``trend``: constant, linear): the hyperparameter posterior's when
+                               it predicts, else the fitted surrogate's
+``kernel_structure``           ``"product"`` (one joint term) or ``"additive"`` (plus one-input
+                               terms); ``kernel_settings``: ``"posterior mode"``, ``"median over
+                               the draws"`` or ``"fitted"``
+``plugin_kernel``              the fitted surrogate's kernel (the one ``candidates`` chose), and
+                               ``plugin_relative_length_scales``
+``one_input_length_scales``    with one-input terms: their length scales per parameter [parameter
+                               unit] (and ``relative_one_input_length_scales`` [-])
 ``noise``                      ``"learned"`` or ``"fixed"``; ``noise_reason`` says why
 ``noise_std``                  standard deviation of the noise (or of the nugget) [response unit]
 ``noise_share``                learned noise variance over the variance of the runs [-]
-``length_scales``              per parameter [parameter unit]; large means a smooth, weak effect
+``length_scales``              per parameter [parameter unit], of the kernel that predicts (its joint
+                               term); large means a smooth, weak effect (or, with one-input terms,
+                               little interaction)
 ``relative_length_scales``     per parameter, in fractions of its range [-]
 ``standardised_residuals``     per run id: leave-one-out residual / its predictive std [-]
 ``max_abs_standardised_residual``  the largest of those in magnitude [-]
@@ -203,6 +213,27 @@ def verdict(loo, noise_share: float, target_q2: float, labels=None, constant: bo
     return "add runs", why
 
 
+def _kernel_keys(model, posterior, names, spans) -> dict:
+    """``kernel``, ``family``, ``trend``, ``length_scales``... of what predicts, and the plug-in's beside them."""
+    def scales(key, relative):
+        return {key: {n: float(ls * s) for n, ls, s in zip(names, relative, spans)},
+                f"relative_{key}": {n: float(ls) for n, ls in zip(names, relative)}}
+
+    plugin = {"plugin_kernel": kernel_label(model.family_, model.trend_),
+              "plugin_relative_length_scales": {n: float(ls) for n, ls in zip(names, model.length_scales_)}}
+    if posterior is None:
+        return {"kernel": plugin["plugin_kernel"], "family": model.family_, "trend": model.trend_,
+                "kernel_structure": "product", "kernel_settings": "fitted",
+                **scales("length_scales", model.length_scales_), **plugin}
+    summary = posterior.kernel_summary()
+    out = {"kernel": summary["label"], "family": summary["family"], "trend": summary["trend"],
+           "kernel_structure": summary["structure"], "kernel_settings": summary["which"],
+           **scales("length_scales", summary["length_scales"]), **plugin}
+    if "one_input_length_scales" in summary:
+        out.update(scales("one_input_length_scales", summary["one_input_length_scales"]))
+    return out
+
+
 def response_report(model, sset, name: str) -> dict:
     """The ``fit.json`` entry of one response (keys in the module docstring)."""
     loo = sset.loo(name)
@@ -229,13 +260,11 @@ def response_report(model, sset, name: str) -> dict:
         "uncertainty": unc["method"], "uncertainty_reason": unc["reason"],
         "q2_low": json_number(q2_low), "q2_loo_plugin": json_number(model.loo_.q2),
         "runs": int(sum(len(g) for g in model.groups_)), "points": int(len(model.groups_)),
-        "kernel": kernel_label(model.family_, model.trend_), "family": model.family_, "trend": model.trend_,
+        **_kernel_keys(model, sset.posteriors.get(name), names, spans),
         "noise": "learned" if model.learn_noise_ else "fixed",
         "noise_reason": sset.noise_reason.get(name, "") or ("" if model.learn_noise_ else
                                                             "deterministic evaluator: a small fixed nugget"),
         "noise_std": json_number(model.noise_std_), "noise_share": noise_share,
-        "length_scales": {n: float(ls * s) for n, ls, s in zip(names, model.length_scales_, spans)},
-        "relative_length_scales": {n: float(ls) for n, ls in zip(names, model.length_scales_)},
         "standardised_residuals": {ids[i]: float(zz) for g, zz in zip(model.groups_, z) for i in g},
         "max_abs_standardised_residual": float(np.max(np.abs(z))) if len(z) else 0.0,
         "loo": points,

@@ -16,7 +16,7 @@ import numpy as np
 from sklearn.gaussian_process.kernels import RBF, ConstantKernel, DotProduct, Matern, WhiteKernel
 
 __all__ = ["FAMILIES", "TRENDS", "LENGTH_SCALE_BOUNDS", "AMPLITUDE_BOUNDS", "TREND_BOUNDS", "NOISE_BOUNDS",
-           "NU", "build_kernel", "kernel_label"]
+           "NU", "build_kernel", "kernel_label", "unit_correlation"]
 
 FAMILIES = ("sqexp", "matern52", "matern32")
 TRENDS = ("constant", "linear")
@@ -53,3 +53,24 @@ def kernel_label(family: str, trend: str) -> str:
     """Plain name of a kernel, e.g. ``"Matern 5/2, linear trend"``."""
     names = {"sqexp": "squared-exponential", "matern52": "Matern 5/2", "matern32": "Matern 3/2"}
     return f"{names[family]}, {trend} trend"
+
+
+def unit_correlation(family: str, r: np.ndarray) -> np.ndarray:
+    """The stationary correlation of ``family`` at scaled distance ``r`` (Rasmussen & Williams 2006, eqs. 4.9,
+    4.17): the same numbers as scikit-learn's ``RBF`` and ``Matern`` with unit length scale. Computed in place
+    where it can (large covariance matrices of sample paths)."""
+    if family == "sqexp":
+        out = np.square(r)
+        out *= -0.5
+        return np.exp(out, out=out)
+    a = np.multiply(r, np.sqrt(3.0) if family == "matern32" else np.sqrt(5.0))
+    e = np.exp(np.negative(a))
+    if family == "matern32":
+        a += 1.0
+    else:
+        poly = np.square(a)
+        poly *= 1.0 / 3.0
+        a += poly
+        a += 1.0
+    a *= e
+    return a

@@ -38,6 +38,8 @@ from scipy import stats
 from scipy.linalg import cho_solve, cholesky, solve_triangular
 from scipy.stats import qmc
 
+from .kernels import unit_correlation
+
 __all__ = ["draw_paths", "EXACT_MAX", "N_FEATURES", "CHUNK"]
 
 #: Largest number of query points drawn exactly (Cholesky of the m x m covariance).
@@ -46,6 +48,8 @@ EXACT_MAX = 1500
 N_FEATURES = 2048
 #: Query points handled at once by the feature method.
 CHUNK = 4096
+#: Nodes per input on which one-input terms of the prior are drawn exactly (spacing 1/256 of the range).
+ONE_INPUT_NODES = 257
 
 
 def draw_paths(model, Z, n_paths: int, rng, method: str = "auto") -> np.ndarray:
@@ -110,12 +114,39 @@ def _prior_sampler(model, n_paths, rng):
     linear = parts["trend"] == "linear"
     w_trend = rng.standard_normal((d + 1 if linear else 1, n_paths))
 
+    one_input = _one_input_sampler(parts, d, n_paths, rng) if "additive_amplitude" in parts else None
+
     def prior(z):
         f = scale * np.cos(z @ omega.T + phase) @ w
+        if one_input is not None:
+            f = f + one_input(z)
         basis = np.hstack([np.ones((len(z), 1)), z]) if linear else np.ones((len(z), 1))
         return (f + np.sqrt(trend_var) * basis @ w_trend).T
 
     return prior
+
+
+def _one_input_sampler(parts, d, n_paths, rng):
+    """Prior draws of the one-input terms ``a^2 / d sum_k K(z_k, z'_k; m_k)``: a function z -> (m, P).
+
+    Each term is drawn exactly on :data:`ONE_INPUT_NODES` evenly spaced nodes of its input's range (eigen-
+    decomposition of the 1-D covariance) and interpolated linearly; points outside the unit cube take the value
+    at its edge. Random Fourier features were tried first and lost up to half the spread when a term's length
+    scale is long and its variance large (a smooth term that the runs pin down).
+    """
+    nodes = np.linspace(-0.5, 0.5, ONE_INPUT_NODES)
+    r = np.abs(nodes[:, None] - nodes[None, :])
+    values = []
+    for m in np.asarray(parts["additive_length_scales"], dtype=float):
+        w, V = np.linalg.eigh(parts["additive_amplitude"] / d * unit_correlation(parts["family"], r / m))
+        values.append((V * np.sqrt(np.clip(w, 0.0, None))) @ rng.standard_normal((len(nodes), n_paths)))
+
+    def one_input(z):
+        u = np.clip(z + 0.5, 0.0, 1.0) * (len(nodes) - 1)
+        i = np.minimum(u.astype(int), len(nodes) - 2)
+        t = (u - i)[:, :, None]
+        return sum((1 - t[:, k]) * values[k][i[:, k]] + t[:, k] * values[k][i[:, k] + 1] for k in range(d))
+    return one_input
 
 
 def _pathwise(model, Z, n_paths, rng):
