@@ -387,7 +387,8 @@ def _believer_picks(sset, models, runs, aim, criterion, response, C, R, ids, adv
     chosen, picks = [], []
     for j in range(runs):
         if len(C) == 0:
-            raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; ask for fewer runs")
+            raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; "
+                            "ask for fewer runs")
         if aim == "map" and MAP_LENGTH_SCALE_CAP is not None:
             score, _ = _CRITERIA[criterion]({n: m.capped(MAP_LENGTH_SCALE_CAP) for n, m in models.items()},
                                             sset, C, R, response)
@@ -418,8 +419,8 @@ def _posterior_picks(sset, runs, C, R, P, ids, advance):
     Cp = np.vstack([P, C])
     predictors = {n: sset.predictor(n) for n in sset.models}
     groups = [ivr_states(predictors[n], Cp, R, MAX_DRAWS) for n in names]
-    kinds = "; ".join(f"{n}: {len(g)} draws of its kernel settings" if len(g) > 1 else f"{n}: its fitted kernel"
-                      for n, g in zip(names, groups))
+    kinds = "; ".join(f"{n}: {len(g)} draws of its kernel settings" if len(g) > 1
+                      else f"{n}: its fitted kernel settings" for n, g in zip(names, groups))
 
     def near(i):
         return ~_far_from(Cp, Cp[i][None])
@@ -431,7 +432,8 @@ def _posterior_picks(sset, runs, C, R, P, ids, advance):
     chosen, picks = [], []
     for j, (i, score, share) in enumerate(found):
         pick = _pick(ids[j], space, Cp[i], score, "", predictors)
-        here = "; ".join(f"{n} = {p['mean']:.4g} +/- {p['std']:.3g} {sset.units[n]}" for n, p in pick.predicted.items())
+        here = "; ".join(f"{n} = {p['mean']:.4g} +/- {p['std']:.3g} {sset.units[n]}"
+                         for n, p in pick.predicted.items())
         pick.reason = (f"largest integrated variance reduction averaged over plausible kernel settings ({kinds}): "
                        f"expected to cut the predictive variance averaged over the design space by {share:.0%} "
                        f"(responses scaled by the spread of their runs); here {here}")
