@@ -11,7 +11,10 @@ posterior (``mode = "auto"``, as ``doe fit`` makes them); (b) a fresh maximin
 Latin hypercube of ``10 d`` runs. Both final designs are fitted the same way
 (``doe.surrogate.hyperposterior.HyperPosterior``, posterior mode) and scored by
 the root mean square error on 2000 uniform held-out points. The issue's aim
-is a ratio of at most 0.85 on at least three functions.
+is a ratio of at most 0.85 on at least three functions. The Ishigami
+function, Hartmann 6-D and the G-function (8 inputs) were not used to choose
+the settings; they are shown with the default setting only, as a check of
+how far the gain carries.
 """
 from __future__ import annotations
 
@@ -31,6 +34,8 @@ from doe.design.plans import maximin_lhs  # noqa: E402
 from doe.design.sequential import START_RUNS_PER_PARAMETER, run_sequential  # noqa: E402
 
 FUNCTIONS = ("borehole", "otl_circuit", "piston", "wing_weight")
+#: Functions not used to choose the settings (default setting only).
+OTHER_FUNCTIONS = ("ishigami", "hartmann6", "g_function")
 TOTAL = 10
 N_TEST = 2000
 #: (first runs per parameter, HyperPosterior mode of the fits the criterion uses), the first is the default
@@ -82,10 +87,11 @@ def run(quick: bool) -> list:
              " ".join(__doc__.split()), "", f"Seeds {list(seeds)}.", "",
              "| function | d | runs | first runs | criterion's kernel settings | RMSE sequential | RMSE one-shot LHS | "
              "ratio of means | ratio per seed | s per sequential run |", "|---|---|---|---|---|---|---|---|---|---|"]
-    for name in functions:
+    others = () if quick else OTHER_FUNCTIONS
+    for name in functions + others:
         d = tf.get(name).dim
         one = one_shot(name, seeds)
-        for start, mode in settings:
+        for start, mode in (settings[:1] if name in others else settings):
             seq, secs = sequential(name, start, mode, seeds)
             ratios = np.array(seq) / np.array(one)
             lines.append(f"| {name} | {d} | {TOTAL * d} | {start * d} | {SETTING_WORDS[mode]} | {np.mean(seq):.4g} | "

@@ -22,9 +22,11 @@ What was measured (``benchmarks/bench_sequential.py``: borehole, OTL circuit,
 piston and wing weight, 10 d runs against a one-shot maximin Latin hypercube
 of 10 d, fitted alike, seeds 0-4): held-out RMSE ratios 0.70, 0.78, 0.65 and
 0.95 with 2 d first runs and the posterior mode refitted before each batch
-(3-5 s per sequential run), 0.75, 0.79, 0.75 and 0.99 averaging over up to 8
-posterior draws (22-29 s); 4 d first runs and the draws gave 0.95, 0.90, 0.79
-and 0.78 before (seeds 0-2). Starting from 2 d leaves more of the budget to be
+(2-5 s per sequential run on the shared 2-core machine), 0.75, 0.79, 0.75 and
+0.99 averaging over up to 8 posterior draws (10-30 s); 4 d first runs and the
+draws gave 0.95, 0.90, 0.79 and 0.78 before (seeds 0-2, 28-68 s). On three
+functions not used to choose the settings: Ishigami 0.86, Hartmann 6-D 1.00,
+G-function 0.99. Starting from 2 d leaves more of the budget to be
 placed knowing the fitted length scales. Weighting the reference points by
 the leave-one-out errors of nearby runs, and capping the length scales at the
 range, were tried and not kept (better on one function, worse on others). The
