@@ -144,7 +144,7 @@ def test_default_map_criterion_is_the_posterior_ivr_batch(fitted):
     study, res, sset = fitted
     assert {sset.method(n) for n in sset.models} >= {"mixture"}     # f's kernel settings are uncertain here
     p = propose_runs(sset, 2, seed=4)
-    assert p.criterion == "ivr_posterior" and "draws of its kernel settings" in p.picks[0].reason
+    assert p.criterion == "ivr_posterior" and "(draws: f 8; the other responses" in p.picks[0].reason
     assert p.to_dict()["batch"].startswith("exact") and "given the 1 run(s) picked before" in p.picks[1].reason
     # the first pick should leave less integrated variance (averaged over every draw, on reference points of
     # its own) than nearly all of 200 other feasible points. Measured when written: none of the 200 is better

@@ -419,8 +419,10 @@ def _posterior_picks(sset, runs, C, R, P, ids, advance):
     Cp = np.vstack([P, C])
     predictors = {n: sset.predictor(n) for n in sset.models}
     groups = [ivr_states(predictors[n], Cp, R, MAX_DRAWS) for n in names]
-    kinds = "; ".join(f"{n}: {len(g)} draws of its kernel settings" if len(g) > 1
-                      else f"{n}: its fitted kernel settings" for n, g in zip(names, groups))
+    drawn = [f"{n} {len(g)}" for n, g in zip(names, groups) if len(g) > 1]
+    rest = "" if len(drawn) == len(names) else "; the other responses: their fitted settings"
+    head = (f"averaged over plausible kernel settings (draws: {', '.join(drawn)}{rest})" if drawn
+            else "under the fitted kernel settings")
 
     def near(i):
         return ~_far_from(Cp, Cp[i][None])
@@ -434,7 +436,7 @@ def _posterior_picks(sset, runs, C, R, P, ids, advance):
         pick = _pick(ids[j], space, Cp[i], score, "", predictors)
         here = "; ".join(f"{n} = {p['mean']:.4g} +/- {p['std']:.3g} {sset.units[n]}"
                          for n, p in pick.predicted.items())
-        pick.reason = (f"largest integrated variance reduction averaged over plausible kernel settings ({kinds}): "
+        pick.reason = (f"largest integrated variance reduction {head}: "
                        f"expected to cut the predictive variance averaged over the design space by {share:.0%} "
                        f"(responses scaled by the spread of their runs); here {here}")
         if j:
