@@ -177,14 +177,15 @@ def _cmd_fit(args):
 def _add_next(sub):
     p = sub.add_parser("next", help="propose the next runs from the surrogates",
                        description="Fit the surrogates and propose K new runs inside the bounds and constraints. "
-                                   "aim 'map': integrated variance reduction (or --criterion variance); aim "
+                                   "aim 'map': integrated variance reduction averaged over plausible kernel "
+                                   "settings (or --criterion ivr, variance, eigf); aim "
                                    "'optimum': expected improvement of a response with a goal. Writes a plan CSV "
                                    "and, beside it, <name>.why.json saying why each run was picked.")
     _add_results_options(p)
     p.add_argument("--runs", type=int, required=True, help="number of runs to propose")
     p.add_argument("--aim", choices=("map", "optimum"), default="map", help="map the space, or seek an optimum")
-    p.add_argument("--criterion", choices=("ivr", "variance", "eigf", "ei"),
-                   help="criterion (default: ivr for map, ei for optimum)")
+    p.add_argument("--criterion", choices=("ivr_posterior", "ivr", "variance", "eigf", "ei"),
+                   help="criterion (default: ivr_posterior for map, ei for optimum)")
     p.add_argument("--surrogate", type=Path, metavar="FOLDER",
                    help="use the surrogates saved by 'doe fit' in FOLDER instead of fitting again")
     p.add_argument("--response", help="response to optimise with --aim optimum (default: the first with a goal)")

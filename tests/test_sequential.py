@@ -1,9 +1,12 @@
-"""Batch proposals under the hyperparameter posterior: exact rank-one conditioning, valid picks."""
+"""Batch proposals under the hyperparameter posterior: exact rank-one conditioning, valid picks, and
+sequential batches that beat a one-shot Latin hypercube on a published function."""
 import numpy as np
+import pytest
 
 from doe.surrogate.hyperposterior import NUGGET, HyperPosterior, _Draw, _Target
 from doe.design.plans import maximin_lhs
-from doe.design.sequential import _condition, _draw_state, propose_batch
+from doe.design.sequential import _condition, _draw_state, propose_batch, run_sequential
+from doe.testing import functions as tf
 
 
 def _fit(mode="plugin", n=10):
@@ -43,3 +46,45 @@ def test_batch_picks_are_distinct_new_and_deterministic():
     assert dist.min() > 0.02          # a pick's own variance drops to the nugget: no repeats, no copies of runs
     pending = propose_batch(hp, 2, seed=3, exclude=a[:3])
     assert np.min(np.linalg.norm(pending[:, None] - a[None, :3], axis=2)) > 0.02
+
+
+def test_sequential_batches_beat_a_one_shot_latin_hypercube_on_the_borehole_function():
+    # Borehole function (Harper & Gupta 1983; as given by Forrester, Sobester & Keane 2008, and Surjanovic &
+    # Bingham, VLSE): 8 inputs, few of them active. 40 runs either way: 16 maximin-LHS first runs then six
+    # batches of 4 by integrated variance reduction under the posterior mode, against a fresh maximin LHS of
+    # 40; both final designs fitted alike, RMSE on 1000 uniform held-out points. Measured when written:
+    # ratios 0.68 and 0.65 for seeds 0 and 1 (0.88 and 0.76 for seeds 2 and 3); the issue asks for <= 0.85.
+    f = tf.get("borehole")
+    d = f.dim
+    Ut = np.random.default_rng(5).random((1000, d))
+    yt = f.on_unit(Ut)
+
+    def rmse(U, y, seed):
+        model = HyperPosterior(mode="plugin", seed=seed).fit(U, y)
+        return float(np.sqrt(np.mean((model.predict(Ut) - yt) ** 2)))
+
+    ratios = []
+    for seed in (0, 1):
+        U, y, _ = run_sequential(f.on_unit, d, 2 * d, 5 * d, 4, seed=seed, mode="plugin")
+        assert len(U) == 5 * d and len(np.unique(U.round(12), axis=0)) == 5 * d
+        L = maximin_lhs(5 * d, d, seed=seed)
+        ratios.append(rmse(U, y, seed) / rmse(L, f.on_unit(L), seed))
+    assert np.mean(ratios) <= 0.85, ratios
+
+
+def test_covariance_state_of_any_surrogate_equals_the_kernel_state():
+    # a surrogate without one kernel (two fidelities) is scored through predict_cov; on a plug-in surrogate,
+    # which has both, the two states must agree before and after a pick (same algebra, double precision)
+    from doe.design.sequential import _covariance_state
+    from doe.surrogate.gp import ResponseSurrogate
+
+    X = maximin_lhs(12, 2, seed=1)
+    m = ResponseSurrogate(kernel="matern52", trend="constant", restarts=1, seed=0).fit(X, np.sin(4 * X[:, 0]) + X[:, 1])
+    rng = np.random.default_rng(3)
+    C, R = rng.random((30, 2)), rng.random((20, 2))
+    a, b = _draw_state(m, C - 0.5, R - 0.5), _covariance_state(m, C, R)
+    for s in (a, b):
+        _condition(s, 7)
+    for key in ("cov_cr", "var_c", "var_r"):
+        np.testing.assert_allclose(a[key], b[key], atol=1e-9)
+    assert a["eps"] == pytest.approx(b["eps"], rel=1e-9)

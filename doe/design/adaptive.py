@@ -2,31 +2,42 @@
 
 Every criterion scores a dense set of feasible candidate points (scrambled
 Sobol' points inside the bounds and constraints) and takes the best one; a
-batch of ``K`` runs is built one run at a time, each time conditioning the
+batch of ``K`` runs is built one run at a time. Runs already made, failed
+runs and pending runs are never proposed again: a candidate closer than
+:data:`MIN_DISTANCE` (in the unit cube) to any of them, or to a run already
+picked, is dropped.
+
+================ ================= ===========================================================
+aim              criterion         what it maximises
+================ ================= ===========================================================
+``map``          ``ivr_posterior`` integrated variance reduction (Cohn 1996; the IMSE criterion
+                                   of Sacks, Welch, Mitchell & Wynn 1989) averaged over the
+                                   draws of the kernel settings' posterior that predict each
+                                   response (its fitted kernel alone when the fit is plug-in),
+                                   summed over responses, each scaled by the variance of its
+                                   runs; the batch is exact (:mod:`doe.design.sequential`).
+                                   Default for ``map``: measured in
+                                   ``benchmarks/bench_sequential.py``.
+``map``          ``ivr``           the same drop under the fitted kernel alone, length scales
+                                   capped (below), batch by kriging believer
+``map``          variance          the predictive variance itself (MacKay 1992), same scaling
+``map``          ``eigf``          expected improvement for global fit,
+                                   ``(mu - y_nearest)^2 + var`` (Lam 2008), same scaling
+``optimum``      ``ei``            expected improvement of one response with a goal (Jones,
+                                   Schonlau & Welch 1998)
+================ ================= ===========================================================
+
+Batches. ``ivr_posterior``: a run's effect on the predictive variance does
+not depend on its (unknown) result, so after each pick every draw's
+posterior covariance is updated exactly and the next pick is scored given
+the earlier picks and the pending runs. The other criteria condition the
 surrogates on the runs already picked as if they had returned the
 surrogate's mean there (the *kriging believer* heuristic, Ginsbourger, Le
-Riche & Carraro 2010), with the hyperparameters kept. Runs already made,
-failed runs and pending runs are never proposed again: a candidate closer
-than :data:`MIN_DISTANCE` (in the unit cube) to any of them, or to a run
-already picked, is dropped.
-
-========== ========= ===================================================================
-aim        criterion what it maximises
-========== ========= ===================================================================
-``map``    ``ivr``   integrated variance reduction: the drop of the predictive variance
-                     averaged over the design space (Cohn 1996; the IMSE criterion of
-                     Sacks, Welch, Mitchell & Wynn 1989), summed over responses, each
-                     scaled by the variance of its runs. Default for ``map``.
-``map``    variance  the predictive variance itself (MacKay 1992), same scaling
-``map``    ``eigf``  expected improvement for global fit, ``(mu - y_nearest)^2 + var``
-                     (Lam 2008), same scaling
-``optimum`` ``ei``   expected improvement of one response with a goal (Jones, Schonlau
-                     & Welch 1998)
-========== ========= ===================================================================
-
-For ``map``, candidates are scored with length scales capped at each
-parameter's range (:data:`MAP_LENGTH_SCALE_CAP`): a parameter that a few runs
-make look irrelevant is still explored.
+Riche & Carraro 2010), with the hyperparameters kept; and for ``ivr``,
+``variance`` and ``eigf`` candidates are scored with length scales capped at
+each parameter's range (:data:`MAP_LENGTH_SCALE_CAP`), so that a parameter
+that a few runs make look irrelevant is still explored (``ivr_posterior``
+gets that from the draws in which the parameter matters).
 
 References
 ----------
@@ -46,24 +57,27 @@ References
 """
 from __future__ import annotations
 
+import sys
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 from scipy.stats import norm
 from threadpoolctl import threadpool_limits
+from tqdm import tqdm
 
 from ..checks import is_whole
 from ..errors import PlanError, SurrogateError
 from ..surrogate.gp import ResponseSurrogate
 from ..surrogate.set import SurrogateSet
 from .plans import candidates, next_ids
+from .sequential import MAX_DRAWS, greedy_ivr, ivr_states
 
 __all__ = ["propose_runs", "run_adaptive", "Proposal", "Pick", "accuracy_status", "AIMS", "CRITERIA", "MIN_DISTANCE"]
 
 AIMS = ("map", "optimum")
 #: Criteria allowed per aim; the first is the default.
-CRITERIA = {"map": ("ivr", "variance", "eigf"), "optimum": ("ei",)}
+CRITERIA = {"map": ("ivr_posterior", "ivr", "variance", "eigf"), "optimum": ("ei",)}
 #: No proposal is closer than this to an existing, pending or picked run (Euclidean, unit cube).
 MIN_DISTANCE = 0.01
 #: Candidate points scored per pick.
@@ -76,7 +90,15 @@ MAP_LENGTH_SCALE_CAP = 1.0
 EI_NEGLIGIBLE = 1e-6
 #: Points over which the integrated variance is averaged.
 N_REFERENCE = 512
+#: The batch rule of each criterion, for the ``<plan>.why.json`` sidecar.
+_BATCH = {"ivr_posterior": "exact: a run's effect on the predictive variance does not depend on its result, so each "
+                           "pick is scored given the earlier picks and the pending runs, under every kernel setting "
+                           "drawn (no assumed results)"}
+_BELIEVER = ("kriging believer: each pick assumes the earlier picks and pending runs return the surrogate's mean "
+             "(Ginsbourger, Le Riche & Carraro 2010)")
 _SOURCES = {
+    "ivr_posterior": "integrated variance reduction averaged over the kernel settings' posterior draws (Cohn 1996; "
+                     "Sacks, Welch, Mitchell & Wynn 1989)",
     "ivr": "integrated variance reduction (Cohn 1996; Sacks, Welch, Mitchell & Wynn 1989)",
     "variance": "maximum predictive variance (MacKay 1992)",
     "ei": "expected improvement (Jones, Schonlau & Welch 1998)",
@@ -123,8 +145,7 @@ class Proposal:
     def to_dict(self) -> dict:
         """The ``<plan>.why.json`` sidecar: the criterion and, per run, its score and reason."""
         return {"aim": self.aim, "criterion": self.criterion, "criterion_source": _SOURCES[self.criterion],
-                "batch": "kriging believer: each pick assumes the earlier picks and pending runs return the "
-                         "surrogate's mean (Ginsbourger, Le Riche & Carraro 2010)",
+                "batch": _BATCH.get(self.criterion, _BELIEVER),
                 "response": self.response, "accuracy_met": self.accuracy_met, "notes": list(self.notes),
                 "runs": [{"run_id": p.run_id, "point": p.point, "score": p.score, "reason": p.reason,
                           "predicted": p.predicted} for p in self.picks]}
@@ -265,7 +286,8 @@ def _pick_response(sset, response):
 
 
 def propose_runs(sset, runs: int, aim: str = "map", criterion: str | None = None, response: str | None = None,
-                 pending=None, avoid=None, taken_ids=(), seed=0, n_candidates: int = N_CANDIDATES) -> Proposal:
+                 pending=None, avoid=None, taken_ids=(), seed=0, n_candidates: int = N_CANDIDATES,
+                 progress: bool = False) -> Proposal:
     """Propose ``runs`` new runs.
 
     Parameters
@@ -293,6 +315,9 @@ def propose_runs(sset, runs: int, aim: str = "map", criterion: str | None = None
     seed : int
     n_candidates : int
         Candidate points scored per pick.
+    progress : bool
+        Show a progress bar on standard error when the picks take more than
+        two seconds.
 
     Returns
     -------
@@ -305,10 +330,11 @@ def propose_runs(sset, runs: int, aim: str = "map", criterion: str | None = None
         candidate left.
     """
     with threadpool_limits(limits=1, user_api="blas"):  # small matrices: threads only contend
-        return _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates)
+        return _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates, progress)
 
 
-def _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates) -> Proposal:
+def _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, seed, n_candidates,
+             progress=False) -> Proposal:
     if aim not in AIMS:
         raise SurrogateError(f"aim {aim!r} is not one of {', '.join(AIMS)}")
     criterion = criterion or CRITERIA[aim][0]
@@ -322,21 +348,47 @@ def _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, se
     first = next(iter(sset.models.values()))
     P = sset.unit_points(pending) if pending is not None and len(pending) else np.zeros((0, space.dim))
     A = sset.unit_points(avoid) if avoid is not None and len(avoid) else np.zeros((0, space.dim))
-    models = {n: (m.conditioned(P) if len(P) else m) for n, m in sset.models.items()}
     C = candidates(space, n_candidates, rng)
     if aim == "optimum":
         C = np.vstack([C, _localcandidates(sset, response, rng)])
     C = C[_far_from(C, np.vstack([first.X_unit_, P, A]))]
-    R = candidates(space, N_REFERENCE, rng) if criterion == "ivr" else None
+    R = candidates(space, N_REFERENCE, rng) if criterion in ("ivr", "ivr_posterior") else None
     met, status = accuracy_status(sset)
     notes = [status]
-    if len(P):
-        notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean")
-    chosen, picks = [], []
     ids = next_ids(list(sset.run_ids) + list(taken_ids), runs)
+    bar = tqdm(total=runs, desc="choosing next runs", unit="run", delay=2.0, disable=not progress, file=sys.stderr)
+    with bar:
+        if criterion == "ivr_posterior":
+            if len(P):
+                notes.append(f"{len(P)} pending run(s) taken as made (their effect on the predictive variance does "
+                             "not depend on their results)")
+            chosen, picks = _posterior_picks(sset, runs, C, R, P, ids, bar.update)
+        else:
+            if len(P):
+                notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean")
+            models = {n: (m.conditioned(P) if len(P) else m) for n, m in sset.models.items()}
+            chosen, picks = _believer_picks(sset, models, runs, aim, criterion, response, C, R, ids, bar.update)
+    frame = pd.DataFrame(np.clip(space.from_unit(np.array(chosen)), space.lower, space.upper), columns=space.names)
+    frame.insert(0, "run_id", ids)
+    return Proposal(frame, picks, aim, criterion, response, met, notes)
+
+
+def _pick(run_id, space, x, score, reason, models) -> Pick:
+    """The record of one proposed run: its point in study units and each response's prediction there."""
+    pred = {n: m.predict(x[None], return_std=True) for n, m in models.items()}
+    point = dict(zip(space.names, (float(v) for v in space.from_unit(x[None])[0])))
+    return Pick(run_id, point, float(score), reason,
+                {n: {"mean": float(mu[0]), "std": float(sd[0])} for n, (mu, sd) in pred.items()})
+
+
+def _believer_picks(sset, models, runs, aim, criterion, response, C, R, ids, advance):
+    """Picks one at a time, the surrogates conditioned on each as if it returned their mean (kriging believer)."""
+    space = sset.space
+    chosen, picks = [], []
     for j in range(runs):
         if len(C) == 0:
-            raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; ask for fewer runs")
+            raise PlanError(f"no feasible candidate is left after {j} pick(s): the space is crowded; "
+                            "ask for fewer runs")
         if aim == "map" and MAP_LENGTH_SCALE_CAP is not None:
             score, _ = _CRITERIA[criterion]({n: m.capped(MAP_LENGTH_SCALE_CAP) for n, m in models.items()},
                                             sset, C, R, response)
@@ -352,16 +404,46 @@ def _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, se
         reason = prefix + why(i)
         if j:
             reason += f" (assuming the {j} run(s) picked before return the surrogate's mean)"
-        pred = {n: m.predict(x[None], return_std=True) for n, m in models.items()}
-        point = dict(zip(space.names, (float(v) for v in space.from_unit(x[None])[0])))
-        picks.append(Pick(ids[j], point, float(score[i]), reason,
-                          {n: {"mean": float(mu[0]), "std": float(sd[0])} for n, (mu, sd) in pred.items()}))
+        picks.append(_pick(ids[j], space, x, score[i], reason, models))
         chosen.append(x)
         models = {n: m.conditioned(x[None]) for n, m in models.items()}
         C = C[_far_from(C, x[None])]
-    frame = pd.DataFrame(np.clip(space.from_unit(np.array(chosen)), space.lower, space.upper), columns=space.names)
-    frame.insert(0, "run_id", ids)
-    return Proposal(frame, picks, aim, criterion, response, met, notes)
+        advance(1)
+    return chosen, picks
+
+
+def _posterior_picks(sset, runs, C, R, P, ids, advance):
+    """Picks by integrated variance reduction over each response's posterior draws, batch exact."""
+    space = sset.space
+    names = [n for n, m in sset.models.items() if not m.constant_] or list(sset.models)
+    Cp = np.vstack([P, C])
+    predictors = {n: sset.predictor(n) for n in sset.models}
+    groups = [ivr_states(predictors[n], Cp, R, MAX_DRAWS) for n in names]
+    drawn = [f"{n} {len(g)}" for n, g in zip(names, groups) if len(g) > 1]
+    rest = "" if len(drawn) == len(names) else "; the other responses: their fitted settings"
+    head = (f"averaged over plausible kernel settings (draws: {', '.join(drawn)}{rest})" if drawn
+            else "under the fitted kernel settings")
+
+    def near(i):
+        return ~_far_from(Cp, Cp[i][None])
+
+    found = greedy_ivr(groups, runs, n_pending=len(P), blocked=near, on_pick=lambda j: advance(1))
+    if len(found) < runs:
+        raise PlanError(f"no feasible candidate is left after {len(found)} pick(s): the space is crowded; "
+                        "ask for fewer runs")
+    chosen, picks = [], []
+    for j, (i, score, share) in enumerate(found):
+        pick = _pick(ids[j], space, Cp[i], score, "", predictors)
+        here = "; ".join(f"{n} = {p['mean']:.4g} +/- {p['std']:.3g} {sset.units[n]}"
+                         for n, p in pick.predicted.items())
+        pick.reason = (f"largest integrated variance reduction {head}: "
+                       f"expected to cut the predictive variance averaged over the design space by {share:.0%} "
+                       f"(responses scaled by the spread of their runs); here {here}")
+        if j:
+            pick.reason += f" (given the {j} run(s) picked before; their effect does not depend on their results)"
+        picks.append(pick)
+        chosen.append(Cp[i])
+    return chosen, picks
 
 
 def run_adaptive(func, space, U0, n_add: int, batch: int = 2, refit_every: int = 2, seed=0,

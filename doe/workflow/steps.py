@@ -157,10 +157,12 @@ class NextRuns:
 
 
 def next_step(study, sset, results, runs: int, out, seed: int | None = None, aim: str = "map",
-              criterion: str | None = None, response: str | None = None, pending=None) -> NextRuns:
+              criterion: str | None = None, response: str | None = None, pending=None,
+              progress: bool = True) -> NextRuns:
     """Propose ``runs`` runs (plan CSV ``out`` and ``<out>.why.json``; with two fidelities ``<out>.cheap.csv``).
 
-    ``pending``: a plan (DataFrame) of runs planned but not yet evaluated.
+    ``pending``: a plan (DataFrame) of runs planned but not yet evaluated. ``progress``: a progress bar on
+    standard error when choosing the runs takes more than two seconds.
     """
     seed = study.plan.seed if seed is None else seed
     names = study.space.names
@@ -171,7 +173,8 @@ def next_step(study, sset, results, runs: int, out, seed: int | None = None, aim
     else:
         proposal = propose_runs(sset, runs, aim=aim, criterion=criterion, response=response,
                                 pending=None if pending is None else pending[names].to_numpy(float),
-                                avoid=results.failed[names].to_numpy(float), taken_ids=taken, seed=seed)
+                                avoid=results.failed[names].to_numpy(float), taken_ids=taken, seed=seed,
+                                progress=progress)
     write_plan(proposal.frame, out)
     made = NextRuns(proposal, proposal.to_dict())
     if is_two_fidelity(sset):
