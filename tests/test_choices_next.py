@@ -218,7 +218,7 @@ def test_cli_next_and_add_to_with_choice_knobs(tmp_path, capsys):
     assert len(new.groupby(["wing_section", "flap"])) == 4                 # the first four visit every combination
     assert set(new["flap_angle"]) <= {10.0, 20.0, 30.0, 40.0}
     why = json.loads((tmp_path / "next.why.json").read_text())
-    assert why["criterion"] == "ivr" and why["runs"][0]["reason"].startswith("level combination wing_section ")
+    assert why["criterion"] == "ivr_posterior" and why["runs"][0]["reason"].startswith("level combination wing_section ")
     assert why["runs"][0]["point"]["wing_section"] in ("naca2412", "sections/high_lift_invented.dat")
     # the proposed runs extend the plan, and the plan can also be extended by a sliced augmentation
     assert main(["plan", str(path), "--add-to", str(tmp_path / "plan.csv"), "--runs", "4",

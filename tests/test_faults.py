@@ -119,8 +119,10 @@ def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):
     plan, out = tmp_path / "plan.csv", tmp_path / "out" / "res.csv"
     _write_plan(plan, 10)
     env = {**os.environ, "CASE_SLOW": ",".join(f"r{i:03d}" for i in range(1, 11)), "CASE_SLEEP": "0.6"}
+    # A shell without job control starts background jobs with SIGINT ignored, and Python keeps it so: the
+    # child gets the default back, as under an interactive terminal (pytest run as `make test &` would else fail)
     proc = subprocess.Popen(_cli(study_file, plan, out), env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                            text=True)
+                            text=True, preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     _wait_rows(out, 2)
     proc.send_signal(signal.SIGINT)   # once: a press swallowed in a finaliser is caught (test below)
     _, err = proc.communicate(timeout=30)
@@ -149,8 +151,12 @@ def test_ctrl_c_swallowed_by_a_finaliser_still_stops_at_the_next_run(tmp_path):
     from doe.runs.execution import Interrupted
 
     out = tmp_path / "res.csv"
-    with pytest.raises(Interrupted, match="3 of 12 runs are stored"):
-        evaluate_plan(toy_plan(), _PressesCtrlCInAFinaliser(), out, ["x1", "x2"], progress=False)
+    before = signal.signal(signal.SIGINT, signal.default_int_handler)  # Python's own, even when started ignored
+    try:
+        with pytest.raises(Interrupted, match="3 of 12 runs are stored"):
+            evaluate_plan(toy_plan(), _PressesCtrlCInAFinaliser(), out, ["x1", "x2"], progress=False)
+    finally:
+        signal.signal(signal.SIGINT, before)
     assert list(pd.read_csv(out)["run_id"]) == ["r001", "r002", "r003"]
 
 
