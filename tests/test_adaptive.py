@@ -156,3 +156,27 @@ def test_default_map_criterion_is_the_posterior_ivr_batch(fitted):
     x = study.space.to_unit(p.frame[study.space.names].to_numpy()[:1])[0]
     after = _integrated_variance_after(sset, np.vstack([x, others]), R)
     assert np.mean(after[1:] < after[0]) <= 0.01
+
+
+@pytest.mark.parametrize("criterion", ["ivr_posterior", "ivr", "variance", "eigf"])
+def test_stepped_knobs_get_new_settings_on_their_steps(criterion):
+    # Both knobs stepped (7 x 6 settings): candidates scored between the steps and snapped afterwards
+    # could land on a setting already run or picked; every proposal must be a new setting on the steps.
+    from conftest import study_text
+    from doe.runs.results import ResultsTable
+    import pandas as pd
+
+    study = read_study_text(study_text("steps", [("x1", "-", -5.0, 10.0, {"step": 2.5}),
+                                                  ("x2", "-", 0.0, 15.0, {"step": 3.0})], [("f", "-", "minimize")])
+                            + "\n[fit]\nkernel = \"sqexp\"\ntrend = \"constant\"\nrestarts = 2\n")
+    X = study.space.from_unit(maximin_lhs(12, 2, seed=4))
+    X = np.unique(X, axis=0)
+    frame = pd.DataFrame(X, columns=["x1", "x2"])
+    frame.insert(0, "run_id", [f"r{i:03d}" for i in range(1, len(X) + 1)])
+    frame["f"], frame["status"], frame["source"] = tf.get("branin")(X), "ok", "test"
+    sset = fit_surrogates(study, ResultsTable(frame, ["x1", "x2"], ["f"]), seed=0)
+    new = propose_runs(sset, 8, aim="map", criterion=criterion, seed=2).frame[["x1", "x2"]].to_numpy()
+    assert np.allclose(new[:, 0], np.round(new[:, 0] / 2.5) * 2.5) and np.allclose(new[:, 1], np.round(new[:, 1] / 3) * 3)
+    settings = {tuple(r) for r in np.round(X, 9)}
+    picked = [tuple(r) for r in np.round(new, 9)]
+    assert len(set(picked)) == len(picked) and not settings & set(picked)

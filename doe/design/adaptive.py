@@ -171,6 +171,15 @@ def accuracy_status(sset) -> tuple:
     return False, f"accuracy wanted (q2_loo >= {sset.target_q2:g}) not met yet for: {', '.join(short)}"
 
 
+def _on_steps(space, C: np.ndarray) -> np.ndarray:
+    """Candidates with their stepped knobs on their steps (scored where the run will be made), each once,
+    those that the snap moved across a constraint left out. Without stepped knobs, ``C`` as it is."""
+    if not any(p.values for p in space.parameters):
+        return C
+    C = np.unique(space.to_unit(space.from_unit(C)), axis=0)
+    return C[space.feasible_unit(C)]
+
+
 def _far_from(C: np.ndarray, P: np.ndarray) -> np.ndarray:
     """Boolean mask of candidates farther than MIN_DISTANCE from every point of P."""
     if len(P) == 0:
@@ -351,6 +360,7 @@ def _propose(sset, runs, aim, criterion, response, pending, avoid, taken_ids, se
     C = candidates(space, n_candidates, rng)
     if aim == "optimum":
         C = np.vstack([C, _localcandidates(sset, response, rng)])
+    C = _on_steps(space, C)
     C = C[_far_from(C, np.vstack([first.X_unit_, P, A]))]
     R = candidates(space, N_REFERENCE, rng) if criterion in ("ivr", "ivr_posterior") else None
     met, status = accuracy_status(sset)
