@@ -153,12 +153,10 @@ def wants_level_sensitivity(study, direct: bool, around) -> bool:
 def check_level_route(study, direct: bool, around) -> None:
     """Refuse in one line what the sensitivity with choice knobs cannot do (a SensitivityError).
 
-    Only the surrogate route over the uniform box (every level equally likely) is available.
+    Only the box as a whole (every level equally likely) is available, by either route.
     """
     if not study.space.choices:
         return
-    if direct:
-        raise SensitivityError("the direct route is not available with choice knobs; use the surrogate route")
     if around is not None or study.sensitivity.distribution != "uniform":
         raise SensitivityError("with choice knobs the sensitivity covers the whole box, every level equally "
                                "likely: set [sensitivity] distribution = \"uniform\" and give no setting to scatter "

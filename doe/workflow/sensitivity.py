@@ -30,6 +30,7 @@ from ..runs.evaluators import make_evaluator
 from ..runs.results import ResultsTable
 from .cheap import study_surrogates
 from ..sensitivity.morris import ScreeningResult, morris_screening
+from ..sensitivity.levels import level_sobol_indices
 from ..sensitivity.sobol import SobolResult, sobol_indices
 from ..sensitivity.words import to_dict
 
@@ -109,10 +110,25 @@ def surrogate_callables(surrogates):
     return model, paths
 
 
-def evaluator_model(evaluator, names, responses):
+def _points(knobs, X) -> list:
+    """Points as an evaluator gets them from a plan: study units, a choice knob's level by its name.
+
+    ``knobs`` is the study's Space, or plain parameter names (every column a number).
+    """
+    X = np.asarray(X, dtype=float)
+    if not hasattr(knobs, "parameters"):
+        return [dict(zip(knobs, map(float, x))) for x in X]
+    return [{p.name: (p.levels[int(p.snap(v))] if p.levels else float(v)) for p, v in zip(knobs.parameters, x)}
+            for x in X]
+
+
+def evaluator_model(evaluator, knobs, responses):
     """A model callable that runs an evaluator at each point (serially).
 
-    A failed run gives NaN for every response (so that
+    ``knobs`` is the study's Space (or the parameter names when every knob is
+    a number). ``X`` holds study units with choice columns as level indices;
+    the evaluator gets each point as from a plan (a choice by its level name). A
+    failed run gives NaN for every response (so that
     :func:`~doe.sensitivity.sobol.sobol_indices` can drop its base row); the
     callable's ``failures`` list keeps ``(run_id, message)`` of each.
     """
@@ -121,7 +137,7 @@ def evaluator_model(evaluator, names, responses):
     def model(X):
         ids = [f"sens{counter[0] + i:07d}" for i in range(len(X))]
         counter[0] += len(X)
-        outcomes = evaluator.evaluate_many(ids, [dict(zip(names, map(float, x))) for x in X])
+        outcomes = evaluator.evaluate_many(ids, _points(knobs, X))
         model.failures.extend((rid, o.message or "no message") for rid, o in zip(ids, outcomes) if o.status != "ok")
         return {r: np.array([o.values.get(r, np.nan) if o.status == "ok" else np.nan for o in outcomes], dtype=float)
                 for r in responses}
@@ -139,7 +155,7 @@ def evaluate_points(study, X, evaluator):
         Run ids ``r0``, ``r1``, ...; failed runs kept with ``status = failed``.
     """
     names, ids = study.space.names, [f"r{i}" for i in range(len(X))]
-    outcomes = evaluator.evaluate_many(ids, [dict(zip(names, map(float, x))) for x in X])
+    outcomes = evaluator.evaluate_many(ids, _points(study.space, X))
     frame = pd.DataFrame(np.asarray(X, dtype=float), columns=names)
     frame.insert(0, "run_id", ids)
     for r in study.response_names:
@@ -163,7 +179,7 @@ def _study_model(study, evaluator, what: str):
             raise SensitivityError(f"{study.name}: {what} needs an evaluator that can run new points; "
                                    "a 'recorded' evaluator cannot (use the surrogate route)")
         evaluator = make_evaluator(study)
-    return evaluator_model(evaluator, study.space.names, study.response_names)
+    return evaluator_model(evaluator, study.space, study.response_names)
 
 
 def _warn_about(study, inputs: InputDistribution, direct: bool) -> None:
@@ -223,9 +239,12 @@ def study_sensitivity(study, results=None, *, direct: bool = False, around=None,
                    responses=study.response_names, seed=seed)
     if direct:
         model = _study_model(study, evaluator, "the direct route")
+        bounds = dict(max_evaluations=max_evaluations or DIRECT_MAX_EVALUATIONS, max_failed_share=DIRECT_FAILED_SHARE)
         try:
-            result = sobol_indices(model, inputs, max_evaluations=max_evaluations or DIRECT_MAX_EVALUATIONS,
-                                   max_failed_share=DIRECT_FAILED_SHARE, **options)
+            if levels:     # choice knobs: every level equally likely (doe.sensitivity.levels)
+                result = level_sobol_indices(model, study.space, **bounds, **options)
+            else:
+                result = sobol_indices(model, inputs, **bounds, **options)
         except SensitivityError as exc:
             raise SensitivityError(f"direct sensitivity: {exc}{_first_failure(model)}") from exc
         if model.failures:
