@@ -211,9 +211,30 @@ def test_cli_plan_writes_level_names(tmp_path, capsys):
     assert {ln.split(",")[4] for ln in lines[1:]} == {"on", "off", "half"}
 
 
-def test_steps_not_ready_for_choices_refuse_in_one_line(tmp_path):
+def test_screening_with_a_choice_knob(tmp_path):
+    # Morris screening of y = x1 + h(section) with x2 inert. For a term linear in x1 every elementary effect
+    # equals its coefficient times the full range (Morris 1991, Technometrics 33:161, sec. 2), so mu_star of
+    # x1 is 1 and sigma 0; x2 has none. The choice's grid column is split so every level is reached, and the
+    # evaluator is handed level names, as from a plan.
+    from conftest import study_text
+    from doe.runs.evaluators.base import Evaluator, Outcome
     from doe.workflow.sensitivity import study_screening
 
-    study, frame = _write_mixed(tmp_path)
-    with pytest.raises(DoeError, match="^choice knobs are not yet supported by screening .*: section, flap$"):
-        study_screening(study)
+    seen = set()
+
+    class Function(Evaluator):
+        kind = "function"
+
+        def evaluate(self, run_id, point):
+            seen.add(point["section"])
+            return Outcome({"y": point["x1"] + {"a": 0.0, "b": 3.0, "c": -2.0}[point["section"]]})
+
+    text = study_text("screen-levels", [("x1", "-", 0.0, 1.0), ("x2", "-", 0.0, 1.0)], [("y", "-")])
+    study = read_study_text(text.replace("[[responses]]", '[[parameters]]\nname = "section"\n'
+                                         'levels = ["a", "b", "c"]\n\n[[responses]]', 1))
+    res = study_screening(study, trajectories=10, seed=3, evaluator=Function(["y"]))
+    m = res.measures["y"]
+    i = {n: k for k, n in enumerate(res.parameters)}
+    assert m["mu_star"][i["x1"]] == pytest.approx(1.0, abs=1e-9) and m["sigma"][i["x1"]] == pytest.approx(0, abs=1e-9)
+    assert m["mu_star"][i["x2"]] == pytest.approx(0.0, abs=1e-12) and res.inert == ["x2"]
+    assert m["mu_star"][i["section"]] > 1.0 and seen == {"a", "b", "c"}

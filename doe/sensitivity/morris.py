@@ -16,6 +16,11 @@ from four times as many candidates to spread well (Campolongo et al. 2007,
 with the local optimisation of Ruano et al. 2012), all as SALib implements
 them.
 
+A choice knob's grid column is split into equal parts, one per level, so an
+elementary effect of a choice is the change when the level switches (per grid
+step, like every other knob's); its order of levels is arbitrary, so read its
+``mu_star`` (a size), not its ``mu`` (a sign).
+
 A parameter is called *inert* when, for every response, the upper end of the
 95 % bootstrap interval of its ``mu_star`` is below ``inert_fraction`` (5 %)
 of the largest ``mu_star`` of that response (common practice, no source).
@@ -53,6 +58,7 @@ from SALib.sample import morris as _morris_sample
 from ..checks import is_whole
 from ..errors import SensitivityError
 from ..seeds import seed_value
+from .levels import discrete_values
 from .sobol import evaluate_model, output_names
 from .words import LIBRARY
 from ..space import Space
@@ -148,12 +154,21 @@ def morris_screening(model, space: Space, *, trajectories: int = 20, levels: int
         warnings.simplefilter("ignore")  # SALib's notes on grid sizes; the arguments are checked above
         U = _morris_sample.sample(problem, 4 * int(trajectories), num_levels=int(levels),
                                   optimal_trajectories=int(trajectories), local_optimization=True, seed=sample_seed)
-    X = space.from_unit(U)
+    X = _on_knobs(space, U)
     responses = output_names(model(X[:1]), responses)
     Y = evaluate_model(model, X, responses)
     measures = {r: _measures(problem, U, Y[r], levels, n_resamples, boot_seed, inert_fraction) for r in responses}
     return ScreeningResult(tuple(space.names), measures, int(trajectories), int(levels), len(X),
                            float(inert_fraction), seed_value(seed))
+
+
+def _on_knobs(space: Space, U: np.ndarray) -> np.ndarray:
+    """The grid points in study units. With choice knobs, each choice and stepped knob's grid column
+    is a carrier split into equal parts, one per level or step (:func:`doe.sensitivity.levels.discrete_values`),
+    so every level is reached and a grid step across parts switches the level."""
+    if not space.choices:
+        return space.from_unit(U)
+    return discrete_values(space, space.lower + U * (space.upper - space.lower))
 
 
 def _measures(problem, U, y, levels, n_resamples, boot_seed, inert_fraction) -> dict:

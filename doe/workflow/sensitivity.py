@@ -276,7 +276,6 @@ def study_screening(study, *, trajectories: int = 20, levels: int = 4, seed: int
 
     See :func:`doe.sensitivity.morris.morris_screening`; ``r (d + 1)`` evaluator calls.
     """
-    study.space.refuse_choices("screening (doe sensitivity)")
     model = _study_model(study, evaluator, "screening")
     return morris_screening(model, study.space, trajectories=trajectories, levels=levels,
                             responses=study.response_names, seed=study.plan.seed if seed is None else seed)
