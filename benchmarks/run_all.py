@@ -6,7 +6,7 @@ reports/benchmarks.md are only ever written by this script.
 
 Usage::
 
-    python benchmarks/run_all.py            # full run (under 20 minutes on 2 cores)
+    python benchmarks/run_all.py            # full run (about an hour on 2 cores: sum of the sections' times)
     python benchmarks/run_all.py --quick    # short run for checks (under 3 minutes)
     python benchmarks/run_all.py --only aero,plans   # refresh just those sections of the file
 """
