@@ -254,30 +254,22 @@ def propose_level_runs(sset: SurrogateSet, runs: int, aim: str = "map", criterio
                       pending=space.from_unit(P[mine[1]])[:, cont] if mine[1].any() else None,
                       avoid=space.from_unit(A[mine[2]])[:, cont] if mine[2].any() else None)
         one = propose_runs(sub, 1, **kwargs)
-        done = np.vstack([first.X_unit_[mine[0]], P[mine[1]], A[mine[2]]])
-        first_picks.append((one, kwargs, {_key(x) for x in space.from_unit(done)[:, cont]}))
+        first_picks.append((one, kwargs))
         named = named if named is not None or blind else one
         scores.append(one.picks[0].score)
     add = allocate_runs(counts, scores, int(runs))
     ids = next_ids(list(sset.run_ids) + list(taken_ids), int(runs))
-    stepped = any(p.values for p in space.parameters)
     frames, picks = [], []
     for t in np.flatnonzero(add):
-        one, kwargs, done = first_picks[t]
+        one, kwargs = first_picks[t]
+        # propose_runs scores stepped knobs on their steps and never repeats a run made, pending, failed or picked
         made = one if add[t] == 1 else propose_runs(sets[t], int(add[t]), **kwargs)
-        chosen = _distinct(made, int(add[t]), done)
-        if stepped and any(again for *_, again in chosen):
-            # the criterion's point is snapped to the steps, which may land on a setting already run or picked:
-            # as many spare picks again let the batch skip those
-            chosen = _distinct(propose_runs(sets[t], 2 * int(add[t]), **kwargs), int(add[t]), done)
         why = (f"level combination {_label(space, combos[t])}: {counts[t]} run(s) so far, {add[t]} of the "
                f"{runs} proposed go here")
-        for pick, values, again in chosen:
-            point = {p.name: (p.levels[combos[t][space.choices.index(p)]] if p.levels else values[p.name])
+        for pick, (_, row) in zip(made.picks, made.frame.drop(columns="run_id").iterrows()):
+            point = {p.name: (p.levels[combos[t][space.choices.index(p)]] if p.levels else float(row[p.name]))
                      for p in space.parameters}
-            note = (" (this setting repeats one already run or picked: the stepped knobs leave no other the "
-                    "criterion prefers)") if again else ""
-            picks.append(Pick("", point, pick.score, f"{why}; {pick.reason}{note}", pick.predicted))
+            picks.append(Pick("", point, pick.score, f"{why}; {pick.reason}", pick.predicted))
             frames.append(point)
     order = np.argsort([i for t in np.flatnonzero(add) for i in range(add[t])], kind="stable")
     picks = [picks[i] for i in order]
@@ -291,23 +283,6 @@ def propose_level_runs(sset: SurrogateSet, runs: int, aim: str = "map", criterio
     if len(P):
         notes.append(f"{len(P)} pending run(s) taken as returning the surrogate's mean (within their combination)")
     return Proposal(frame, picks, aim, named.criterion, named.response, met, notes)
-
-
-def _key(x) -> tuple:
-    """A setting (study units) as a hashable key, to the round-off of a plan file."""
-    return tuple(float(f"{v:.10g}") for v in x)
-
-
-def _distinct(made, k: int, done: set) -> list:
-    """The first ``k`` picks of ``made`` as ``(pick, {name: value}, repeats)``, those repeating a setting of
-    ``done`` or an earlier pick last (only when there are too few others)."""
-    rows = made.frame.drop(columns="run_id")
-    fresh, again, seen = [], [], set(done)
-    for pick, (_, row) in zip(made.picks, rows.iterrows()):
-        key = _key(row.to_numpy(float))
-        (again if key in seen else fresh).append((pick, {n: float(v) for n, v in row.items()}, key in seen))
-        seen.add(key)
-    return (fresh + again)[:k]
 
 
 def _allocation_note(space, combos, counts, add, criterion: str) -> str:
