@@ -233,10 +233,8 @@ def sampled_band_ratio(gp, Z, n_cont: int, seed=0, draws: int = DRAWS, burn: int
 
 def loo_band_ratio(loo) -> float:
     """Root mean square of the standardised leave-one-out errors (Bachoc 2013), -; 1 without spread."""
-    std = np.asarray(loo.std, dtype=float)
-    resid = np.asarray(loo.observed, dtype=float) - np.asarray(loo.predicted, dtype=float)
-    ok = std > 0
-    return float(np.sqrt(np.mean((resid[ok] / std[ok]) ** 2))) if np.any(ok) else 1.0
+    ok = np.asarray(loo.std) > 0          # LooResult.standardised, without dividing by a zero spread
+    return float(np.sqrt(np.mean((loo.residual[ok] / loo.std[ok]) ** 2))) if np.any(ok) else 1.0
 
 
 def band_widening(gp, Z, n_cont: int, loo, seed=0) -> BandWidening:
